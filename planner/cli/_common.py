@@ -1,0 +1,48 @@
+"""Shared plumbing for the command modules: consoles, one-line errors, exit codes."""
+
+from __future__ import annotations
+
+import functools
+import sys
+from collections.abc import Callable
+from typing import Any, TypeVar
+
+import typer
+from rich.console import Console
+
+from planner.errors import InputError
+
+F = TypeVar("F", bound=Callable[..., Any])
+
+EXIT_BAD_INPUT = 2
+
+
+def stderr_console(*, quiet: bool = False) -> Console:
+    """Console for progress and chatter; stdout is reserved for data (tables, JSON)."""
+    return Console(stderr=True, quiet=quiet)
+
+
+def stdout_console() -> Console:
+    return Console()
+
+
+def fail(message: str) -> typer.Exit:
+    """Print one line on stderr and return the Exit to raise (code 2)."""
+    print(f"planner: error: {message}", file=sys.stderr)
+    return typer.Exit(code=EXIT_BAD_INPUT)
+
+
+def one_line_errors(func: F) -> F:
+    """Turn :class:`InputError` (and file-system errors) into one line on stderr and exit 2."""
+
+    @functools.wraps(func)
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
+        try:
+            return func(*args, **kwargs)
+        except InputError as exc:
+            raise fail(str(exc)) from None
+        except (FileNotFoundError, IsADirectoryError, NotADirectoryError, PermissionError) as exc:
+            where = getattr(exc, "filename", None) or ""
+            raise fail(f"{where}: {exc.strerror or exc}") from None
+
+    return wrapper  # type: ignore[return-value]

@@ -1,0 +1,7 @@
+"""`planner merge` (being written)."""
+
+import typer
+
+
+def register(app: typer.Typer) -> None:
+    """Not registered yet."""

@@ -1,0 +1,7 @@
+"""`planner sensitivity` (being written)."""
+
+import typer
+
+
+def register(app: typer.Typer) -> None:
+    """Not registered yet."""
