@@ -1,0 +1,236 @@
+"""The named hardware components and their error probabilities.
+
+A :class:`NoiseModel` holds today's probabilities of the six components in
+:data:`planner.config.COMPONENTS` plus a scale factor per component. The scale factor multiplies
+that component's probabilities *as placed in the circuit*:
+
+- ``gate_1q``: p of the DEPOLARIZE1 after every single-qubit gate;
+- ``gate_2q``: p of the DEPOLARIZE2 after every two-qubit gate;
+- ``readout``: the flip probability before every measurement;
+- ``reset``: the flip probability after every reset;
+- ``idle``: each of p_x, p_y, p_z of the Pauli-twirled T1/T2 channel over a gate layer's duration,
+  and the excess DEPOLARIZE1 probability, for every qubit not acted on in that layer;
+- ``idle_measure``: the same for qubits idle in a measure/reset layer (the data qubits while the
+  measure qubits are read out and reset), over that layer's duration.
+
+So ``idle = 0.5`` halves the twirled idle probabilities (it is *not* a statement about T1 alone).
+Scale 1 is today, 0 is a perfect component.
+
+>>> m = NoiseModel.sd6(0.001).with_scales({"gate_2q": 0.5})
+>>> m.probability("gate_2q"), m.probability("readout")
+(0.0005, 0.001)
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Mapping
+from typing import Any
+
+from planner.config import COMPONENTS, MAX_PROBABILITY, Target
+
+
+@dataclasses.dataclass(frozen=True)
+class PauliChannel:
+    """A single-qubit Pauli channel: probabilities of X, Y and Z errors."""
+
+    px: float
+    py: float
+    pz: float
+
+    @property
+    def total(self) -> float:
+        return self.px + self.py + self.pz
+
+    def scaled(self, factor: float) -> PauliChannel:
+        return PauliChannel(self.px * factor, self.py * factor, self.pz * factor)
+
+
+def twirl_idle(*, duration_ns: float, t1_us: float, t2_us: float) -> PauliChannel:
+    """Pauli twirl of amplitude + phase damping over an idle of ``duration_ns``.
+
+    p_x = p_y = (1 - exp(-t/T1)) / 4 and p_z = (1 - exp(-t/T2)) / 2 - (1 - exp(-t/T1)) / 4
+    (Tomita & Svore, PRA 90, 062320 (2014), eqs. 9-10). Requires T2 <= 2 T1. Infinite times
+    mean no decay.
+
+    >>> c = twirl_idle(duration_ns=100, t1_us=50, t2_us=30)
+    >>> round(c.px, 8), round(c.pz, 8)
+    (0.0004995, 0.00116439)
+    """
+    if t2_us > 2 * t1_us * (1 + 1e-12):
+        raise ValueError(f"T2 = {t2_us} us exceeds 2*T1 = {2 * t1_us} us")
+    t_us = duration_ns / 1000.0
+    decay1 = -math.expm1(-t_us / t1_us) if math.isfinite(t1_us) else 0.0
+    decay2 = -math.expm1(-t_us / t2_us) if math.isfinite(t2_us) else 0.0
+    pxy = decay1 / 4
+    pz = decay2 / 2 - decay1 / 4
+    return PauliChannel(pxy, pxy, max(pz, 0.0))
+
+
+def pauli_error_from_infidelity(r: float, *, num_qubits: int) -> float:
+    """Total Pauli error probability p of a depolarizing channel with average gate infidelity r.
+
+    r = p * D / (D + 1) with D = 2**n (Nielsen, Phys. Lett. A 303, 249 (2002)), so
+    p = r * (D + 1) / D: 3r/2 for one qubit, 5r/4 for two.
+
+    >>> pauli_error_from_infidelity(0.002, num_qubits=1), pauli_error_from_infidelity(0.004, num_qubits=2)
+    (0.003, 0.005)
+    """
+    d = 2**num_qubits
+    return r * (d + 1) / d
+
+
+def _compose_depolarizing(p: float, times: int) -> float:
+    """DEPOLARIZE1(p) applied ``times`` times is DEPOLARIZE1 of the returned probability."""
+    return 0.75 * (1 - (1 - 4 * p / 3) ** times)
+
+
+@dataclasses.dataclass(frozen=True)
+class NoiseModel:
+    """Today's error budget of a device and a scale factor per component (see module doc).
+
+    Probabilities are per operation; times in microseconds (coherence) and nanoseconds
+    (durations). ``math.inf`` coherence times mean no T1/T2 decay while idle.
+    """
+
+    gate_1q: float
+    gate_2q: float
+    readout: float
+    reset: float
+    t1_us: float = math.inf
+    t2_us: float = math.inf
+    idle_excess: float = 0.0
+    idle_measure_excess: float = 0.0
+    gate_1q_ns: float = 0.0
+    gate_2q_ns: float = 0.0
+    measure_ns: float = 0.0
+    reset_ns: float = 0.0
+    native_2q: str = "cz"
+    label: str = "device"
+    scales: tuple[tuple[str, float], ...] = ()
+
+    # ---- constructors ---------------------------------------------------------------------
+
+    @classmethod
+    def from_target(cls, target: Target) -> NoiseModel:
+        """Today's model of the device described by a validated target file."""
+        dev = target.device
+        if dev.preset is not None:
+            maker = {"sd6": cls.sd6, "si1000": cls.si1000}[dev.preset.model]
+            return dataclasses.replace(maker(dev.preset.p), native_2q=dev.native_2q)
+        e, c, t = dev.errors, dev.coherence, dev.durations
+        assert c is not None and t is not None  # guaranteed by config validation
+        g1 = e.gate_1q if e.gate_1q is not None else pauli_error_from_infidelity(
+            e.gate_1q_infidelity or 0.0, num_qubits=1)
+        g2 = e.gate_2q if e.gate_2q is not None else pauli_error_from_infidelity(
+            e.gate_2q_infidelity or 0.0, num_qubits=2)
+        model = cls(
+            gate_1q=g1, gate_2q=g2, readout=e.readout, reset=e.reset,
+            t1_us=c.t1_us, t2_us=c.t2_us,
+            idle_excess=e.idle_excess, idle_measure_excess=e.idle_measure_excess,
+            gate_1q_ns=t.gate_1q_ns, gate_2q_ns=t.gate_2q_ns, measure_ns=t.measure_ns,
+            reset_ns=t.reset_ns, native_2q=dev.native_2q, label=dev.name,
+        )
+        model.check()
+        return model
+
+    @classmethod
+    def sd6(cls, p: float) -> NoiseModel:
+        """Uniform depolarizing at p: every gate, reset, measurement and idle layer."""
+        return cls(gate_1q=p, gate_2q=p, readout=p, reset=p, idle_excess=p,
+                   idle_measure_excess=p, native_2q="cx", label=f"SD6(p={p:g})")
+
+    @classmethod
+    def si1000(cls, p: float) -> NoiseModel:
+        """SI1000 (Gidney, Newman, Fowler, Broughton, Quantum 5, 605 (2021)): CZ p, 1q gates p/10,
+        idle in gate layers p/10, reset flip 2p, readout flip 5p, idle during measurement and
+        during reset 2p each. Our circuits read out and reset in one layer, so its idlers get the
+        two DEPOLARIZE1(2p) composed into one."""
+        return cls(gate_1q=p / 10, gate_2q=p, readout=5 * p, reset=2 * p, idle_excess=p / 10,
+                   idle_measure_excess=_compose_depolarizing(2 * p, 2), native_2q="cz",
+                   label=f"SI1000(p={p:g})")
+
+    # ---- scaling --------------------------------------------------------------------------
+
+    def scale(self, component: str) -> float:
+        if component not in COMPONENTS:
+            raise KeyError(f"unknown component {component!r}; known: {', '.join(COMPONENTS)}")
+        return dict(self.scales).get(component, 1.0)
+
+    def with_scales(self, factors: Mapping[str, float]) -> NoiseModel:
+        """A copy with each named component's scale multiplied by its factor."""
+        current = {c: self.scale(c) for c in COMPONENTS}
+        for comp, f in factors.items():
+            if comp not in COMPONENTS:
+                raise KeyError(f"unknown component {comp!r}; known: {', '.join(COMPONENTS)}")
+            if not (f >= 0 and math.isfinite(f)):
+                raise ValueError(f"scale factor for {comp} must be a finite number >= 0, got {f}")
+            current[comp] *= f
+        kept = tuple((c, current[c]) for c in COMPONENTS if current[c] != 1.0)
+        out = dataclasses.replace(self, scales=kept)
+        out.check()
+        return out
+
+    # ---- probabilities as placed ----------------------------------------------------------
+
+    def probability(self, component: str) -> float:
+        """Scaled probability of a gate/readout/reset component (per operation)."""
+        base = {"gate_1q": self.gate_1q, "gate_2q": self.gate_2q, "readout": self.readout,
+                "reset": self.reset}
+        if component not in base:
+            raise KeyError(f"{component} is an idle component: use idle_channel()")
+        return base[component] * self.scale(component)
+
+    def idle_channel(self, *, duration_ns: float, during_measure: bool) -> tuple[PauliChannel, float]:
+        """(twirled T1/T2 channel, excess DEPOLARIZE1 probability) for one idle qubit in one layer,
+        both already scaled by ``idle`` (gate layers) or ``idle_measure`` (measure/reset layers)."""
+        comp = "idle_measure" if during_measure else "idle"
+        excess = self.idle_measure_excess if during_measure else self.idle_excess
+        s = self.scale(comp)
+        twirl = twirl_idle(duration_ns=duration_ns, t1_us=self.t1_us, t2_us=self.t2_us)
+        return twirl.scaled(s), excess * s
+
+    def layer_duration_ns(self, *, has_2q: bool, has_1q: bool, has_measure: bool, has_reset: bool) -> float:
+        """Duration of one layer (TICK) from the kinds of operation in it: the slowest kind."""
+        if has_measure or has_reset:
+            return (self.measure_ns if has_measure else 0.0) + (self.reset_ns if has_reset else 0.0)
+        if has_2q:
+            return self.gate_2q_ns
+        if has_1q:
+            return self.gate_1q_ns
+        return 0.0
+
+    def check(self) -> None:
+        """Raise ValueError if any scaled probability leaves its meaningful range."""
+        for comp in ("gate_1q", "gate_2q", "readout", "reset"):
+            p = self.probability(comp)
+            if not 0 <= p <= MAX_PROBABILITY[comp]:
+                raise ValueError(f"{comp}: scaled probability {p:g} is outside [0, {MAX_PROBABILITY[comp]:g}]"
+                                 f" (scale {self.scale(comp):g})")
+        longest = max(self.gate_1q_ns, self.gate_2q_ns, self.measure_ns + self.reset_ns)
+        for measure in (False, True):
+            twirl, excess = self.idle_channel(duration_ns=longest, during_measure=measure)
+            comp = "idle_measure" if measure else "idle"
+            if twirl.total > 0.75 or excess > 0.75:
+                raise ValueError(f"{comp}: scaled idle error {twirl.total + excess:g} is too large "
+                                 f"(scale {self.scale(comp):g})")
+
+    def to_json(self) -> dict[str, Any]:
+        """JSON-native description (for reports and the manifest)."""
+        d = dataclasses.asdict(self)
+        d["scales"] = {c: self.scale(c) for c in COMPONENTS}
+        for k in ("t1_us", "t2_us"):
+            if not math.isfinite(d[k]):
+                d[k] = None
+        return d
+
+    def summary(self) -> dict[str, float]:
+        """Scaled per-operation error of each component, idles over their typical layer
+        (a 2q-gate layer and a measure+reset layer): the numbers a person compares."""
+        out = {c: self.probability(c) for c in ("gate_1q", "gate_2q", "readout", "reset")}
+        tw, ex = self.idle_channel(duration_ns=self.gate_2q_ns, during_measure=False)
+        out["idle"] = tw.total + ex
+        tw, ex = self.idle_channel(duration_ns=self.measure_ns + self.reset_ns, during_measure=True)
+        out["idle_measure"] = tw.total + ex
+        return out
