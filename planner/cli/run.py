@@ -1,7 +1,61 @@
-"""`planner run` (being written)."""
+"""`planner run`: the main job. Sweep (resumable), fit, ask, roadmap, sensitivity; tables on
+screen and files under the out directory."""
+
+from __future__ import annotations
+
+import time
+from pathlib import Path
+from typing import Annotated
 
 import typer
 
+from planner.cli._common import one_line_errors, stderr_console, stdout_console
+from planner.cli.options import BudgetOpt, OutOpt, QuietOpt, WorkersOpt, default_out_dir
+
 
 def register(app: typer.Typer) -> None:
-    """Not registered yet."""
+    app.command("run", help="The main job: sweep (resumable), fit, then the requirement, roadmap and "
+                "sensitivity tables, with files under the out directory.")(run_command)
+
+
+@one_line_errors
+def run_command(
+    target: Annotated[Path, typer.Argument(help="Target file (TOML).", show_default=True)] = Path("targets/demo.toml"),
+    out: OutOpt = None,
+    workers: WorkersOpt = None,
+    budget: BudgetOpt = "quick",
+    quiet: QuietOpt = False,
+) -> None:
+    from planner.config import load_target
+    from planner.planning import answer_all
+    from planner.reports import tables
+    from planner.sampling import run_sweep
+    from planner.store import SampleStore
+    from planner.sweep import plan_sweep
+
+    err = stderr_console(quiet=quiet)
+    con = stdout_console()
+    started = time.monotonic()
+    spec = load_target(target)
+    out_dir = out if out is not None else default_out_dir(spec)
+    plan = plan_sweep(spec, budget=budget)
+    err.print(f"[bold]{spec.device.name}[/]: {len(plan.tasks)} tasks over {len(plan.points)} scale points, "
+              f"budget '{budget}' ({plan.rule.max_errors} errors or {plan.rule.max_shots:,} shots per task) "
+              f"-> {out_dir}")
+    store = SampleStore(out_dir)
+    run_sweep(plan.tasks, store=store, rule=plan.rule, workers=workers, console=err)
+    answers = answer_all(spec, store.stats(), seed=0)
+    tables.render_fits(answers.fits, con, model=answers.model)
+    tables.render_requirements(answers.requirements, con)
+    if answers.roadmap is not None:
+        tables.render_roadmap(answers.roadmap, con)
+    tables.render_sensitivity(answers.sensitivity, con)
+    try:
+        from planner.reports.files import write_all
+    except ImportError:  # report files arrive with the reports stage
+        write_all = None
+    if write_all is not None:
+        written = write_all(answers, out_dir=out_dir, target=spec)
+        err.print(f"wrote {len(written)} files under {out_dir}")
+    err.print(f"done in {time.monotonic() - started:.0f} s. Projections are model-based: check them "
+              "against the device before relying on them.")

@@ -1,0 +1,131 @@
+"""Expanding a target's grid (distances x bases x scale points) into sinter tasks.
+
+Scale points form one joint axis (every component times s) and one axis per component (that
+component times s, the others at 1). The joint point at s = 1 is today's device; component axes
+never repeat it. Every task carries the same JSON-native metadata key set::
+
+    {"code", "d", "basis", "rounds", "axis", "factor", "scales"}
+
+This module plans; it runs nothing.
+
+>>> ScalePoint(axis="gate_2q", factor=0.5).scales()["gate_2q"], ScalePoint(axis="joint", factor=0.5).scales()["reset"]
+(0.5, 0.5)
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+import sinter
+
+from planner.circuits import build_memory_circuit
+from planner.config import COMPONENTS, Target
+from planner.errors import InputError
+from planner.noise import NoiseModel
+
+METADATA_KEYS: tuple[str, ...] = ("code", "d", "basis", "rounds", "axis", "factor", "scales")
+JOINT = "joint"
+
+
+@dataclasses.dataclass(frozen=True)
+class StoppingRule:
+    """Sample a task until it has ``max_errors`` logical errors or ``max_shots`` shots."""
+
+    max_errors: int
+    max_shots: int
+
+
+#: Budget presets. ``quick`` is the demo (a few minutes on 2 cores); ``standard`` suits a
+#: workstation over lunch; ``overnight`` a cluster. Errors set the relative interval width
+#: (about 2/sqrt(errors) at 95%); shots cap the cost of points far below threshold.
+BUDGETS: dict[str, StoppingRule] = {
+    "quick": StoppingRule(max_errors=300, max_shots=400_000),
+    "standard": StoppingRule(max_errors=2_000, max_shots=20_000_000),
+    "overnight": StoppingRule(max_errors=20_000, max_shots=1_000_000_000),
+}
+
+
+@dataclasses.dataclass(frozen=True)
+class ScalePoint:
+    """One point of the noise grid: ``axis`` is "joint" or a component name."""
+
+    axis: str
+    factor: float
+
+    def scales(self) -> dict[str, float]:
+        if self.axis == JOINT:
+            return {c: self.factor for c in COMPONENTS}
+        if self.axis not in COMPONENTS:
+            raise ValueError(f"unknown axis {self.axis!r}")
+        return {c: (self.factor if c == self.axis else 1.0) for c in COMPONENTS}
+
+    @property
+    def label(self) -> str:
+        return f"{self.axis}x{self.factor:g}"
+
+
+@dataclasses.dataclass(frozen=True)
+class SweepPlan:
+    tasks: tuple[sinter.Task, ...]
+    rule: StoppingRule
+    points: tuple[ScalePoint, ...]
+    budget: str
+
+
+def scale_points(target: Target) -> tuple[ScalePoint, ...]:
+    """The joint axis (always including 1.0) then one axis per component."""
+    joint = sorted(set(target.sweep.joint_scales) | {1.0})
+    points = [ScalePoint(axis=JOINT, factor=float(s)) for s in joint]
+    for comp in target.components:
+        points += [ScalePoint(axis=comp, factor=float(s)) for s in target.sweep.component_scales
+                   if s != 1.0]
+    return tuple(points)
+
+
+def rounds_for(target: Target, distance: int) -> int:
+    return target.sweep.rounds if target.sweep.rounds is not None else distance
+
+
+def bases_for(target: Target) -> tuple[str, ...]:
+    # stim's repetition-code memory exists in one basis only
+    return ("z",) if target.sweep.code == "repetition" else tuple(target.sweep.bases)
+
+
+def task_metadata(*, code: str, distance: int, basis: str, rounds: int, axis: str, factor: float,
+                  scales: Mapping[str, float]) -> dict[str, Any]:
+    return {"code": code, "d": distance, "basis": basis, "rounds": rounds, "axis": axis,
+            "factor": float(factor), "scales": {c: float(scales.get(c, 1.0)) for c in COMPONENTS}}
+
+
+def tasks_for_scales(target: Target, scales: Mapping[str, float], *, distances: Sequence[int],
+                     label: str, factor: float = 1.0) -> list[sinter.Task]:
+    """Tasks at one scale vector (all bases, the given distances). ``label`` becomes the axis."""
+    try:
+        model = NoiseModel.from_target(target).with_scales(scales)
+    except ValueError as exc:
+        raise InputError(f"{target.source}: scales {dict(scales)} give an invalid noise model: {exc}") from None
+    tasks = []
+    for d in distances:
+        for basis in bases_for(target):
+            r = rounds_for(target, d)
+            circuit = build_memory_circuit(model, code=target.sweep.code, distance=d, rounds=r, basis=basis)
+            meta = task_metadata(code=target.sweep.code, distance=d, basis=basis, rounds=r,
+                                 axis=label, factor=factor, scales=scales)
+            tasks.append(sinter.Task(circuit=circuit, decoder=target.sweep.decoder, json_metadata=meta))
+    return tasks
+
+
+def plan_sweep(target: Target, budget: str = "quick") -> SweepPlan:
+    """Every task of the target's grid, largest circuits first, and the budget's stopping rule."""
+    if budget not in BUDGETS:
+        raise InputError(f"--budget: {budget!r} is not a budget; allowed: {', '.join(BUDGETS)}")
+    points = scale_points(target)
+    tasks: list[sinter.Task] = []
+    for point in points:
+        tasks += tasks_for_scales(target, point.scales(), distances=target.sweep.distances,
+                                  label=point.axis, factor=point.factor)
+    # largest circuits first: they are the slowest, so starting them early shortens the wall time
+    tasks.sort(key=lambda t: -t.json_metadata["d"] * t.json_metadata["rounds"])
+    return SweepPlan(tasks=tuple(tasks), rule=BUDGETS[budget], points=points, budget=budget)
