@@ -5,7 +5,19 @@ Commands parse, call the library, render. No planning logic lives here.
 
 from __future__ import annotations
 
+import sys
+from typing import Any
+
 import typer
+from typer.core import TyperGroup
+
+try:  # typer >= 0.20 carries its own copy of click
+    from typer._click.exceptions import ClickException, NoArgsIsHelpError, UsageError
+except ImportError:  # pragma: no cover - older typer on top of click
+    from click.exceptions import ClickException, UsageError
+
+    class NoArgsIsHelpError(UsageError):  # type: ignore[no-redef]
+        pass
 
 from planner.cli import (
     ask,
@@ -20,7 +32,34 @@ from planner.cli import (
     verify,
 )
 
+
+
+class _OneLineErrors(TyperGroup):
+    """Usage errors (unknown option, bad value) as one line on stderr, exit 2, like every other
+    bad input; the boxed multi-line form is for help screens only."""
+
+    def main(self, *args: Any, standalone_mode: bool = True, **kwargs: Any) -> Any:
+        if not standalone_mode:
+            return super().main(*args, standalone_mode=False, **kwargs)
+        try:
+            rv = super().main(*args, standalone_mode=False, **kwargs)
+        except NoArgsIsHelpError:  # the help screen is already printed
+            sys.exit(0)
+        except UsageError as exc:
+            where = exc.ctx.command_path if exc.ctx is not None else "planner"
+            print(f"planner: error: {where}: {exc.format_message()}", file=sys.stderr)
+            sys.exit(exc.exit_code)
+        except ClickException as exc:
+            print(f"planner: error: {exc.format_message()}", file=sys.stderr)
+            sys.exit(exc.exit_code)
+        except typer.Abort:
+            print("planner: aborted", file=sys.stderr)
+            sys.exit(1)
+        sys.exit(rv if isinstance(rv, int) else 0)
+
+
 app = typer.Typer(
+    cls=_OneLineErrors,
     name="planner",
     help=(
         "Error-budget planning for surface-code memory experiments: sample logical error per "
@@ -31,6 +70,13 @@ app = typer.Typer(
     add_completion=False,
     pretty_exceptions_enable=False,
 )
+
+
+
+@app.callback()
+def _root() -> None:
+    """Error-budget planning for surface-code memory experiments."""
+
 
 for _module in (run, sweep, fit, ask, roadmap, sensitivity, verify, circuit, merge, status):
     _module.register(app)

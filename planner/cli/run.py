@@ -27,6 +27,8 @@ def run_command(
     quiet: QuietOpt = False,
 ) -> None:
     from planner.config import load_target
+
+    spec = load_target(target)  # validate before anything heavy is imported
     from planner.planning import answer_all
     from planner.reports import tables
     from planner.sampling import run_sweep
@@ -36,7 +38,6 @@ def run_command(
     err = stderr_console(quiet=quiet)
     con = stdout_console()
     started = time.monotonic()
-    spec = load_target(target)
     out_dir = out if out is not None else default_out_dir(spec)
     plan = plan_sweep(spec, budget=budget)
     err.print(f"[bold]{spec.device.name}[/]: {len(plan.tasks)} tasks over {len(plan.points)} scale points, "
