@@ -1,0 +1,277 @@
+"""The dask engine: tasks cut into chunks sized by measured time, run on a dask cluster.
+
+``--cluster local:N`` starts (and closes) a LocalCluster of N single-threaded worker processes;
+``--cluster tcp://host:8786`` joins a running scheduler. Each chunk carries the circuit text (not
+a detector error model, not a scattered future): a worker compiles sampler and decoder once per
+circuit and keeps the last few. The chunk id is fixed when a chunk is submitted, so a chunk that
+dask reruns after losing a worker is still written, and counted, once.
+"""
+
+from __future__ import annotations
+
+import collections
+import dataclasses
+import logging
+import re
+import threading
+import time
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+import sinter
+import stim
+
+from planner.errors import InputError
+from planner.manifest import detector_error_model_for
+from planner.store import new_chunk_id
+from planner.sweep import StoppingRule
+
+if TYPE_CHECKING:
+    from rich.console import Console
+
+    from planner.sampling import ChunkSink, WorkItem
+
+FIRST_CHUNK_SHOTS = 200  # before anything is measured: small, so the first timing comes fast
+FIRST_CHUNK_S = 1.0  # target seconds of work per chunk, doubling per finished chunk of a task ...
+MAX_CHUNK_S = 16.0  # ... up to this
+IN_FLIGHT_PER_WORKER = 2
+CACHE_CIRCUITS = 8
+RESUBMITS = 3  # a chunk whose workers all died (KilledWorker) is resubmitted, same chunk id
+
+_ADDRESS = re.compile(r"^(?:(?:tcp|tls|ucx|ws|wss|inproc)://)?[\w.\-\[\]:]+:\d{1,5}$")
+
+
+@dataclasses.dataclass(frozen=True)
+class ClusterSpec:
+    """Either a LocalCluster size or a scheduler address."""
+
+    local_workers: int | None = None
+    address: str | None = None
+
+
+def parse_cluster(text: str) -> ClusterSpec:
+    """``local:N`` or a scheduler address (``tcp://host:8786``, ``host:8786``).
+
+    >>> parse_cluster("local:2"), parse_cluster("tcp://10.0.0.5:8786").address
+    (ClusterSpec(local_workers=2, address=None), 'tcp://10.0.0.5:8786')
+    """
+    text = text.strip()
+    if text.startswith("local"):
+        m = re.fullmatch(r"local:(\d+)", text)
+        if not m or int(m[1]) < 1:
+            raise InputError(f"--cluster: {text!r}: use local:N with N >= 1 worker processes")
+        return ClusterSpec(local_workers=int(m[1]))
+    if not _ADDRESS.match(text):
+        raise InputError(f"--cluster: {text!r} is neither local:N nor a scheduler address "
+                         "like tcp://host:8786")
+    return ClusterSpec(address=text)
+
+
+# ---------------------------------------------------------------------------------------------
+# worker side
+
+
+@dataclasses.dataclass(frozen=True)
+class ChunkResult:
+    chunk_id: str
+    shots: int
+    errors: int
+    discards: int
+    seconds: float
+
+
+_cache: collections.OrderedDict[tuple[str, str], tuple[Any, Any]] = collections.OrderedDict()
+_cache_lock = threading.Lock()
+
+
+def _compiled(strong_id: str, circuit_text: str, decoder: str) -> tuple[Any, Any]:
+    key = (strong_id, decoder)
+    with _cache_lock:
+        hit = _cache.get(key)
+        if hit is not None:
+            _cache.move_to_end(key)
+            return hit
+    circuit = stim.Circuit(circuit_text)
+    dem = detector_error_model_for(circuit)
+    compiled = (circuit.compile_detector_sampler(),
+                sinter.BUILT_IN_DECODERS[decoder].compile_decoder_for_dem(dem=dem))
+    with _cache_lock:
+        _cache[key] = compiled
+        while len(_cache) > CACHE_CIRCUITS:
+            _cache.popitem(last=False)
+    return compiled
+
+
+def sample_chunk(*, chunk_id: str, strong_id: str, circuit_text: str, decoder: str,
+                 shots: int) -> ChunkResult:
+    """Runs on a worker: sample ``shots`` shots, decode, count wrong observable predictions.
+
+    ``seconds`` is the time spent sampling and decoding (compiling is not counted, as in sinter).
+    """
+    sampler, compiled_decoder = _compiled(strong_id, circuit_text, decoder)
+    t0 = time.monotonic()
+    dets, obs = sampler.sample(shots=shots, bit_packed=True, separate_observables=True)
+    predictions = compiled_decoder.decode_shots_bit_packed(bit_packed_detection_event_data=dets)
+    errors = int(np.count_nonzero(np.any(predictions[:, : obs.shape[1]] != obs, axis=1)))
+    return ChunkResult(chunk_id=chunk_id, shots=int(shots), errors=errors, discards=0,
+                       seconds=time.monotonic() - t0)
+
+
+# ---------------------------------------------------------------------------------------------
+# client side
+
+
+@dataclasses.dataclass
+class _Progress:
+    """Mutable bookkeeping for one task on the client."""
+
+    item: WorkItem
+    text: str
+    shots: int = 0
+    errors: int = 0
+    seconds: float = 0.0
+    chunks: int = 0
+    in_flight: dict[str, int] = dataclasses.field(default_factory=dict)  # chunk id -> shots
+
+    @property
+    def met(self) -> bool:
+        return self.shots >= self.item.shots_left or self.errors >= self.item.errors_left
+
+    def next_chunk_shots(self) -> int:
+        """Shots for the next chunk (0: nothing more to submit)."""
+        if self.met:
+            return 0
+        unclaimed = self.item.shots_left - self.shots - sum(self.in_flight.values())
+        if unclaimed <= 0:
+            return 0
+        if self.shots == 0 or self.seconds <= 0:
+            want = FIRST_CHUNK_SHOTS
+        else:
+            aim_s = min(MAX_CHUNK_S, FIRST_CHUNK_S * 2 ** self.chunks)
+            want = int(aim_s * self.shots / self.seconds)
+        if self.errors:
+            # stay near the error budget: the shots still needed once the chunks in flight are
+            # counted at the measured error rate (plus 10%); none when those should suffice
+            rate = self.errors / self.shots
+            needed = (self.item.errors_left - self.errors) / rate - sum(self.in_flight.values())
+            if needed <= 0:
+                return 0
+            want = min(want, int(1.1 * needed) + 1)
+        return max(1, min(want, unclaimed))
+
+
+@contextmanager
+def connect(spec: ClusterSpec, console: Console) -> Iterator[Any]:
+    """A dask Client for ``spec``; a LocalCluster is started here and closed on exit."""
+    from distributed import Client, LocalCluster
+
+    if spec.local_workers is not None:
+        console.print(f"starting a local dask cluster: {spec.local_workers} worker processes, "
+                      "1 thread each")
+        with LocalCluster(n_workers=spec.local_workers, threads_per_worker=1, processes=True,
+                          dashboard_address=None, silence_logs=logging.ERROR) as cluster, \
+                Client(cluster) as client:
+            yield client
+        return
+    try:
+        client = Client(spec.address, timeout="20s")
+    except (OSError, TimeoutError) as exc:
+        raise InputError(f"--cluster: cannot reach a dask scheduler at {spec.address} ({exc})") from None
+    try:
+        if not client.scheduler_info().get("workers"):
+            console.print(f"waiting for dask workers to join {spec.address} ...")
+            client.wait_for_workers(1)
+        yield client
+    finally:
+        client.close()
+
+
+def _workers(client: Any) -> int:
+    return max(1, len(client.scheduler_info().get("workers", {})))
+
+
+def run_on_cluster(items: Sequence[WorkItem], *, spec: str | ClusterSpec, rule: StoppingRule,
+                   sink: ChunkSink, console: Console) -> None:
+    """Sample ``items`` on a dask cluster until each meets what it has left of ``rule``.
+
+    At most ~2 chunks per worker are in flight; results are written in completion order.
+    """
+    if isinstance(spec, str):
+        spec = parse_cluster(spec)
+    with connect(spec, console) as client:
+        _drive(client, items, sink)
+
+
+def _drive(client: Any, items: Sequence[WorkItem], sink: ChunkSink) -> None:
+    from distributed import as_completed
+
+    tasks = [_Progress(item=it, text=str(it.task.circuit)) for it in items]  # largest first
+    futures: dict[str, tuple[Any, _Progress, int]] = {}  # chunk id -> (future, task, attempt)
+    written: set[str] = set()
+    done = as_completed(with_results=False)
+
+    def submit(tp: _Progress, shots: int, chunk_id: str, attempt: int) -> None:
+        fut = client.submit(sample_chunk, chunk_id=chunk_id, strong_id=tp.item.strong_id,
+                            circuit_text=tp.text, decoder=str(tp.item.task.decoder), shots=shots,
+                            key=f"planner-chunk-{chunk_id}-{attempt}", pure=False,
+                            priority=tp.item.size)
+        tp.in_flight[chunk_id] = shots
+        futures[chunk_id] = (fut, tp, attempt)
+        done.add(fut)
+
+    def fill() -> None:
+        slots = IN_FLIGHT_PER_WORKER * _workers(client) - len(futures)
+        while slots > 0:
+            # the open task with the fewest chunks in flight, larger circuits first on ties
+            open_tasks = [(len(tp.in_flight), k, tp) for k, tp in enumerate(tasks)]
+            open_tasks = [(n, k, tp) for n, k, tp in open_tasks if tp.next_chunk_shots() > 0]
+            if not open_tasks:
+                return
+            _, _, tp = min(open_tasks, key=lambda e: (e[0], e[1]))
+            submit(tp, tp.next_chunk_shots(), new_chunk_id(), 0)
+            slots -= 1
+
+    fill()
+    for fut in done:
+        chunk_id = next((c for c, (f, _, _) in futures.items() if f is fut), None)
+        if chunk_id is None:  # cancelled and forgotten already
+            continue
+        _, tp, attempt = futures.pop(chunk_id)
+        shots = tp.in_flight.pop(chunk_id)
+        if fut.status == "cancelled":
+            continue
+        try:
+            res: ChunkResult = fut.result()
+        except Exception as exc:  # noqa: BLE001 - lost workers surface here; anything else re-raises
+            if type(exc).__name__ in ("KilledWorker", "CommClosedError") and attempt < RESUBMITS:
+                submit(tp, shots, chunk_id, attempt + 1)
+                continue
+            _cancel_all(futures)
+            raise
+        finally:
+            fut.release()
+        if res.chunk_id not in written:  # a chunk that somehow came back twice counts once
+            written.add(res.chunk_id)
+            tp.shots += res.shots
+            tp.errors += res.errors
+            tp.seconds += res.seconds
+            tp.chunks += 1
+            sink(sinter.TaskStats(strong_id=tp.item.strong_id, decoder=str(tp.item.task.decoder),
+                                  json_metadata=tp.item.task.json_metadata, shots=res.shots,
+                                  errors=res.errors, discards=res.discards, seconds=res.seconds),
+                 res.chunk_id)
+        if tp.met and tp.in_flight:
+            # the rule is met: chunks still running for this task would only overshoot
+            for c in list(tp.in_flight):
+                f, _, _ = futures.pop(c)
+                tp.in_flight.pop(c)
+                f.cancel()
+        fill()
+
+
+def _cancel_all(futures: dict[str, tuple[Any, Any, int]]) -> None:
+    for f, _, _ in futures.values():
+        f.cancel()
+    futures.clear()

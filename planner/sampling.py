@@ -1,0 +1,265 @@
+"""Sampling: top every task up to the stopping rule, locally with sinter, on a dask cluster, or
+as one share of a sharded job; every finished chunk goes to the store as its own row.
+
+Entry points are import-safe (sinter starts its workers with ``spawn``): nothing runs at import.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+import re
+import time
+from collections.abc import Callable, Sequence
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import sinter
+from rich.console import Console
+from rich.progress import BarColumn, Progress, TaskProgressColumn, TextColumn, TimeRemainingColumn
+
+from planner.errors import InputError
+from planner.manifest import Manifest, prepare_out_dir, resolved_task
+from planner.store import SampleStore, sharded_name
+from planner.sweep import StoppingRule
+
+if TYPE_CHECKING:
+    from planner.config import Target
+
+#: receives one finished chunk: its stats and its chunk id (None: the store makes one)
+ChunkSink = Callable[[sinter.TaskStats, str | None], None]
+
+
+@dataclasses.dataclass(frozen=True)
+class WorkItem:
+    """A task with what it still needs under the stopping rule (shots and errors left)."""
+
+    task: sinter.Task  # detector error model filled in
+    strong_id: str
+    shots_left: int
+    errors_left: int
+
+    @property
+    def size(self) -> int:
+        """Rough cost per shot: detectors (for ordering largest circuits first)."""
+        return self.task.circuit.num_detectors
+
+
+@dataclasses.dataclass(frozen=True)
+class SweepSummary:
+    """What one ``run_sweep`` call did. Counts are for this job's tasks only."""
+
+    tasks: int
+    already_done: int
+    sampled_tasks: int
+    new_shots: int
+    new_errors: int
+    new_chunks: int
+    wall_seconds: float
+    complete: bool
+    shard_file: Path | None
+    totals: tuple[sinter.TaskStats, ...]
+
+
+def parse_shard(text: str) -> tuple[int, int]:
+    """``"K/N"`` (1 <= K <= N) to ``(K, N)``; bad syntax is an InputError.
+
+    >>> parse_shard("2/5")
+    (2, 5)
+    """
+    m = re.fullmatch(r"\s*(\d+)\s*/\s*(\d+)\s*", text)
+    if not m or not (1 <= int(m[1]) <= int(m[2])):
+        raise InputError(f"--shard: {text!r} is not K/N with 1 <= K <= N (e.g. 1/4 ... 4/4)")
+    return int(m[1]), int(m[2])
+
+
+def shard_share(strong_ids: Sequence[str], shard: tuple[int, int]) -> set[str]:
+    """The strong ids job K of N takes: every N-th id in sorted order, starting at K-1.
+
+    Disjoint across K and together covering all ids, whatever order the tasks came in.
+
+    >>> sorted(shard_share(["c", "a", "b"], (1, 2))), sorted(shard_share(["c", "a", "b"], (2, 2)))
+    (['a', 'c'], ['b'])
+    """
+    k, n = shard
+    if not 1 <= k <= n:
+        raise ValueError(f"shard {k}/{n} out of range")
+    return {sid for i, sid in enumerate(sorted(set(strong_ids))) if i % n == k - 1}
+
+
+def remaining(stats: sinter.TaskStats | None, rule: StoppingRule) -> tuple[int, int]:
+    """(shots left, errors left) before ``rule`` is met; a met rule gives (0, 0).
+
+    >>> remaining(None, StoppingRule(max_errors=10, max_shots=100))
+    (100, 10)
+    """
+    shots = stats.shots if stats else 0
+    errors = stats.errors if stats else 0
+    if shots >= rule.max_shots or errors >= rule.max_errors:
+        return 0, 0
+    return rule.max_shots - shots, rule.max_errors - errors
+
+
+def default_workers() -> int:
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on Linux
+        return os.cpu_count() or 1
+
+
+class SweepProgress:
+    """One progress bar on stderr: fraction of the stopping rule reached, summed over tasks."""
+
+    def __init__(self, items: Sequence[WorkItem], rule: StoppingRule, console: Console) -> None:
+        self.rule = rule
+        self.start = {it.strong_id: (rule.max_shots - it.shots_left, rule.max_errors - it.errors_left)
+                      for it in items}
+        self.now = dict(self.start)
+        self.shots = 0
+        self.errors = 0
+        self.t0 = time.monotonic()
+        self._bar = Progress(TextColumn("[bold]sampling[/]"), BarColumn(), TaskProgressColumn(),
+                             TextColumn("{task.fields[counts]}"), TimeRemainingColumn(),
+                             console=console, disable=console.quiet, transient=False)
+        self._id = self._bar.add_task("sweep", total=float(len(items)), counts="",
+                                      completed=self._done())
+
+    def _fraction(self, shots: int, errors: int) -> float:
+        return min(1.0, max(shots / self.rule.max_shots, errors / self.rule.max_errors))
+
+    def _done(self) -> float:
+        return sum(self._fraction(s, e) for s, e in self.now.values())
+
+    def add(self, stats: sinter.TaskStats) -> None:
+        s, e = self.now.get(stats.strong_id, (0, 0))
+        self.now[stats.strong_id] = (s + stats.shots, e + stats.errors)
+        self.shots += stats.shots
+        self.errors += stats.errors
+        rate = self.shots / max(time.monotonic() - self.t0, 1e-9)
+        left = sum(1 for s, e in self.now.values() if self._fraction(s, e) < 1.0)
+        self._bar.update(self._id, completed=self._done(),
+                         counts=f"{self.shots:,} shots, {self.errors:,} errors, {rate:,.0f} shots/s, "
+                                f"{left} tasks left")
+
+    def __enter__(self) -> SweepProgress:
+        self._bar.start()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self._bar.stop()
+
+
+def run_local(items: Sequence[WorkItem], *, workers: int, sink: ChunkSink) -> None:
+    """Sample with ``sinter.iter_collect``, each task capped at what it has left; every stats
+    entry sinter reports (one finished batch) goes to ``sink`` at once."""
+    tasks = [_capped(it) for it in items]
+    for progress in sinter.iter_collect(num_workers=workers, tasks=tasks, hint_num_tasks=len(tasks)):
+        for stats in progress.new_stats:
+            if stats.shots:
+                sink(stats, None)
+
+
+def _capped(item: WorkItem) -> sinter.Task:
+    t = item.task
+    return sinter.Task(circuit=t.circuit, decoder=t.decoder, detector_error_model=t.detector_error_model,
+                       json_metadata=t.json_metadata,
+                       collection_options=sinter.CollectionOptions(max_shots=item.shots_left,
+                                                                   max_errors=item.errors_left))
+
+
+def _out_dir_of(store: SampleStore) -> Path:
+    return store.root if store.samples_dir != store.root else store.samples_dir.parent
+
+
+def run_sweep(tasks: Sequence[sinter.Task], *, store: SampleStore, rule: StoppingRule,
+              workers: int | None = None, cluster: str | None = None,
+              shard: tuple[int, int] | None = None, console: Console | None = None,
+              target: Target | None = None, budget: str | None = None) -> SweepSummary:
+    """Top every task up to ``rule``, counting what ``store`` already holds.
+
+    ``cluster``: ``"local:N"`` or a dask scheduler address (see :mod:`planner.cluster`).
+    ``shard``: ``(K, N)`` to take job K's share of the tasks and write ``shard-K-of-N.csv``.
+    ``target``: when given, the out directory's manifest and target copy are written (or
+    checked: another target or other versions are refused). Running again when every task
+    meets the rule samples nothing and says so.
+    """
+    console = console if console is not None else Console(stderr=True)
+    if shard is not None and cluster is not None:
+        raise InputError("--shard and --cluster cannot be combined: a shard job samples locally")
+    if workers is not None and workers < 1:
+        raise InputError(f"--workers: {workers} is not allowed (>= 1)")
+    resolved = [resolved_task(t) for t in tasks]
+    ids = [t.strong_id() for t in resolved]
+    if len(set(ids)) != len(ids):
+        raise ValueError("two tasks have the same strong id (identical circuit, decoder and metadata)")
+    if target is not None:
+        manifest = Manifest.for_sweep(target_sha256=target.sha256, target_name=target.name,
+                                      tasks=resolved, budget=budget, max_errors=rule.max_errors,
+                                      max_shots=rule.max_shots)
+        prepare_out_dir(_out_dir_of(store), target_bytes=_target_bytes(target), manifest=manifest)
+    if shard is not None:
+        mine = shard_share(ids, shard)
+        keep = [k for k, sid in enumerate(ids) if sid in mine]
+        resolved, ids = [resolved[k] for k in keep], [ids[k] for k in keep]
+    t0 = time.monotonic()
+    store.repair()
+    have = store.stats_by_id()
+    items = []
+    for task, sid in zip(resolved, ids):
+        shots_left, errors_left = remaining(have.get(sid), rule)
+        if shots_left:
+            items.append(WorkItem(task=task, strong_id=sid, shots_left=shots_left, errors_left=errors_left))
+    items.sort(key=lambda it: -it.size)
+    where = f" (shard {shard[0]}/{shard[1]})" if shard else ""
+    if not items:
+        console.print(f"all {len(ids)} tasks{where} already meet the stopping rule "
+                      f"({rule.max_errors} errors or {rule.max_shots:,} shots): nothing to sample")
+        return SweepSummary(tasks=len(ids), already_done=len(ids), sampled_tasks=0, new_shots=0,
+                            new_errors=0, new_chunks=0, wall_seconds=time.monotonic() - t0,
+                            complete=True, shard_file=None, totals=_totals(have, ids))
+    console.print(f"sampling {len(items)} of {len(ids)} tasks{where}; "
+                  f"{len(ids) - len(items)} already meet the stopping rule")
+    counts = {"shots": 0, "errors": 0, "chunks": 0}
+    shard_name = sharded_name(index=shard[0], count=shard[1]) if shard else None
+    with store.writer(shard_name) as writer, SweepProgress(items, rule, console) as bar:
+
+        def sink(stats: sinter.TaskStats, chunk_id: str | None) -> None:
+            writer.append(stats, chunk_id=chunk_id)
+            counts["shots"] += stats.shots
+            counts["errors"] += stats.errors
+            counts["chunks"] += 1
+            bar.add(stats)
+
+        if cluster is not None:
+            from planner.cluster import run_on_cluster
+
+            run_on_cluster(items, spec=cluster, rule=rule, sink=sink, console=console)
+        else:
+            run_local(items, workers=workers or default_workers(), sink=sink)
+        shard_file = writer.path
+    after = store.stats_by_id()
+    complete = all(remaining(after.get(sid), rule) == (0, 0) for sid in ids)
+    wall = time.monotonic() - t0
+    console.print(f"sampled {counts['shots']:,} shots ({counts['errors']:,} errors) in "
+                  f"{counts['chunks']} chunks, {wall:.1f} s -> {shard_file}"
+                  + ("" if complete else "; some tasks are not yet complete: run again to top up"))
+    return SweepSummary(tasks=len(ids), already_done=len(ids) - len(items), sampled_tasks=len(items),
+                        new_shots=counts["shots"], new_errors=counts["errors"],
+                        new_chunks=counts["chunks"], wall_seconds=wall, complete=complete,
+                        shard_file=shard_file, totals=_totals(after, ids))
+
+
+def _totals(have: dict[str, sinter.TaskStats], ids: Sequence[str]) -> tuple[sinter.TaskStats, ...]:
+    return tuple(have[sid] for sid in ids if sid in have)
+
+
+def _target_bytes(target: Target) -> bytes:
+    import hashlib
+
+    try:
+        data = Path(target.source).read_bytes()
+    except OSError as exc:
+        raise InputError(f"{target.source}: cannot read the target file to copy it ({exc})") from None
+    if hashlib.sha256(data).hexdigest() != target.sha256:
+        raise InputError(f"{target.source}: changed while the sweep was being planned; run again")
+    return data
