@@ -1,0 +1,108 @@
+"""Planning: turning fits into requirements, roadmaps and sensitivities (never prints).
+
+One computation for everyone: :func:`answer_all` gives the fits, the response model, the
+requirements for the goal (with bootstrap intervals), the roadmap and the sensitivity.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Sequence
+from pathlib import Path
+from typing import Any
+
+import sinter
+
+from planner.config import Target, load_target
+from planner.errors import InputError
+from planner.fits import CONFIDENCE, FitReport, fit_stats
+from planner.planning.ask import (
+    FactorAnswer,
+    MixAnswer,
+    Requirements,
+    TodayAnswer,
+    cheapest_mix,
+    requirements,
+    smallest_distance,
+)
+from planner.planning.calculator import CalculatorAnswer, calculate
+from planner.planning.model import (
+    FitQuality,
+    ResponseModel,
+    fit_model,
+    largest_distance_within,
+    physical_qubits,
+)
+from planner.planning.roadmap import Roadmap, build_roadmap
+from planner.planning.sensitivity import Sensitivity, sensitivity
+from planner.planning.uncertainty import Uncertainty, bootstrap, with_intervals
+
+__all__ = [
+    "Answers", "CalculatorAnswer", "FactorAnswer", "FitQuality", "MixAnswer", "Requirements",
+    "ResponseModel", "Roadmap", "Sensitivity", "TodayAnswer", "Uncertainty", "answer_all",
+    "build_roadmap", "calculate", "cheapest_mix", "fit_model", "largest_distance_within",
+    "load_out_dir", "physical_qubits", "requirements", "sensitivity", "smallest_distance",
+]
+
+
+@dataclasses.dataclass(frozen=True)
+class Answers:
+    """Everything planned from one out directory. ``model`` and the answers built on it are None
+    when no scale point has a Lambda (``notes`` says why)."""
+
+    fits: FitReport
+    model: ResponseModel | None
+    requirements: Requirements | None
+    roadmap: Roadmap | None
+    sensitivity: Sensitivity | None
+    uncertainty: Uncertainty | None
+    notes: tuple[str, ...] = ()
+
+    def to_json(self) -> dict[str, Any]:
+        j = lambda x: x.to_json() if x is not None else None  # noqa: E731
+        return {"confidence": CONFIDENCE, "fits": self.fits.to_json(), "model": j(self.model),
+                "requirements": j(self.requirements), "roadmap": j(self.roadmap),
+                "sensitivity": j(self.sensitivity), "uncertainty": j(self.uncertainty),
+                "notes": list(self.notes)}
+
+
+def no_model_reason(report: FitReport) -> str:
+    if len(report.sampled_distances) < 2:
+        return (f"only distance {report.sampled_distances[0]} sampled: no Lambda, so no model and no "
+                "requirements (sample at least two distances)")
+    return "no scale point has a Lambda: no model and no requirements"
+
+
+def answer_all(target: Target, stats: Sequence[sinter.TaskStats], *, seed: int = 0, replicas: int = 200,
+               eps_target: float | None = None, distance: int | None = None,
+               qubits: int | None = None) -> Answers:
+    """Fits, model, requirements (with bootstrap intervals), roadmap and sensitivity."""
+    report = fit_stats(stats)
+    if not report.tasks:
+        raise InputError("no samples with shots to fit")
+    if not any(lf.suppression is not None for lf in report.lambdas):
+        return Answers(report, None, None, None, None, None, (no_model_reason(report),))
+    model = fit_model(report)
+    req = requirements(model, target, eps_target=eps_target, distance=distance, qubits=qubits, report=report)
+    unc = bootstrap(stats, report, model, req, replicas=replicas, seed=seed) if replicas > 0 else None
+    if unc is not None:
+        req = with_intervals(req, unc)
+    rm = build_roadmap(target, model, seed=seed, models=unc.models if unc else (), eps_target=eps_target)
+    return Answers(report, model, req, rm, sensitivity(model, target), unc)
+
+
+def load_out_dir(directory: str | Path) -> tuple[Target, list[sinter.TaskStats]]:
+    """The target copy and the summed samples of an out directory (InputError if unusable)."""
+    from planner.store import SampleStore
+
+    root = Path(directory)
+    if not root.is_dir():
+        raise InputError(f"{root}: no such out directory (run `planner sweep` or `planner run` first)")
+    tpath = root / "target.toml"
+    if not tpath.is_file():
+        raise InputError(f"{tpath}: missing: {root} is not a planner out directory")
+    target = load_target(tpath)
+    stats = [s for s in SampleStore(root).stats() if s.shots > 0]
+    if not stats:
+        raise InputError(f"{root / 'samples'}: no samples yet (run `planner sweep {tpath}` first)")
+    return target, stats

@@ -1,0 +1,295 @@
+"""Inverting the response model: what each component must reach for a goal at a distance.
+
+Answers are stated as scale factors on today's errors (1 = today, 0.5 = half, 0 = perfect),
+solved exactly on the model (root finding and constrained minimisation with scipy). Anything
+outside the sampled scale range is flagged as an extrapolation and by how much.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+from scipy.optimize import brentq, minimize
+
+from planner.config import COMPONENTS, Target
+from planner.errors import InputError
+from planner.fits import FitReport, Interval
+from planner.planning.model import ResponseModel, largest_distance_within, physical_qubits
+
+#: largest distance any search goes to (a code this big is never the practical answer)
+MAX_DISTANCE = 1001
+#: the cheapest-mix search lets a component improve at most 2^-MAX_HALVINGS
+MAX_HALVINGS = 30.0
+
+
+def _ivj(iv: Interval | None) -> dict[str, Any] | None:
+    return iv.to_json() if iv is not None else None
+
+
+@dataclasses.dataclass(frozen=True)
+class FactorAnswer:
+    """The factor one lever (``joint`` or a component alone) needs to reach the goal."""
+
+    lever: str
+    reachable: bool
+    factor: float | None
+    #: Lambda at the solution, or (not reachable) with the component perfect
+    suppression: float
+    note: str = ""
+    extrapolation: tuple[str, ...] = ()
+    factor_interval: Interval | None = None
+
+    def to_json(self) -> dict[str, Any]:
+        return {"lever": self.lever, "reachable": self.reachable, "factor": self.factor,
+                "suppression_factor": _fin(self.suppression), "note": self.note,
+                "extrapolation": list(self.extrapolation), "factor_interval": _ivj(self.factor_interval)}
+
+
+def _fin(x: float | None) -> float | None:
+    return None if x is None or not math.isfinite(x) else float(x)
+
+
+@dataclasses.dataclass(frozen=True)
+class MixAnswer:
+    """The cheapest set of factors: minimises sum_c cost_c * log2(1/s_c) subject to the goal."""
+
+    reachable: bool
+    scales: dict[str, float]
+    cost: float | None
+    suppression: float
+    logical_error_per_cycle: float
+    note: str = ""
+    extrapolation: tuple[str, ...] = ()
+
+    def to_json(self) -> dict[str, Any]:
+        return {"reachable": self.reachable, "scales": dict(self.scales), "cost_halvings": self.cost,
+                "suppression_factor": _fin(self.suppression),
+                "logical_error_per_cycle": _fin(self.logical_error_per_cycle), "note": self.note,
+                "extrapolation": list(self.extrapolation)}
+
+
+@dataclasses.dataclass(frozen=True)
+class TodayAnswer:
+    """Today's device: Lambda (model and fitted) and the smallest code meeting the goal."""
+
+    suppression_model: float
+    suppression_fitted: Interval | None
+    above_threshold: bool
+    distance: int | None
+    physical_qubits: int | None
+    within_max_qubits: bool
+    logical_error_per_cycle: float  # at the requested distance, model
+    note: str = ""
+    distance_interval: Interval | None = None
+
+    def to_json(self) -> dict[str, Any]:
+        return {"suppression_factor_model": _fin(self.suppression_model),
+                "suppression_factor_fitted": _ivj(self.suppression_fitted),
+                "above_threshold": self.above_threshold, "distance": self.distance,
+                "physical_qubits": self.physical_qubits, "within_max_qubits": self.within_max_qubits,
+                "logical_error_per_cycle_at_distance": _fin(self.logical_error_per_cycle),
+                "note": self.note, "distance_interval": _ivj(self.distance_interval)}
+
+
+@dataclasses.dataclass(frozen=True)
+class Requirements:
+    """Everything ``planner ask`` answers for one goal at one distance."""
+
+    eps_target: float
+    distance: int
+    physical_qubits: int
+    distance_source: str
+    required_suppression: float
+    joint: FactorAnswer
+    components: tuple[FactorAnswer, ...]
+    mix: MixAnswer
+    today: TodayAnswer
+    model_form: str
+    model_quality: str
+    notes: tuple[str, ...] = ()
+
+    def to_json(self) -> dict[str, Any]:
+        return {"target_logical_error_per_cycle": self.eps_target, "distance": self.distance,
+                "physical_qubits": self.physical_qubits, "distance_source": self.distance_source,
+                "required_suppression_factor": _fin(self.required_suppression),
+                "joint": self.joint.to_json(), "components": [c.to_json() for c in self.components],
+                "cheapest_mix": self.mix.to_json(), "today": self.today.to_json(),
+                "model": {"form": self.model_form, "quality": self.model_quality},
+                "notes": list(self.notes)}
+
+
+# ---------------------------------------------------------------------------------------------
+
+
+def choose_distance(target: Target, *, distance: int | None = None, qubits: int | None = None) -> tuple[int, str]:
+    """The distance to answer for, and where it came from."""
+    if distance is not None and qubits is not None:
+        raise InputError("give --distance or --qubits, not both")
+    if distance is not None:
+        check_distance(distance)
+        return distance, "given"
+    limit, source = (qubits, "from --qubits") if qubits is not None else \
+        (target.goal.max_qubits, "from goal.max_qubits")
+    d = largest_distance_within(limit)
+    if d is None:
+        raise InputError(f"{limit} qubits is fewer than the 17 a distance-3 code needs")
+    return d, f"{source} ({limit})"
+
+
+def check_distance(distance: int) -> None:
+    if distance < 3 or distance % 2 == 0:
+        raise InputError(f"distance {distance} is not allowed: odd integers >= 3")
+
+
+def check_rate(name: str, value: float) -> None:
+    if not (0 < value < 0.5):
+        raise InputError(f"{name} {value!r} is not allowed: a per-cycle error rate 0 < eps < 0.5")
+
+
+def _scaled(comp: str, f: float) -> dict[str, float]:
+    return {c: (f if comp in ("joint", c) else 1.0) for c in COMPONENTS}
+
+
+def smallest_distance(model: ResponseModel, scales: Mapping[str, float] | None, eps_target: float) -> int | None:
+    """Smallest odd distance whose predicted eps meets ``eps_target`` (None if none up to
+    :data:`MAX_DISTANCE` or the point is above threshold)."""
+    if model.suppression(scales) <= 1:
+        return 3 if model.ln_eps(scales, 3) <= math.log(eps_target) else None
+    ln_t = math.log(eps_target)
+    for d in range(3, MAX_DISTANCE + 1, 2):
+        if model.ln_eps(scales, d) <= ln_t:
+            return d
+    return None
+
+
+def _solve_lever(model: ResponseModel, lever: str, *, distance: int, eps_target: float) -> FactorAnswer:
+    ln_t = math.log(eps_target)
+    h = lambda f: model.ln_eps(_scaled(lever, f), distance) - ln_t  # noqa: E731
+    if h(1.0) <= 0:
+        # met today: report the headroom (how much worse this lever could get)
+        top = 1.0
+        while top < 1024 and h(top * 2) <= 0:
+            top *= 2
+        if top >= 1024:
+            return FactorAnswer(lever, True, 1.0, model.suppression(_scaled(lever, 1.0)),
+                                note="goal already met today")
+        f = brentq(h, top, top * 2, xtol=1e-12, rtol=1e-10)
+        return FactorAnswer(lever, True, f, model.suppression(_scaled(lever, f)),
+                            note=f"goal already met today; headroom: {lever} may get x{f:.2f} worse",
+                            extrapolation=tuple(model.extrapolation(_scaled(lever, f))))
+    lo = 0.0 if lever != "joint" else 1e-12
+    if not h(lo) <= 0:
+        lam = model.suppression(_scaled(lever, 0.0))
+        why = (f"not reachable alone: with {lever} perfect, Lambda = {lam:.3g}" if lever != "joint"
+               else "not reachable: the model never meets the goal at this distance")
+        return FactorAnswer(lever, False, None, lam, note=why,
+                            extrapolation=tuple(model.extrapolation(_scaled(lever, 0.0))))
+    f = brentq(h, lo, 1.0, xtol=1e-14, rtol=1e-12)
+    return FactorAnswer(lever, True, f, model.suppression(_scaled(lever, f)),
+                        extrapolation=tuple(model.extrapolation(_scaled(lever, f))))
+
+
+def mix_cost(scales: Mapping[str, float], costs: Mapping[str, float]) -> float:
+    """sum_c cost_c * log2(1/s_c): the number of cost-weighted halvings of error.
+
+    >>> mix_cost({"gate_2q": 0.25, "readout": 0.5}, {"gate_2q": 1.0, "readout": 3.0})
+    5.0
+    """
+    return float(sum(costs.get(c, 1.0) * -math.log2(s) for c, s in scales.items() if s < 1))
+
+
+def cheapest_mix(model: ResponseModel, *, distance: int, eps_target: float, costs: Mapping[str, float],
+                 starts: tuple[dict[str, float], ...] = ()) -> MixAnswer:
+    """Minimise sum_c cost_c log2(1/s_c) over s_c in (0, 1] with eps_distance(s) <= eps_target."""
+    ln_t = math.log(eps_target)
+    today = {c: 1.0 for c in COMPONENTS}
+    if model.ln_eps(today, distance) <= ln_t:
+        return MixAnswer(True, today, 0.0, model.suppression(today),
+                         model.logical_error_per_cycle(today, distance), note="goal already met today")
+    levers = [c for c in COMPONENTS if model.weights[c] > 0 or model.curvature[c] > 0]
+    if not levers:
+        return MixAnswer(False, today, None, model.suppression(today), math.nan, note="model has no levers")
+    cost = np.array([costs.get(c, 1.0) for c in levers])
+
+    def scales_of(u: np.ndarray) -> dict[str, float]:
+        s = dict(today)
+        s.update({c: float(2.0 ** -ui) for c, ui in zip(levers, u)})
+        return s
+
+    def slack(u: np.ndarray) -> float:
+        return ln_t - model.ln_eps(scales_of(u), distance)
+
+    best: np.ndarray | None = None
+    x0s = [np.array([-math.log2(max(st.get(c, 1.0), 2 ** -MAX_HALVINGS)) for c in levers]) for st in starts]
+    x0s.append(np.full(len(levers), 1.0))
+    x0s.append(np.full(len(levers), 4.0))
+    for x0 in x0s:
+        r = minimize(lambda u: float(cost @ u), x0, jac=lambda u: cost, method="SLSQP",
+                     bounds=[(0.0, MAX_HALVINGS)] * len(levers),
+                     constraints=[{"type": "ineq", "fun": slack}], options={"maxiter": 200, "ftol": 1e-12})
+        u = np.clip(r.x, 0.0, MAX_HALVINGS)
+        if slack(u) >= -1e-9 and (best is None or cost @ u < cost @ best):
+            best = u
+    if best is None:
+        return MixAnswer(False, today, None, model.suppression(today), math.nan,
+                         note="not reachable: no mix of factors meets the goal at this distance")
+    # land exactly on the goal: pull the mix back along the line to today until the constraint binds
+    if slack(best) > 1e-12 and slack(best * 0) < 0:
+        t = brentq(lambda a: slack(best * a), 0.0, 1.0, xtol=1e-14)
+        best = best * t
+    s = scales_of(best)
+    s = {c: (1.0 if v > 1 - 1e-12 else v) for c, v in s.items()}
+    return MixAnswer(True, s, mix_cost(s, costs), model.suppression(s),
+                     model.logical_error_per_cycle(s, distance),
+                     extrapolation=tuple(model.extrapolation(s)))
+
+
+def required_suppression(model: ResponseModel, *, distance: int, eps_target: float) -> float:
+    """Lambda needed at ``distance`` with today's prefactor A: (A / eps)^(2 / (d + 1))."""
+    return math.exp((model.ln_prefactor(None) - math.log(eps_target)) * 2 / (distance + 1))
+
+
+def today_answer(model: ResponseModel, report: FitReport | None, *, distance: int, eps_target: float,
+                 max_qubits: int) -> TodayAnswer:
+    lam = model.suppression(None)
+    fitted = report.today().suppression if report is not None and report.today() else None
+    above = lam <= 1
+    d = smallest_distance(model, None, eps_target)
+    eps_at = model.logical_error_per_cycle(None, distance)
+    if above:
+        note = f"above threshold: Lambda = {lam:.3g} <= 1, a larger code does not help"
+        if d is not None:
+            note += f" (distance {d} already meets the goal)"
+    elif d is None:
+        note = f"goal not met by any distance up to {MAX_DISTANCE}"
+    else:
+        note = "" if physical_qubits(d) <= max_qubits else \
+            f"needs {physical_qubits(d)} qubits, more than goal.max_qubits = {max_qubits}"
+    return TodayAnswer(lam, fitted, above, d, physical_qubits(d) if d else None,
+                       bool(d and physical_qubits(d) <= max_qubits), eps_at, note)
+
+
+def requirements(model: ResponseModel, target: Target, *, eps_target: float | None = None,
+                 distance: int | None = None, qubits: int | None = None,
+                 report: FitReport | None = None) -> Requirements:
+    """All answers for one goal (default: the target's goal) at one distance."""
+    eps = float(eps_target if eps_target is not None else target.goal.logical_error_per_cycle)
+    check_rate("target", eps)
+    d, source = choose_distance(target, distance=distance, qubits=qubits)
+    joint = _solve_lever(model, "joint", distance=d, eps_target=eps)
+    comps = tuple(_solve_lever(model, c, distance=d, eps_target=eps) for c in COMPONENTS)
+    starts = tuple(_scaled(a.lever, a.factor) for a in (joint, *comps) if a.reachable and a.factor < 1)
+    mix = cheapest_mix(model, distance=d, eps_target=eps, costs={c: target.cost(c) for c in COMPONENTS},
+                       starts=starts)
+    notes = []
+    if model.unsampled:
+        notes.append("no own sweep axis, weight split evenly: " + ", ".join(model.unsampled))
+    return Requirements(eps, d, physical_qubits(d), source,
+                        required_suppression(model, distance=d, eps_target=eps), joint, comps, mix,
+                        today_answer(model, report, distance=d, eps_target=eps,
+                                     max_qubits=target.goal.max_qubits),
+                        model.form, model.quality.summary(), tuple(notes))

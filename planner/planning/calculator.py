@@ -1,0 +1,79 @@
+"""Calculator mode: distance and qubits from measured numbers, no sampling.
+
+From a measured Lambda and a measured logical error per cycle ``eps_D`` at distance D, the
+ansatz eps_d = A * Lambda^(-(d+1)/2) (Google Quantum AI, Nature 638, 920 (2025), eq. 1) gives
+eps_d = eps_D * Lambda^(-(d-D)/2) and A = eps_D * Lambda^((D+1)/2); a rotated surface code of
+distance d needs 2 d^2 - 1 physical qubits (same paper).
+
+>>> a = calculate(suppression=2.0, eps=1e-3, distance=5, eps_target=1e-6)
+>>> a.distance, a.physical_qubits, a.logical_error_per_cycle
+(25, 1249, 9.765625e-07)
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from typing import Any
+
+from planner.errors import InputError
+from planner.planning.ask import MAX_DISTANCE, check_distance, check_rate
+from planner.planning.model import physical_qubits
+
+
+@dataclasses.dataclass(frozen=True)
+class CalculatorAnswer:
+    suppression: float
+    eps_measured: float
+    measured_distance: int
+    eps_target: float
+    reachable: bool
+    distance: int | None
+    physical_qubits: int | None
+    logical_error_per_cycle: float | None
+    #: Lambda that would meet the target at the measured distance with the same prefactor A
+    required_suppression: float
+    prefactor: float
+    note: str = ""
+
+    def to_json(self) -> dict[str, Any]:
+        return {"distance": self.distance, "physical_qubits": self.physical_qubits,
+                "logical_error_per_cycle": self.logical_error_per_cycle, "reachable": self.reachable,
+                "required_lambda": self.required_suppression,
+                "required_lambda_at_distance": self.measured_distance,
+                "prefactor_a": self.prefactor, "lambda": self.suppression,
+                "measured_logical_error_per_cycle": self.eps_measured,
+                "target_logical_error_per_cycle": self.eps_target, "note": self.note}
+
+
+def calculate(*, suppression: float, eps: float, distance: int, eps_target: float) -> CalculatorAnswer:
+    """Smallest odd distance meeting ``eps_target`` from a measured Lambda and eps at ``distance``."""
+    if not (suppression > 0 and math.isfinite(suppression)):
+        raise InputError(f"--lambda {suppression!r} is not allowed: a suppression factor > 0")
+    check_rate("--eps", eps)
+    check_rate("--target", eps_target)
+    check_distance(distance)
+    k = (distance + 1) / 2
+    prefactor = eps * suppression**k
+    required = (prefactor / eps_target) ** (1 / k)
+    if suppression <= 1:
+        return CalculatorAnswer(suppression, eps, distance, eps_target, False, None, None, None,
+                                required, prefactor,
+                                note=f"not reachable: Lambda = {suppression:g} <= 1 means the device is "
+                                     "at or above threshold, so a larger code does not lower the error")
+    ln_ratio = math.log(eps / eps_target) / math.log(suppression)
+    d = max(3, distance + 2 * math.ceil(ln_ratio - 1e-12))
+    if d % 2 == 0:
+        d += 1
+    at = lambda dd: eps * suppression ** (-(dd - distance) / 2)  # noqa: E731
+    while d > 3 and at(d - 2) <= eps_target:  # guard against rounding at the boundary
+        d -= 2
+    while at(d) > eps_target * (1 + 1e-12):
+        d += 2
+    if d > MAX_DISTANCE:
+        return CalculatorAnswer(suppression, eps, distance, eps_target, False, None, None, None,
+                                required, prefactor,
+                                note=f"not reachable below distance {MAX_DISTANCE}: Lambda is too close to 1")
+    note = "goal already met at the measured distance" if eps <= eps_target else ""
+    return CalculatorAnswer(suppression, eps, distance, eps_target, True, d, physical_qubits(d), at(d),
+                            required, prefactor, note)

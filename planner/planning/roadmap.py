@@ -1,0 +1,230 @@
+"""Dates: when the goal is met at the improvement rates the team expects.
+
+A rate ``per_year = f`` removes the fraction f of a component's error each year:
+``s(t) = (1 - f)^t``; ``halving_years = h`` halves it every h years: ``s(t) = 2^(-t/h)``
+(t in years from ``roadmap.start``). Components without a rate stay at today's error. The goal
+is met at t when some odd distance within ``goal.max_qubits`` has eps_d(s(t)) <= goal. With a
+spread on the rates (1 sigma), rates are sampled (normal, clipped to the allowed range) and the
+dates come with a :data:`~planner.fits.CONFIDENCE` range; bootstrap models, when given, are
+paired with the samples so the range also covers the fit's uncertainty.
+
+>>> round(scale_at(per_year=0.2, halving_years=None, years=2.0), 4), scale_at(per_year=None, halving_years=2.0, years=4.0)
+(0.64, 0.25)
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+import math
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+import numpy as np
+
+from planner.config import COMPONENTS, Rate, Target
+from planner.fits import CONFIDENCE
+from planner.planning.ask import smallest_distance
+from planner.planning.model import ResponseModel, largest_distance_within, physical_qubits
+
+STEPS_PER_YEAR = {"quarter": 4, "year": 1}
+#: time resolution of the date search (steps per year) before interpolation
+SEARCH_PER_YEAR = 24
+
+
+def scale_at(*, per_year: float | None, halving_years: float | None, years: float | np.ndarray) -> Any:
+    """Scale factor after ``years`` at a rate (exactly one of per_year / halving_years, or neither)."""
+    if per_year is not None:
+        return (1 - per_year) ** np.asarray(years) if isinstance(years, np.ndarray) else (1 - per_year) ** years
+    if halving_years is not None:
+        return 2.0 ** (-np.asarray(years) / halving_years) if isinstance(years, np.ndarray) \
+            else 2.0 ** (-years / halving_years)
+    return np.ones_like(years) if isinstance(years, np.ndarray) else 1.0
+
+
+@dataclasses.dataclass(frozen=True)
+class RateSet:
+    """Central rates per component: ``per_year`` or ``halving_years`` (None = no improvement)."""
+
+    per_year: dict[str, float | None]
+    halving_years: dict[str, float | None]
+
+    @classmethod
+    def from_rates(cls, rates: Mapping[str, Rate]) -> RateSet:
+        return cls({c: (rates[c].per_year if c in rates else None) for c in COMPONENTS},
+                   {c: (rates[c].halving_years if c in rates else None) for c in COMPONENTS})
+
+    def scales(self, years: np.ndarray) -> np.ndarray:
+        """Scale factors, shape (len(years), 6)."""
+        return np.stack([scale_at(per_year=self.per_year[c], halving_years=self.halving_years[c],
+                                  years=years) for c in COMPONENTS], axis=1)
+
+    def faster(self, component: str, points: float) -> RateSet:
+        """The same rates with ``component`` removing ``points`` more of its error per year."""
+        f = self.per_year[component]
+        h = self.halving_years[component]
+        base = f if f is not None else (1 - 2 ** (-1 / h) if h is not None else 0.0)
+        per = dict(self.per_year)
+        hal = dict(self.halving_years)
+        per[component], hal[component] = min(base + points, 0.999), None
+        return RateSet(per, hal)
+
+    def sample(self, rates: Mapping[str, Rate], rng: np.random.Generator) -> RateSet:
+        per, hal = dict(self.per_year), dict(self.halving_years)
+        for c, r in rates.items():
+            if r.spread <= 0:
+                continue
+            if r.per_year is not None:
+                per[c] = float(np.clip(rng.normal(r.per_year, r.spread), 0.0, 0.999))
+            else:
+                hal[c] = float(max(rng.normal(r.halving_years, r.spread), 0.05))
+        return RateSet(per, hal)
+
+
+def years_to_date(start: dt.date, years: float) -> dt.date:
+    return start + dt.timedelta(days=round(years * 365.25))
+
+
+def first_crossing(years: np.ndarray, values: np.ndarray) -> float | None:
+    """First t where ``values`` (sampled at ``years``) drops to <= 0, linearly interpolated."""
+    idx = np.flatnonzero(values <= 0)
+    if idx.size == 0:
+        return None
+    i = int(idx[0])
+    if i == 0:
+        return float(years[0])
+    y0, y1 = values[i - 1], values[i]
+    return float(years[i - 1] + (years[i] - years[i - 1]) * y0 / (y0 - y1))
+
+
+def goal_years(model: ResponseModel, rates: RateSet, *, eps_target: float, max_distance: int,
+               horizon_years: float) -> float | None:
+    """Years until some odd d <= max_distance meets eps_target (None beyond the horizon)."""
+    t = np.linspace(0, horizon_years, int(horizon_years * SEARCH_PER_YEAR) + 1)
+    s = rates.scales(t)
+    # ln eps is linear in (d+1)/2, so the best distance is one of the two ends
+    best = np.minimum(model.ln_eps_array(s, 3), model.ln_eps_array(s, max_distance))
+    return first_crossing(t, best - math.log(eps_target))
+
+
+def milestone_years(model: ResponseModel, rates: RateSet, *, milestone: float, horizon_years: float) -> float | None:
+    t = np.linspace(0, horizon_years, int(horizon_years * SEARCH_PER_YEAR) + 1)
+    return first_crossing(t, milestone - model.suppression_array(rates.scales(t)))
+
+
+@dataclasses.dataclass(frozen=True)
+class RoadmapStep:
+    date: dt.date
+    years: float
+    scales: dict[str, float]
+    suppression: float
+    eps: dict[int, float]  # per candidate distance
+    distance: int | None  # smallest meeting the goal within max_qubits
+    physical_qubits: int | None
+
+    def to_json(self) -> dict[str, Any]:
+        return {"date": self.date.isoformat(), "years": self.years, "scales": dict(self.scales),
+                "suppression_factor": self.suppression if math.isfinite(self.suppression) else None,
+                "logical_error_per_cycle": {str(d): e for d, e in self.eps.items()},
+                "distance": self.distance, "physical_qubits": self.physical_qubits}
+
+
+@dataclasses.dataclass(frozen=True)
+class DatedEvent:
+    """When something happens: a central date and, with spreads, a range (None = beyond horizon)."""
+
+    what: str
+    date: dt.date | None
+    low: dt.date | None
+    high: dt.date | None
+    fraction_reached: float  # of sampled scenarios reaching it within the horizon
+
+    def to_json(self) -> dict[str, Any]:
+        iso = lambda d: d.isoformat() if d else None  # noqa: E731
+        return {"what": self.what, "date": iso(self.date), "low": iso(self.low), "high": iso(self.high),
+                "fraction_of_scenarios_reached": self.fraction_reached}
+
+
+@dataclasses.dataclass(frozen=True)
+class Roadmap:
+    start: dt.date
+    step: str
+    eps_target: float
+    max_qubits: int
+    candidate_distances: tuple[int, ...]
+    steps: tuple[RoadmapStep, ...]
+    goal: DatedEvent
+    milestones: tuple[DatedEvent, ...]
+    num_scenarios: int
+    note: str = ""
+
+    def to_json(self) -> dict[str, Any]:
+        return {"start": self.start.isoformat(), "step": self.step, "confidence": CONFIDENCE,
+                "target_logical_error_per_cycle": self.eps_target, "max_qubits": self.max_qubits,
+                "candidate_distances": list(self.candidate_distances),
+                "steps": [s.to_json() for s in self.steps], "goal": self.goal.to_json(),
+                "milestones": [m.to_json() for m in self.milestones],
+                "num_scenarios": self.num_scenarios, "note": self.note}
+
+
+def _candidates(max_d: int) -> tuple[int, ...]:
+    ds = list(range(3, max_d + 1, 2))
+    if len(ds) <= 5:
+        return tuple(ds)
+    pick = {ds[round(i * (len(ds) - 1) / 4)] for i in range(5)}
+    return tuple(sorted(pick))
+
+
+def _event(what: str, start: dt.date, central: float | None, sampled: Sequence[float | None]) -> DatedEvent:
+    reached = [x for x in sampled if x is not None]
+    frac = len(reached) / len(sampled) if sampled else (1.0 if central is not None else 0.0)
+    low = high = None
+    if sampled and reached:
+        q = (1 - CONFIDENCE) / 2
+        # unreached scenarios count as +inf: the high end is beyond the horizon if too many
+        arr = np.array([x if x is not None else np.inf for x in sampled])
+        lo_y, hi_y = np.quantile(arr, q), np.quantile(arr, 1 - q)
+        low = years_to_date(start, float(lo_y)) if np.isfinite(lo_y) else None
+        high = years_to_date(start, float(hi_y)) if np.isfinite(hi_y) else None
+    return DatedEvent(what, years_to_date(start, central) if central is not None else None, low, high, frac)
+
+
+def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_scenarios: int = 200,
+                  models: Sequence[ResponseModel] = (), eps_target: float | None = None) -> Roadmap | None:
+    """The roadmap of ``target`` (None when it has no roadmap section)."""
+    rm = target.roadmap
+    if rm is None:
+        return None
+    eps = float(eps_target if eps_target is not None else target.goal.logical_error_per_cycle)
+    dmax = largest_distance_within(target.goal.max_qubits) or 3
+    central = RateSet.from_rates(rm.rates)
+    per = STEPS_PER_YEAR[rm.step]
+    cands = _candidates(dmax)
+    t_goal = goal_years(model, central, eps_target=eps, max_distance=dmax, horizon_years=rm.horizon_years)
+    steps = []
+    for i in range(int(rm.horizon_years * per) + 1):
+        t = i / per
+        s = dict(zip(COMPONENTS, central.scales(np.array([t]))[0].tolist()))
+        d = smallest_distance(model, s, eps)
+        d = d if d is not None and d <= dmax else None
+        steps.append(RoadmapStep(years_to_date(rm.start, t), t, s, model.suppression(s),
+                                 {c: model.logical_error_per_cycle(s, c) for c in cands}, d,
+                                 physical_qubits(d) if d else None))
+        if d is not None:
+            break
+    rng = np.random.default_rng(seed)
+    spread = any(r.spread > 0 for r in rm.rates.values())
+    n = num_scenarios if (spread or models) else 0
+    scen = [(central.sample(rm.rates, rng), models[i % len(models)] if models else model) for i in range(n)]
+    goal = _event("goal", rm.start, t_goal,
+                  [goal_years(m, r, eps_target=eps, max_distance=dmax, horizon_years=rm.horizon_years)
+                   for r, m in scen])
+    miles = tuple(_event(f"Lambda >= {ms:g}", rm.start,
+                         milestone_years(model, central, milestone=ms, horizon_years=rm.horizon_years),
+                         [milestone_years(m, r, milestone=ms, horizon_years=rm.horizon_years) for r, m in scen])
+                  for ms in rm.milestones)
+    note = "" if t_goal is not None else \
+        f"goal not met within {rm.horizon_years:g} years and {target.goal.max_qubits} qubits at these rates"
+    if not rm.rates:
+        note = (note + "; " if note else "") + "no rates given: nothing improves"
+    return Roadmap(rm.start, rm.step, eps, target.goal.max_qubits, cands, tuple(steps), goal, miles, n, note)
