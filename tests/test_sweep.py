@@ -8,6 +8,7 @@ import pytest
 
 from planner.config import COMPONENTS, EXAMPLE_TOML, parse_target
 from planner.errors import InputError
+from planner.manifest import resolved_task
 from planner.sweep import BUDGETS, METADATA_KEYS, ScalePoint, plan_sweep, scale_points, tasks_for_scales
 
 
@@ -46,10 +47,10 @@ def test_tasks_have_one_json_native_key_set_and_largest_first(target):
         assert t.json_metadata["rounds"] == t.json_metadata["d"]
         assert set(t.json_metadata["scales"]) == set(COMPONENTS)
         assert t.decoder == "pymatching"
-    ids = [t.strong_id() for t in plan.tasks]
+    ids = [resolved_task(t).strong_id() for t in plan.tasks]
     assert len(set(ids)) == len(ids)
     again = plan_sweep(target, budget="quick")
-    assert [t.strong_id() for t in again.tasks] == ids  # resuming finds the same tasks
+    assert [resolved_task(t).strong_id() for t in again.tasks] == ids  # resuming finds the same tasks
 
 
 def test_scaled_circuit_differs_and_rule_from_budget(target):

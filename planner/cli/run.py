@@ -44,7 +44,8 @@ def run_command(
               f"budget '{budget}' ({plan.rule.max_errors} errors or {plan.rule.max_shots:,} shots per task) "
               f"-> {out_dir}")
     store = SampleStore(out_dir)
-    run_sweep(plan.tasks, store=store, rule=plan.rule, workers=workers, console=err)
+    run_sweep(plan.tasks, store=store, rule=plan.rule, workers=workers, console=err,
+              target=spec, budget=budget)
     answers = answer_all(spec, store.stats(), seed=0)
     tables.render_fits(answers.fits, con, model=answers.model)
     tables.render_requirements(answers.requirements, con)
