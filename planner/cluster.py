@@ -151,6 +151,8 @@ class _Progress:
         else:
             aim_s = min(MAX_CHUNK_S, FIRST_CHUNK_S * 2 ** self.chunks)
             want = int(aim_s * self.shots / self.seconds)
+            # grow at most 2x what is measured: a rate from a few shots is too noisy to trust more
+            want = min(want, 2 * self.shots)
         if self.errors:
             # stay near the error budget: the shots still needed once the chunks in flight are
             # counted at the measured error rate (plus 10%); none when those should suffice

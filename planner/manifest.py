@@ -190,11 +190,36 @@ def prepare_out_dir(out_dir: Path, *, target_bytes: bytes, manifest: Manifest) -
         if diff is not None:
             raise InputError(f"{out_dir}: holds samples of another sweep: {diff}; use another "
                              f"--out or delete {out_dir}")
-    copy = out_dir / TARGET_COPY
-    if copy.exists() and copy.read_bytes() != target_bytes:
-        raise InputError(f"{copy}: differs from the target file being swept; use another --out or "
-                         f"delete {out_dir}")
-    if not copy.exists():
-        _atomic_write(copy, target_bytes)
+    write_target_copy(out_dir, target_bytes)
     write_manifest(out_dir, manifest)
     return manifest
+
+
+def combine_manifests(named: list[tuple[str, Manifest]]) -> Manifest:
+    """One manifest for samples merged from several directories (``(where, manifest)`` pairs).
+
+    Refuses (InputError naming both places) when two disagree on the target hash or on the
+    versions; the task lists are united (first seen order), the first budget is kept.
+    """
+    if not named:
+        raise ValueError("nothing to combine")
+    first_where, first = named[0]
+    entries = {e.strong_id: e for e in first.tasks}
+    for where, m in named[1:]:
+        diff = identity_difference(first, m)
+        if diff is not None:
+            raise InputError(f"{where}: cannot be merged with {first_where}: {diff}")
+        for e in m.tasks:
+            entries.setdefault(e.strong_id, e)
+    return dataclasses.replace(first, tasks=tuple(entries.values()))
+
+
+def write_target_copy(out_dir: Path, target_bytes: bytes) -> None:
+    """Write ``DIR/target.toml``; an existing copy with other bytes is refused."""
+    copy = Path(out_dir) / TARGET_COPY
+    if copy.exists():
+        if copy.read_bytes() != target_bytes:
+            raise InputError(f"{copy}: differs from the target being written; use another --out "
+                             f"or delete {out_dir}")
+        return
+    _atomic_write(copy, target_bytes)

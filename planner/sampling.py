@@ -263,3 +263,76 @@ def _target_bytes(target: Target) -> bytes:
     if hashlib.sha256(data).hexdigest() != target.sha256:
         raise InputError(f"{target.source}: changed while the sweep was being planned; run again")
     return data
+
+
+# ---------------------------------------------------------------------------------------------
+# status: how far each task is against the budget
+
+
+@dataclasses.dataclass(frozen=True)
+class TaskStatus:
+    """One task's samples against the stopping rule.
+
+    ``relative_width``: (high - low) / best of the interval on the logical error per shot (None
+    with no errors); ``shots_left``: estimated shots until the rule is met (errors projected at
+    the measured rate); ``cpu_seconds_left``: that times the measured CPU seconds per shot.
+    """
+
+    strong_id: str
+    decoder: str
+    json_metadata: object
+    shots: int
+    errors: int
+    discards: int
+    seconds: float
+    rate_low: float
+    rate_best: float
+    rate_high: float
+    relative_width: float | None
+    done: bool | None
+    shots_left: int | None
+    cpu_seconds_left: float | None
+
+
+def task_status(stats: sinter.TaskStats, *, rule: StoppingRule | None,
+                likelihood_factor: float) -> TaskStatus:
+    """Status of one task; ``rule`` None (no budget recorded) leaves done/left unknown."""
+    if stats.shots > 0:
+        fit = sinter.fit_binomial(num_shots=stats.shots - stats.discards, num_hits=stats.errors,
+                                  max_likelihood_factor=likelihood_factor)
+        low, best, high = fit.low, fit.best, fit.high
+    else:
+        low, best, high = 0.0, 0.0, 1.0
+    width = (high - low) / best if best > 0 else None
+    done = shots_left = cpu_left = None
+    if rule is not None:
+        shots_left_max, errors_left = remaining(stats if stats.shots else None, rule)
+        done = shots_left_max == 0
+        shots_left = shots_left_max
+        if not done and stats.errors > 0:
+            shots_left = min(shots_left_max, -(-errors_left * stats.shots // stats.errors))
+        if stats.shots > 0 and stats.seconds > 0:
+            cpu_left = shots_left * stats.seconds / stats.shots
+        elif done:
+            cpu_left = 0.0
+    return TaskStatus(strong_id=stats.strong_id, decoder=stats.decoder,
+                      json_metadata=stats.json_metadata, shots=stats.shots, errors=stats.errors,
+                      discards=stats.discards, seconds=stats.seconds, rate_low=low, rate_best=best,
+                      rate_high=high, relative_width=width, done=done, shots_left=shots_left,
+                      cpu_seconds_left=cpu_left)
+
+
+def store_status(store: SampleStore, *, manifest: Manifest | None,
+                 likelihood_factor: float) -> list[TaskStatus]:
+    """Every task of the manifest (those not yet sampled at 0 shots) and every stored task."""
+    rule = None
+    if manifest is not None and manifest.max_errors is not None and manifest.max_shots is not None:
+        rule = StoppingRule(max_errors=manifest.max_errors, max_shots=manifest.max_shots)
+    have = store.stats_by_id()
+    order: dict[str, sinter.TaskStats] = {}
+    for e in (manifest.tasks if manifest else ()):
+        order[e.strong_id] = have.get(e.strong_id) or sinter.TaskStats(
+            strong_id=e.strong_id, decoder=e.decoder, json_metadata=e.json_metadata)
+    for sid, s in have.items():
+        order.setdefault(sid, s)
+    return [task_status(s, rule=rule, likelihood_factor=likelihood_factor) for s in order.values()]

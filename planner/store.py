@@ -286,3 +286,39 @@ class SampleStore:
             yield w
         finally:
             w.close()
+
+
+@dataclasses.dataclass(frozen=True)
+class MergeResult:
+    """What :func:`merge_into` copied: rows (chunks) and shots new to the destination."""
+
+    copied_rows: int
+    copied_shots: int
+    skipped_rows: int
+    shard: Path | None
+
+
+def merge_into(dest: SampleStore, sources: list[SampleStore]) -> MergeResult:
+    """Copy every row whose chunk id ``dest`` lacks into one new shard of ``dest``.
+
+    Rows already present (same chunk id) are skipped, so merging twice, or merging a directory
+    into itself, adds nothing. Rows are copied as parsed and re-written, chunk id kept.
+    """
+    have = dest.chunk_ids()
+    new: list[SampleRow] = []
+    skipped = 0
+    for src in sources:
+        for row in src.rows():
+            if row.chunk_id in have:
+                skipped += 1
+                continue
+            have.add(row.chunk_id)
+            new.append(row)
+    if not new:
+        return MergeResult(copied_rows=0, copied_shots=0, skipped_rows=skipped, shard=None)
+    with dest.writer("merged-" + default_shard_name()) as w:
+        for row in new:
+            w.append(row.stats, chunk_id=row.chunk_id)
+        shard = w.path
+    return MergeResult(copied_rows=len(new), copied_shots=sum(r.stats.shots for r in new),
+                       skipped_rows=skipped, shard=shard)

@@ -1,7 +1,119 @@
-"""`planner status` (being written)."""
+"""`planner status`: per task shots, errors, interval width, and what is left of the budget."""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+from typing import Annotated, Any
 
 import typer
 
+from planner.cli._common import one_line_errors, stdout_console
+from planner.cli.options import JsonOpt
+
 
 def register(app: typer.Typer) -> None:
-    """Not registered yet."""
+    app.command("status", no_args_is_help=True,
+                help="Per task: shots, errors, relative width of the 95% interval of the logical "
+                "error per shot, done or left against the budget recorded in DIR, and an "
+                "estimate of the CPU time left.")(status_command)
+
+
+def _duration(seconds: float | None) -> str:
+    """Human-readable duration: '45 s', '12 min', '3.5 h', '2.1 d'.
+
+    >>> _duration(30), _duration(600), _duration(12600), _duration(None)
+    ('30 s', '10 min', '3.5 h', '?')
+    """
+    if seconds is None or not math.isfinite(seconds):
+        return "?"
+    if seconds < 90:
+        return f"{seconds:.0f} s"
+    if seconds < 5400:
+        return f"{seconds / 60:.0f} min"
+    if seconds < 172800:
+        return f"{seconds / 3600:.1f} h"
+    return f"{seconds / 86400:.1f} d"
+
+
+def _label(meta: Any) -> str:
+    if not isinstance(meta, dict):
+        return str(meta)
+    return (f"{meta.get('code', '?')} d={meta.get('d', '?')} {meta.get('basis', '?')} "
+            f"{meta.get('axis', '?')}x{meta.get('factor', '?')}")
+
+
+def _sort_key(meta: Any) -> tuple:
+    if not isinstance(meta, dict):
+        return ("", 0.0, 0, "")
+    return (str(meta.get("axis", "")), float(meta.get("factor", 0.0)), int(meta.get("d", 0)),
+            str(meta.get("basis", "")))
+
+
+@one_line_errors
+def status_command(
+    directory: Annotated[Path, typer.Argument(metavar="DIR", help="Out directory of a sweep.")],
+    as_json: JsonOpt = False,
+) -> None:
+    from planner.errors import InputError
+    from planner.fits import CONFIDENCE, LIKELIHOOD_FACTOR
+    from planner.manifest import read_manifest
+    from planner.sampling import store_status
+    from planner.store import SampleStore
+
+    if not directory.is_dir():
+        raise InputError(f"{directory}: no such out directory")
+    store = SampleStore(directory)
+    if not store.shard_files():
+        raise InputError(f"{directory}: holds no samples ({store.samples_dir} has no .csv shards); "
+                         "run 'planner sweep' first")
+    manifest = read_manifest(directory)
+    rows = sorted(store_status(store, manifest=manifest, likelihood_factor=LIKELIHOOD_FACTOR),
+                  key=lambda r: _sort_key(r.json_metadata))
+    known = [r.cpu_seconds_left for r in rows if r.done is False]
+    cpu_left = None if any(c is None for c in known) else sum(c or 0.0 for c in known)
+    budget = None
+    if manifest is not None and manifest.max_errors is not None:
+        budget = {"name": manifest.budget, "max_errors": manifest.max_errors,
+                  "max_shots": manifest.max_shots}
+    totals = {"tasks": len(rows), "done": sum(1 for r in rows if r.done),
+              "shots": sum(r.shots for r in rows), "errors": sum(r.errors for r in rows),
+              "cpu_seconds": sum(r.seconds for r in rows), "cpu_seconds_left": cpu_left}
+
+    if as_json:
+        doc = {"dir": str(directory), "confidence": CONFIDENCE, "budget": budget,
+               "shards": [str(p) for p in store.shard_files()], "totals": totals,
+               "tasks": [{"strong_id": r.strong_id, "decoder": r.decoder, "metadata": r.json_metadata,
+                          "shots": r.shots, "errors": r.errors, "discards": r.discards,
+                          "cpu_seconds": r.seconds,
+                          "error_per_shot": {"best": r.rate_best, "low": r.rate_low, "high": r.rate_high},
+                          "relative_width": r.relative_width, "done": r.done,
+                          "shots_left": r.shots_left, "cpu_seconds_left": r.cpu_seconds_left}
+                         for r in rows]}
+        typer.echo(json.dumps(doc, allow_nan=False))
+        return
+
+    from rich.table import Table
+
+    title = f"{directory}: {totals['done']}/{totals['tasks']} tasks done"
+    if budget is not None:
+        title += (f" (budget '{budget['name']}': {budget['max_errors']} errors or "
+                  f"{budget['max_shots']:,} shots per task)")
+    table = Table(title=title, caption=f"width: relative width of the {CONFIDENCE:.0%} interval "
+                  "of the logical error per shot; CPU time from measured seconds per shot")
+    for col, justify in (("task", "left"), ("shots", "right"), ("errors", "right"),
+                         ("error/shot", "right"), ("width", "right"), ("state", "left"),
+                         ("CPU left", "right")):
+        table.add_column(col, justify=justify)  # type: ignore[arg-type]
+    for r in rows:
+        state = "?" if r.done is None else ("done" if r.done else f"~{r.shots_left:,} shots left")
+        table.add_row(_label(r.json_metadata), f"{r.shots:,}", f"{r.errors:,}",
+                      f"{r.rate_best:.2e}" if r.shots else "-",
+                      f"{r.relative_width:.0%}" if r.relative_width is not None else "-",
+                      state, "-" if r.done else _duration(r.cpu_seconds_left))
+    con = stdout_console()
+    con.print(table)
+    con.print(f"total: {totals['shots']:,} shots, {totals['errors']:,} errors, "
+              f"{_duration(totals['cpu_seconds'])} CPU used, {_duration(cpu_left)} CPU left "
+              "(divide by the number of cores)")

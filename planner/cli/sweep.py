@@ -1,7 +1,73 @@
-"""`planner sweep` (being written)."""
+"""`planner sweep`: sample the target's grid into the out directory (resumable, shardable)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
 
 import typer
 
+from planner.cli._common import one_line_errors, stderr_console
+from planner.cli.options import BudgetOpt, OutOpt, QuietOpt, WorkersOpt, default_out_dir
+
+ClusterOpt = Annotated[str | None, typer.Option(
+    "--cluster", metavar="ADDRESS", help="Sample on dask: a scheduler address (tcp://host:8786) "
+    "or local:N for a local cluster of N single-threaded worker processes.",
+    rich_help_panel="Sampling")]
+ShardOpt = Annotated[str | None, typer.Option(
+    "--shard", metavar="K/N", help="Take job K's share (1..N) of the tasks and write "
+    "samples/shard-K-of-N.csv (batch arrays; no dask). Reruns only top up.",
+    rich_help_panel="Sampling")]
+
 
 def register(app: typer.Typer) -> None:
-    """Not registered yet."""
+    app.command("sweep", no_args_is_help=True,
+                help="Sample the target's grid until every task meets the budget's stopping rule. "
+                "Resumable: a rerun counts what DIR/samples already holds.")(sweep_command)
+
+
+@one_line_errors
+def sweep_command(
+    target: Annotated[Path, typer.Argument(help="Target file (TOML).")],
+    out: OutOpt = None,
+    workers: WorkersOpt = None,
+    budget: BudgetOpt = "quick",
+    cluster: ClusterOpt = None,
+    shard: ShardOpt = None,
+    quiet: QuietOpt = False,
+) -> None:
+    from planner.config import load_target
+    from planner.errors import InputError
+    from planner.sampling import parse_shard
+
+    # check option syntax before anything slow happens
+    shard_kn = parse_shard(shard) if shard is not None else None
+    if cluster is not None:
+        from planner.cluster import parse_cluster
+
+        parse_cluster(cluster)
+        if shard_kn is not None:
+            raise InputError("--shard and --cluster cannot be combined: a shard job samples locally")
+        if workers is not None:
+            raise InputError("--workers is for local sampling; with --cluster the cluster's "
+                             "workers are used (local:N sets their number)")
+    spec = load_target(target)
+    out_dir = out if out is not None else default_out_dir(spec)
+    if out_dir.exists() and not out_dir.is_dir():
+        raise InputError(f"{out_dir}: --out exists and is not a directory")
+
+    from planner.sampling import run_sweep
+    from planner.store import SampleStore
+    from planner.sweep import plan_sweep
+
+    err = stderr_console(quiet=quiet)
+    plan = plan_sweep(spec, budget=budget)
+    err.print(f"{spec.name}: {len(plan.tasks)} tasks, budget '{budget}' ({plan.rule.max_errors} "
+              f"errors or {plan.rule.max_shots:,} shots per task) -> {out_dir}")
+    try:
+        run_sweep(plan.tasks, store=SampleStore(out_dir), rule=plan.rule, workers=workers,
+                  cluster=cluster, shard=shard_kn, console=err, target=spec, budget=budget)
+    except KeyboardInterrupt:
+        # every finished chunk is already on disk; a rerun tops up from there
+        err.print("interrupted: finished chunks are saved; run the same command again to resume")
+        raise typer.Exit(code=130) from None
