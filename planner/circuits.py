@@ -17,9 +17,10 @@ two TICKs):
 Choices made here (they change sampled numbers, so they are stated once):
 
 - stim's generators leave out the TICK between the last ancilla readout and the final data
-  readout when that readout is not behind a REPEAT block. We put it back (a new layer starts at
-  an operation that follows a layer's DETECTOR/OBSERVABLE_INCLUDE/SHIFT_COORDS), so the data
-  qubits idle through every ancilla readout, including the last one, for every round count.
+  readout. We put it back (a new layer starts at an operation that follows a layer's
+  DETECTOR/OBSERVABLE_INCLUDE/SHIFT_COORDS, or a REPEAT block), so the data qubits idle
+  through every ancilla readout, including the last one, for every round count, and the
+  flattened circuit read TICK by TICK shows the layers the noise was placed for.
 - The final layer (the data readout) gets no idle noise: the qubits it leaves alone are never
   used again, so noise on them could not change any detector or observable.
 - Hadamards cancel only between adjacent H-only layers in the same block body; a REPEAT body is
@@ -225,7 +226,12 @@ def _parse(circuit: stim.Circuit) -> list[_Item]:
     for inst in circuit:
         if isinstance(inst, stim.CircuitRepeatBlock):
             flush()
-            items.append(_Repeat(inst.repeat_count, _parse(inst.body_copy())))
+            body = _parse(inst.body_copy())
+            # a block edge is a layer edge: make it a TICK too, so that flattening the circuit
+            # (or reading it TICK by TICK) shows the same layers the noise was placed for
+            if items and isinstance(items[-1], _Layer) and body and body[0] is not _TICK:
+                items.append(_TICK)
+            items.append(_Repeat(inst.repeat_count, body))
         elif inst.name == "TICK":
             flush()
             items.append(_TICK)
@@ -234,7 +240,10 @@ def _parse(circuit: stim.Circuit) -> list[_Item]:
         elif inst.name in _OPERATIONS:
             if any(not t.is_qubit_target for t in inst.targets_copy()):
                 raise ValueError(f"{inst}: only plain qubit targets are supported")
-            if layer.tail:
+            if (layer.empty() and items and isinstance(items[-1], _Repeat)
+                    and items[-1].items and items[-1].items[-1] is not _TICK):
+                items.append(_TICK)  # the block edge again (see above)
+            elif layer.tail:
                 # an operation after the detectors of a readout starts a new layer (module doc)
                 flush()
                 items.append(_TICK)
