@@ -26,6 +26,7 @@ Choices made here (they change sampled numbers, so they are stated once):
 - Hadamards cancel only between adjacent H-only layers in the same block body; a REPEAT body is
   kept (never unrolled), so Hadamards across its boundary are left as they are.
 - Channels whose probability is 0 are left out, so a perfect component leaves no instruction.
+- Probabilities carry the 6 significant digits of stim's text form (what sinter samples).
 
 This module builds circuits; it samples nothing.
 """
@@ -99,7 +100,9 @@ def build_memory_circuit(model: NoiseModel, *, code: str, distance: int, rounds:
     out = stim.Circuit()
     last = max((i for i, it in enumerate(items) if isinstance(it, _Layer)), default=-1)
     _emit(items, model=model, qubits=qubits, out=out, final_index=last)
-    return out
+    # stim writes (and pickles, which is how sinter ships tasks to its workers) arguments with 6
+    # significant digits: return that circuit, so the one printed, hashed and sampled are one
+    return stim.Circuit(str(out))
 
 
 @dataclasses.dataclass(frozen=True)
