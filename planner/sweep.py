@@ -41,9 +41,9 @@ class StoppingRule:
 #: workstation over lunch; ``overnight`` a cluster. Errors set the relative interval width
 #: (about 2/sqrt(errors) at 95%); shots cap the cost of points far below threshold.
 BUDGETS: dict[str, StoppingRule] = {
-    "quick": StoppingRule(max_errors=300, max_shots=400_000),
-    "standard": StoppingRule(max_errors=2_000, max_shots=20_000_000),
-    "overnight": StoppingRule(max_errors=20_000, max_shots=1_000_000_000),
+    "quick": StoppingRule(max_errors=1_000, max_shots=1_000_000),
+    "standard": StoppingRule(max_errors=10_000, max_shots=100_000_000),
+    "overnight": StoppingRule(max_errors=100_000, max_shots=10_000_000_000),
 }
 
 
