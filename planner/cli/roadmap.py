@@ -1,7 +1,39 @@
-"""`planner roadmap` (being written)."""
+"""`planner roadmap DIR`: dates the goal and the Lambda milestones are met at the expected rates."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
 
 import typer
 
+from planner.cli._common import one_line_errors, stdout_console
+from planner.cli.options import JsonOpt
+
+DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep (its target.toml needs [roadmap]).")]
+
 
 def register(app: typer.Typer) -> None:
-    """Not registered yet."""
+    app.command("roadmap", no_args_is_help=True,
+                help="Scale factors, Lambda and eps over time at the target's improvement rates; the "
+                "date the goal is met and the Lambda milestones, with 95% ranges.")(roadmap_command)
+
+
+@one_line_errors
+def roadmap_command(directory: DirArg, json: JsonOpt = False) -> None:
+    from planner.errors import InputError
+    from planner.planning import answer_all, load_out_dir, no_model_reason
+    from planner.reports.tables import json_text, render_roadmap
+
+    spec, stats = load_out_dir(directory)
+    if spec.roadmap is None:
+        raise InputError(f"{spec.source}: roadmap: missing section: add [roadmap] with start and rates")
+    answers = answer_all(spec, stats)
+    if answers.roadmap is None:
+        note = no_model_reason(answers.fits)
+        typer.echo(json_text({"roadmap": None, "note": note})) if json else stdout_console().print(note)
+        return
+    if json:
+        typer.echo(json_text(answers.roadmap.to_json()))
+        return
+    render_roadmap(answers.roadmap, stdout_console())

@@ -1,7 +1,36 @@
-"""`planner sensitivity` (being written)."""
+"""`planner sensitivity DIR`: which component holds the device back most."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
 
 import typer
 
+from planner.cli._common import one_line_errors, stdout_console
+from planner.cli.options import JsonOpt
+
+DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep.")]
+
 
 def register(app: typer.Typer) -> None:
-    """Not registered yet."""
+    app.command("sensitivity", no_args_is_help=True,
+                help="Per component: share of the 1/Lambda budget, elasticity, Lambda if halved or "
+                "perfect, months earlier with faster improvement.")(sensitivity_command)
+
+
+@one_line_errors
+def sensitivity_command(directory: DirArg, json: JsonOpt = False) -> None:
+    from planner.planning import answer_all, load_out_dir, no_model_reason
+    from planner.reports.tables import json_text, render_sensitivity
+
+    spec, stats = load_out_dir(directory)
+    answers = answer_all(spec, stats, replicas=0)
+    if answers.sensitivity is None:
+        note = no_model_reason(answers.fits)
+        typer.echo(json_text({"sensitivity": None, "note": note})) if json else stdout_console().print(note)
+        return
+    if json:
+        typer.echo(json_text(answers.sensitivity.to_json()))
+        return
+    render_sensitivity(answers.sensitivity, stdout_console())

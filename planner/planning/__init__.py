@@ -41,7 +41,7 @@ __all__ = [
     "Answers", "CalculatorAnswer", "FactorAnswer", "FitQuality", "MixAnswer", "Requirements",
     "ResponseModel", "Roadmap", "Sensitivity", "TodayAnswer", "Uncertainty", "answer_all",
     "build_roadmap", "calculate", "cheapest_mix", "fit_model", "largest_distance_within",
-    "load_out_dir", "physical_qubits", "requirements", "sensitivity", "smallest_distance",
+    "load_out_dir", "no_model_reason", "physical_qubits", "requirements", "sensitivity", "smallest_distance",
 ]
 
 

@@ -186,8 +186,7 @@ def _solve_lever(model: ResponseModel, lever: str, *, distance: int, eps_target:
         lam = model.suppression(_scaled(lever, 0.0))
         why = (f"not reachable alone: with {lever} perfect, Lambda = {lam:.3g}" if lever != "joint"
                else "not reachable: the model never meets the goal at this distance")
-        return FactorAnswer(lever, False, None, lam, note=why,
-                            extrapolation=tuple(model.extrapolation(_scaled(lever, 0.0))))
+        return FactorAnswer(lever, False, None, lam, note=why)
     f = brentq(h, lo, 1.0, xtol=1e-14, rtol=1e-12)
     return FactorAnswer(lever, True, f, model.suppression(_scaled(lever, f)),
                         extrapolation=tuple(model.extrapolation(_scaled(lever, f))))

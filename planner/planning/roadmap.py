@@ -183,7 +183,7 @@ def _event(what: str, start: dt.date, central: float | None, sampled: Sequence[f
         q = (1 - CONFIDENCE) / 2
         # unreached scenarios count as +inf: the high end is beyond the horizon if too many
         arr = np.array([x if x is not None else np.inf for x in sampled])
-        lo_y, hi_y = np.quantile(arr, q), np.quantile(arr, 1 - q)
+        lo_y, hi_y = np.quantile(arr, [q, 1 - q], method="inverted_cdf")  # no interpolation across inf
         low = years_to_date(start, float(lo_y)) if np.isfinite(lo_y) else None
         high = years_to_date(start, float(hi_y)) if np.isfinite(hi_y) else None
     return DatedEvent(what, years_to_date(start, central) if central is not None else None, low, high, frac)

@@ -1,0 +1,155 @@
+"""Checking the answers on the simulator: sample at the proposed operating points and compare.
+
+The operating points are the joint-factor answer and the cheapest mix; they are sampled at the
+two largest sampled distances (capped at :data:`MAX_VERIFY_DISTANCE` so it stays affordable) and
+the sampled eps per cycle and Lambda are compared with the model's prediction. A prediction
+"holds" where the two :data:`~planner.fits.CONFIDENCE` intervals overlap.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import sinter
+
+from planner.config import COMPONENTS, Target
+from planner.fits import CONFIDENCE, Interval, fit_stats
+
+MAX_VERIFY_DISTANCE = 7
+
+
+@dataclasses.dataclass(frozen=True)
+class OperatingPoint:
+    label: str
+    scales: dict[str, float]
+    factor: float
+
+
+@dataclasses.dataclass(frozen=True)
+class VerifyRow:
+    """Predicted vs sampled at one (operating point, distance) or, with ``distance=None``, Lambda."""
+
+    label: str
+    quantity: str  # "logical_error_per_cycle" or "suppression_factor"
+    distance: int | None
+    predicted: Interval
+    sampled: Interval | None
+    zero_errors: bool = False
+
+    @property
+    def holds(self) -> bool | None:
+        return None if self.sampled is None else self.predicted.overlaps(self.sampled)
+
+    def to_json(self) -> dict[str, Any]:
+        return {"label": self.label, "quantity": self.quantity, "d": self.distance,
+                "predicted": self.predicted.to_json(),
+                "sampled": self.sampled.to_json() if self.sampled else None,
+                "zero_errors": self.zero_errors, "holds": self.holds}
+
+
+@dataclasses.dataclass(frozen=True)
+class Verification:
+    points: tuple[OperatingPoint, ...]
+    distances: tuple[int, ...]
+    rows: tuple[VerifyRow, ...]
+    note: str = ""
+
+    @property
+    def holds(self) -> bool:
+        return all(r.holds is not False for r in self.rows)
+
+    def to_json(self) -> dict[str, Any]:
+        return {"confidence": CONFIDENCE, "distances": list(self.distances),
+                "points": [{"label": p.label, "scales": p.scales, "factor": p.factor} for p in self.points],
+                "rows": [r.to_json() for r in self.rows], "holds": self.holds, "note": self.note}
+
+
+def operating_points(answers: Any) -> tuple[OperatingPoint, ...]:
+    """The joint-factor answer and the cheapest mix (those that are reachable)."""
+    req = answers.requirements
+    if req is None:
+        return ()
+    pts = []
+    if req.joint.reachable and req.joint.factor is not None:
+        f = req.joint.factor
+        pts.append(OperatingPoint("verify-joint", {c: f for c in COMPONENTS}, f))
+    if req.mix.reachable and any(v < 1 for v in req.mix.scales.values()):
+        pts.append(OperatingPoint("verify-mix", dict(req.mix.scales), 1.0))
+    return tuple(pts)
+
+
+def verify_distances(sampled: Sequence[int]) -> tuple[int, ...]:
+    """The two largest sampled distances no larger than the cap (the smallest if none fits).
+
+    >>> verify_distances([3, 5, 7, 9]), verify_distances([3]), verify_distances([9, 11])
+    ((5, 7), (3,), (9,))
+    """
+    ok = sorted(d for d in sampled if d <= MAX_VERIFY_DISTANCE)
+    return tuple(ok[-2:]) if ok else (min(sampled),)
+
+
+def _predicted(models: Sequence[Any], best: float, values: list[float]) -> Interval:
+    if not values:
+        return Interval(best, best, best)
+    q = (1 - CONFIDENCE) / 2
+    lo, hi = np.quantile(np.array(values), [q, 1 - q])
+    return Interval(best, float(min(lo, best)), float(max(hi, best)))
+
+
+def _same_scales(a: dict[str, float], b: dict[str, float]) -> bool:
+    return all(math.isclose(a.get(c, 1.0), b.get(c, 1.0), rel_tol=1e-9, abs_tol=1e-12) for c in COMPONENTS)
+
+
+def compare(answers: Any, points: Sequence[OperatingPoint], distances: Sequence[int],
+            stats: Sequence[sinter.TaskStats]) -> Verification:
+    """Predicted (model, bootstrap interval) vs sampled (fits of ``stats``) at each point."""
+    model = answers.model
+    models = answers.uncertainty.models if answers.uncertainty else ()
+    keep = [s for s in stats if isinstance(s.json_metadata, dict) and any(
+        s.json_metadata.get("axis") == p.label and _same_scales(s.json_metadata.get("scales", {}), p.scales)
+        for p in points)]
+    report = fit_stats(keep) if keep else None
+    rows = []
+    for p in points:
+        for d in distances:
+            best = model.logical_error_per_cycle(p.scales, d)
+            pred = _predicted(models, best, [m.logical_error_per_cycle(p.scales, d) for m in models])
+            got = next((x for x in (report.distances if report else ()) if x.axis == p.label and x.distance == d), None)
+            rows.append(VerifyRow(p.label, "logical_error_per_cycle", d, pred,
+                                  got.per_cycle if got else None, bool(got and got.zero_errors)))
+        if len(distances) >= 2:
+            best = model.suppression(p.scales)
+            pred = _predicted(models, best, [m.suppression(p.scales) for m in models])
+            lf = next((x for x in (report.lambdas if report else ()) if x.axis == p.label), None)
+            rows.append(VerifyRow(p.label, "suppression_factor", None, pred,
+                                  lf.suppression if lf else None, bool(lf and lf.uses_zero_error_points)))
+    note = "" if points else "no reachable operating point to verify"
+    if len(distances) < 2:
+        note = (note + "; " if note else "") + "one samplable distance: Lambda not verified"
+    return Verification(tuple(points), tuple(distances), tuple(rows), note)
+
+
+def run_verification(target: Target, answers: Any, *, out_dir: Path, budget: str = "quick",
+                     workers: int | None = None, console: Any = None) -> Verification:
+    """Sample the operating points into ``out_dir/verify`` (resumable) and compare."""
+    from planner.sampling import run_sweep
+    from planner.store import SampleStore
+    from planner.sweep import BUDGETS, tasks_for_scales
+
+    points = operating_points(answers)
+    distances = verify_distances(answers.fits.sampled_distances)
+    if budget not in BUDGETS:
+        from planner.errors import InputError
+
+        raise InputError(f"--budget: {budget!r} is not a budget; allowed: {', '.join(BUDGETS)}")
+    store = SampleStore(Path(out_dir) / "verify")
+    tasks = [t for p in points
+             for t in tasks_for_scales(target, p.scales, distances=distances, label=p.label, factor=p.factor)]
+    if tasks:
+        run_sweep(tasks, store=store, rule=BUDGETS[budget], workers=workers, console=console)
+    return compare(answers, points, distances, store.stats())
