@@ -193,7 +193,7 @@ def per_cycle_interval(*, shots: int, errors: int, rounds: int) -> tuple[Interva
 
     >>> shot, cyc = per_cycle_interval(shots=10_000, errors=100, rounds=5)
     >>> round(shot.best, 4), round(cyc.best, 6)
-    (0.01, 0.002012)
+    (0.01, 0.002016)
     """
     if shots <= 0:
         raise ValueError("shots must be positive")
