@@ -88,7 +88,7 @@ def render_requirements(answer: Any, console: Console) -> None:
     dist = (iv(td.distance_interval, 4) if td.distance_interval else g(td.distance)) if td.distance else "—"
     console.print(f"Today's device: Lambda {iv(td.suppression_fitted)} fitted ({CL}), "
                   f"{g(td.suppression_model)} model; smallest distance meeting the goal {dist} "
-                  f"({g(td.physical_qubits)} qubits) {td.note}")
+                  f"({td.physical_qubits or '—'} qubits) {td.note}")
     console.print(f"Model: {r.model_form} form; fit quality: {r.model_quality}")
     for n in r.notes:
         console.print(f"note: {n}")
