@@ -212,7 +212,8 @@ def _drive(client: Any, items: Sequence[WorkItem], sink: ChunkSink) -> None:
     tasks = [_Progress(item=it, text=str(it.task.circuit)) for it in items]  # largest first
     futures: dict[str, tuple[Any, _Progress, int]] = {}  # chunk id -> (future, task, attempt)
     written: set[str] = set()
-    done = as_completed(with_results=False)
+    # bind to this client's loop: another Client may be the process default (tests, notebooks)
+    done = as_completed(loop=client.loop, with_results=False)
 
     def submit(tp: _Progress, shots: int, chunk_id: str, attempt: int) -> None:
         fut = client.submit(sample_chunk, chunk_id=chunk_id, strong_id=tp.item.strong_id,
