@@ -217,8 +217,9 @@ def run_sweep(tasks: Sequence[sinter.Task], *, store: SampleStore, rule: Stoppin
         return SweepSummary(tasks=len(ids), already_done=len(ids), sampled_tasks=0, new_shots=0,
                             new_errors=0, new_chunks=0, wall_seconds=time.monotonic() - t0,
                             complete=True, shard_file=None, totals=_totals(have, ids))
-    console.print(f"sampling {len(items)} of {len(ids)} tasks{where}; "
-                  f"{len(ids) - len(items)} already meet the stopping rule")
+    console.print(f"sampling {len(items)} of {len(ids)} tasks{where} until {rule.max_errors:,} "
+                  f"errors or {rule.max_shots:,} shots each ({len(ids) - len(items)} already "
+                  f"there) -> {_out_dir_of(store)}")
     counts = {"shots": 0, "errors": 0, "chunks": 0}
     shard_name = sharded_name(index=shard[0], count=shard[1]) if shard else None
     with store.writer(shard_name) as writer, SweepProgress(items, rule, console) as bar:

@@ -62,8 +62,7 @@ def sweep_command(
 
     err = stderr_console(quiet=quiet)
     plan = plan_sweep(spec, budget=budget)
-    err.print(f"{spec.name}: {len(plan.tasks)} tasks, budget '{budget}' ({plan.rule.max_errors} "
-              f"errors or {plan.rule.max_shots:,} shots per task) -> {out_dir}")
+    # run_sweep says what it samples once the out directory has been checked
     try:
         run_sweep(plan.tasks, store=SampleStore(out_dir), rule=plan.rule, workers=workers,
                   cluster=cluster, shard=shard_kn, console=err, target=spec, budget=budget)
