@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import functools
+import os
 import sys
 from collections.abc import Callable
 from typing import Any, TypeVar
@@ -23,7 +24,12 @@ def stderr_console(*, quiet: bool = False) -> Console:
 
 
 def stdout_console() -> Console:
-    return Console()
+    """Console for data. Piped into a file or a CI log it is 110 columns wide (rich's default of
+    80 would wrap the interval columns), unless COLUMNS says otherwise."""
+    console = Console()
+    if not console.is_terminal and "COLUMNS" not in os.environ:
+        console = Console(width=110)
+    return console
 
 
 def fail(message: str) -> typer.Exit:
