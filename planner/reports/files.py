@@ -1,0 +1,272 @@
+"""Report files under the out directory: Markdown and CSV tables, fits.json, plots, report.html.
+
+Every file is written to a temporary name in its own directory and moved into place with
+``os.replace``, so a reader (or a crash) never sees half a file. A directory that cannot be
+written raises :class:`~planner.errors.InputError` naming it.
+
+Markdown is for people (the layout of :mod:`planner.reports.text`); CSV is for programs: one
+header row, raw numbers at full precision, intervals as separate ``best``/``low``/``high``
+columns, empty cells for missing values.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import os
+import tempfile
+from collections.abc import Iterable, Sequence
+from pathlib import Path
+from typing import Any
+
+from planner.config import COMPONENTS, Target
+from planner.errors import InputError
+from planner.fits import CONFIDENCE, LIKELIHOOD_FACTOR, Interval
+from planner.reports import text
+
+REQUIREMENTS_COLUMNS = ("quantity", "lever", "unit", "best", "low", "high", "reachable",
+                        "extrapolated", "note")
+SENSITIVITY_COLUMNS = ("component", "share_of_inverse_lambda", "elasticity", "suppression_factor_halved",
+                       "suppression_factor_perfect", "months_earlier", "lumped", "note")
+DATES_COLUMNS = ("event", "date", "low", "high", "fraction_of_scenarios_reached")
+PLOTS_DIR = "plots"
+
+
+# ---------------------------------------------------------------------------------------------
+# atomic writes
+
+
+def ensure_dir(directory: Path) -> Path:
+    """Create ``directory`` (and parents); InputError naming it if that is impossible."""
+    directory = Path(directory)
+    try:
+        directory.mkdir(parents=True, exist_ok=True)
+    except FileExistsError:
+        raise InputError(f"{directory}: cannot write reports: exists and is not a directory") from None
+    except OSError as exc:
+        raise InputError(f"{directory}: cannot write reports: {exc.strerror or exc}") from None
+    if not directory.is_dir():
+        raise InputError(f"{directory}: cannot write reports: not a directory")
+    return directory
+
+
+def write_atomic(path: Path, data: bytes | str) -> Path:
+    """Write ``data`` to ``path`` via a temporary file in the same directory and ``os.replace``.
+
+    The old file (if any) stays intact until the new one is complete; the temporary file is
+    removed when anything fails.
+    """
+    path = Path(path)
+    ensure_dir(path.parent)
+    payload = data.encode("utf-8") if isinstance(data, str) else data
+    try:
+        fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    except OSError as exc:
+        raise InputError(f"{path.parent}: cannot write reports: {exc.strerror or exc}") from None
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(payload)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except OSError as exc:
+        _remove_quietly(tmp)
+        raise InputError(f"{path}: cannot write: {exc.strerror or exc}") from None
+    except BaseException:
+        _remove_quietly(tmp)
+        raise
+    return path
+
+
+def _remove_quietly(path: str) -> None:
+    try:
+        os.unlink(path)
+    except FileNotFoundError:
+        pass
+
+
+# ---------------------------------------------------------------------------------------------
+# CSV
+
+
+def _cell(x: Any) -> Any:
+    """CSV cell: missing and non-finite numbers become empty; booleans as true/false."""
+    if x is None:
+        return ""
+    if isinstance(x, bool):
+        return "true" if x else "false"
+    if isinstance(x, float) and not math.isfinite(x):
+        return "" if math.isnan(x) else ("inf" if x > 0 else "-inf")
+    return x
+
+
+def csv_text(columns: Sequence[str], rows: Iterable[Sequence[Any]]) -> str:
+    """One header row then the rows (floats written at full precision by the csv module)."""
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(columns)
+    for r in rows:
+        if len(r) != len(columns):
+            raise ValueError(f"row {r!r} does not have {len(columns)} cells")
+        w.writerow([_cell(x) for x in r])
+    return buf.getvalue()
+
+
+def _iv(iv: Interval | None, best: float | None = None) -> tuple[Any, Any, Any]:
+    if iv is None:
+        return best, None, None
+    return iv.best, iv.low, iv.high
+
+
+def requirements_rows(req: Any, *, lambda_today_model: Interval | None = None) -> list[tuple[Any, ...]]:
+    """Long format: one row per quantity (and lever), columns :data:`REQUIREMENTS_COLUMNS`."""
+    td = req.today
+    rows: list[tuple[Any, ...]] = [
+        ("target_logical_error_per_cycle", "", "per cycle", req.eps_target, None, None, None, None, ""),
+        ("distance", "", "", req.distance, None, None, None, None, req.distance_source),
+        ("physical_qubits", "", "qubits", req.physical_qubits, None, None, None, None, "2d^2-1"),
+        ("required_suppression_factor", "", "ratio", req.required_suppression, None, None, None, None,
+         "with today's prefactor"),
+        ("suppression_factor_today_fitted", "joint", "ratio", *_iv(td.suppression_fitted), None, None,
+         "fitted at joint factor 1"),
+        ("suppression_factor_today_model", "", "ratio", *_iv(lambda_today_model, td.suppression_model),
+         None, None, "response model"),
+        ("today_distance", "", "", *_iv(td.distance_interval, td.distance), td.distance is not None,
+         None, td.note),
+        ("today_physical_qubits", "", "qubits", td.physical_qubits, None, None, td.within_max_qubits,
+         None, "within goal.max_qubits" if td.within_max_qubits else ""),
+    ]
+    for a in (req.joint, *req.components):
+        rows.append(("factor_needed", a.lever, "x today's error", *_iv(a.factor_interval, a.factor),
+                     a.reachable, bool(a.extrapolation), "; ".join(x for x in (a.note, *a.extrapolation) if x)))
+        rows.append(("suppression_factor_reached", a.lever, "ratio", a.suppression, None, None, a.reachable,
+                     bool(a.extrapolation), ""))
+    mix = req.mix
+    for c, s in mix.scales.items():
+        rows.append(("cheapest_mix_factor", c, "x today's error", s, None, None, mix.reachable,
+                     any(x.startswith(f"{c} ") for x in mix.extrapolation), ""))
+    rows.append(("cheapest_mix_cost", "", "cost-weighted halvings", mix.cost, None, None, mix.reachable,
+                 bool(mix.extrapolation), mix.note))
+    return rows
+
+
+def roadmap_columns(rm: Any) -> tuple[str, ...]:
+    return ("date", "years", *(f"scale_{c}" for c in COMPONENTS), "suppression_factor",
+            *(f"eps_d{d}" for d in rm.candidate_distances), "distance", "physical_qubits")
+
+
+def roadmap_rows(rm: Any) -> list[tuple[Any, ...]]:
+    return [(s.date.isoformat(), s.years, *(s.scales[c] for c in COMPONENTS), s.suppression,
+             *(s.eps[d] for d in rm.candidate_distances), s.distance, s.physical_qubits) for s in rm.steps]
+
+
+def roadmap_date_rows(rm: Any) -> list[tuple[Any, ...]]:
+    iso = lambda d: d.isoformat() if d else None  # noqa: E731
+    return [(e.what, iso(e.date), iso(e.low), iso(e.high), e.fraction_reached if rm.num_scenarios else None)
+            for e in (rm.goal, *rm.milestones)]
+
+
+def sensitivity_rows(sens: Any, *, lumped: Sequence[str] = ()) -> list[tuple[Any, ...]]:
+    return [(r.component, r.share, r.elasticity, r.suppression_halved, r.suppression_perfect,
+             r.months_earlier, r.component in lumped, r.note) for r in sens.rows]
+
+
+# ---------------------------------------------------------------------------------------------
+# per-part writers (query commands call these directly)
+
+
+def write_requirements(req: Any, out_dir: Path, *, lambda_today_model: Interval | None = None) -> list[Path]:
+    """``requirements.md`` and ``requirements.csv`` (``req``: planning Requirements)."""
+    out_dir = ensure_dir(out_dir)
+    md = text.to_markdown(text.requirements_tables(req, lambda_today_model=lambda_today_model),
+                          heading="Requirements for the goal")
+    rows = requirements_rows(req, lambda_today_model=lambda_today_model)
+    return [write_atomic(out_dir / "requirements.md", md),
+            write_atomic(out_dir / "requirements.csv", csv_text(REQUIREMENTS_COLUMNS, rows))]
+
+
+def write_roadmap(rm: Any, out_dir: Path) -> list[Path]:
+    """``roadmap.md``, ``roadmap.csv`` (steps) and ``roadmap_dates.csv`` (goal and milestones)."""
+    out_dir = ensure_dir(out_dir)
+    md = text.to_markdown(text.roadmap_tables(rm), heading="Roadmap")
+    return [write_atomic(out_dir / "roadmap.md", md),
+            write_atomic(out_dir / "roadmap.csv", csv_text(roadmap_columns(rm), roadmap_rows(rm))),
+            write_atomic(out_dir / "roadmap_dates.csv", csv_text(DATES_COLUMNS, roadmap_date_rows(rm)))]
+
+
+def write_sensitivity(sens: Any, out_dir: Path, *, lumped: Sequence[str] = ()) -> list[Path]:
+    """``sensitivity.md`` and ``sensitivity.csv``; ``lumped``: components without their own axis."""
+    out_dir = ensure_dir(out_dir)
+    md = text.to_markdown(text.sensitivity_tables(sens, lumped=lumped), heading="Sensitivity")
+    return [write_atomic(out_dir / "sensitivity.md", md),
+            write_atomic(out_dir / "sensitivity.csv",
+                         csv_text(SENSITIVITY_COLUMNS, sensitivity_rows(sens, lumped=lumped)))]
+
+
+def _clean(x: Any) -> Any:
+    if isinstance(x, float) and not math.isfinite(x):
+        return None
+    if isinstance(x, dict):
+        return {str(k): _clean(v) for k, v in x.items()}
+    if isinstance(x, list | tuple):
+        return [_clean(v) for v in x]
+    return x
+
+
+def fits_document(answers_or_report: Any, *, target: Target | None = None) -> dict[str, Any]:
+    """The fits.json document: ``to_json()`` of an Answers (or a FitReport) with the target's
+    identity and the confidence level; non-finite numbers become null."""
+    doc = dict(answers_or_report.to_json())
+    head: dict[str, Any] = {"confidence": CONFIDENCE, "likelihood_factor": LIKELIHOOD_FACTOR}
+    if target is not None:
+        head["target"] = {"name": target.name, "sha256": target.sha256, "device": target.device.name,
+                          "goal_logical_error_per_cycle": target.goal.logical_error_per_cycle,
+                          "goal_max_qubits": target.goal.max_qubits}
+    head.update({k: v for k, v in doc.items() if k != "confidence"})
+    return _clean(head)
+
+
+def write_fits(answers_or_report: Any, out_dir: Path, *, target: Target | None = None) -> list[Path]:
+    """``fits.json``: every fitted figure with its interval (see :func:`fits_document`)."""
+    out_dir = ensure_dir(out_dir)
+    doc = fits_document(answers_or_report, target=target)
+    return [write_atomic(out_dir / "fits.json", json.dumps(doc, indent=1, allow_nan=False) + "\n")]
+
+
+def write_plots(pngs: dict[str, bytes], out_dir: Path) -> list[Path]:
+    """``plots/<name>.png`` for each rendered plot (see :func:`planner.reports.plots.render_all`)."""
+    pdir = ensure_dir(Path(out_dir) / PLOTS_DIR)
+    return [write_atomic(pdir / f"{name}.png", data) for name, data in pngs.items()]
+
+
+def lambda_today_model(answers: Any) -> Interval | None:
+    unc = answers.uncertainty
+    return unc.intervals.get("lambda_today") if unc is not None else None
+
+
+def write_all(answers: Any, *, out_dir: Path, target: Target) -> list[Path]:
+    """Every report file for one set of answers; returns the paths written.
+
+    Parts that do not exist are skipped (no roadmap section: no roadmap files; no model: only
+    fits.json, the rate plot and the page, which says why).
+    """
+    from planner.reports import html, plots
+
+    out_dir = ensure_dir(out_dir)
+    written: list[Path] = []
+    lam_model = lambda_today_model(answers)
+    if answers.requirements is not None:
+        written += write_requirements(answers.requirements, out_dir, lambda_today_model=lam_model)
+    if answers.roadmap is not None:
+        written += write_roadmap(answers.roadmap, out_dir)
+    if answers.sensitivity is not None:
+        lumped = answers.model.unsampled if answers.model is not None else ()
+        written += write_sensitivity(answers.sensitivity, out_dir, lumped=lumped)
+    written += write_fits(answers, out_dir, target=target)
+    pngs = plots.render_all(answers, target=target)
+    written += write_plots(pngs, out_dir)
+    page = html.report_html(answers, target=target, pngs=pngs, out_dir=out_dir)
+    written.append(write_atomic(out_dir / "report.html", page))
+    return written

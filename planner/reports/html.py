@@ -1,0 +1,193 @@
+"""One self-contained report page: report.html with the tables, the plots as data URIs, the device,
+the goal, the sampling budget, the model and its fit quality, and the caveats.
+
+No external resources (no scripts, fonts, stylesheets or image links); all text goes through
+:func:`html.escape`. The tables come from :mod:`planner.reports.text`, the same layout as the
+Markdown files, so the numbers are the same strings in both.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+from planner.config import Target
+from planner.fits import CONFIDENCE
+from planner.reports import text
+
+CAVEATS = (
+    "Projections are model-based: they come from simulated memory experiments with a Pauli noise "
+    "model built from the error budget in the target file, decoded with minimum-weight matching.",
+    "Check them against the device: correlated, leakage and drift errors are not in the model.",
+    "Answers outside the sampled scale range are extrapolations and say so.",
+    "No substitute for the team's own validation.",
+)
+
+PLOT_CAPTIONS = {
+    "logical_error_vs_distance": "Logical error per cycle against code distance for each scale point; "
+                                 "dashed parts of the fitted lines are extrapolated towards the goal.",
+    "lambda_vs_joint_scale": "Suppression factor Lambda against the joint scale factor, with its interval "
+                             "band, the Lambda = 1 line and the threshold when the sampled range brackets it.",
+    "lambda_vs_component_scale": "Lambda against each component's own scale factor (others at today); "
+                                 "today's point is shared by every line.",
+    "inverse_lambda_budget": "Each component's share of 1/Lambda at today's point (hatched: lumped "
+                             "components without their own sweep axis, weight split evenly).",
+    "roadmap": "Logical error per cycle at the candidate distances over time at the central rates, the "
+               "goal, and the physical qubits needed to meet it.",
+}
+
+STYLE = """
+body { font-family: system-ui, sans-serif; max-width: 1100px; margin: 2em auto; padding: 0 1em;
+       color: #1b1b1b; line-height: 1.4; }
+h1 { font-size: 1.6em; margin-bottom: 0.2em; }
+h2 { border-bottom: 1px solid #ccd; padding-bottom: 0.2em; margin-top: 1.8em; }
+table { border-collapse: collapse; margin: 0.6em 0; font-size: 0.88em; }
+th, td { border: 1px solid #ccd; padding: 0.25em 0.5em; text-align: left; vertical-align: top; }
+th { background: #eef0f6; }
+.caveats { background: #fff4e5; border: 1px solid #e0a040; padding: 0.6em 1em; border-radius: 4px; }
+.caveat { font-style: italic; color: #555; font-size: 0.9em; }
+.lead { margin: 0.2em 0; }
+figure { margin: 1em 0; }
+figure img { max-width: 100%; border: 1px solid #dde; }
+figcaption { font-size: 0.9em; color: #444; }
+code { background: #f3f3f6; padding: 0 0.2em; }
+"""
+
+
+def esc(x: Any) -> str:
+    return html.escape(str(x), quote=True)
+
+
+def table_html(t: text.TextTable, *, level: int = 3) -> str:
+    """A :class:`~planner.reports.text.TextTable` as HTML (lead lines, table, notes, caveat)."""
+    out = [f"<h{level}>{esc(t.title)}</h{level}>"]
+    out += [f'<p class="lead">{esc(x)}</p>' for x in t.lead]
+    out.append("<table><thead><tr>" + "".join(f"<th>{esc(h)}</th>" for h in t.headers) + "</tr></thead><tbody>")
+    out += ["<tr>" + "".join(f"<td>{esc(c)}</td>" for c in r) + "</tr>" for r in t.rows]
+    out.append("</tbody></table>")
+    if t.notes:
+        out.append("<ul>" + "".join(f"<li>{esc(n)}</li>" for n in t.notes) + "</ul>")
+    out.append(f'<p class="caveat">{esc(t.caveat)}</p>')
+    return "\n".join(out)
+
+
+def _pairs(rows: Sequence[tuple[str, Any]]) -> str:
+    return "<table><tbody>" + "".join(f"<tr><th>{esc(k)}</th><td>{esc(v)}</td></tr>" for k, v in rows) + \
+        "</tbody></table>"
+
+
+def device_rows(target: Target) -> list[tuple[str, Any]]:
+    """What the target file says about the device, as (field, value) pairs with units."""
+    d = target.device
+    rows: list[tuple[str, Any]] = [("device", d.name), ("native two-qubit gate", d.native_2q)]
+    if d.preset is not None:
+        rows.append(("noise preset", f"{d.preset.model} at p = {text.num(d.preset.p)}"))
+        return rows
+    for key, value in d.errors.model_dump().items():
+        if value is not None:
+            unit = "average gate infidelity" if key.endswith("_infidelity") else "probability"
+            rows.append((f"errors.{key} ({unit})", text.num(value)))
+    if d.coherence is not None:
+        rows += [("T1 (us)", text.num(d.coherence.t1_us)), ("T2 (us)", text.num(d.coherence.t2_us))]
+    if d.durations is not None:
+        rows += [(f"durations.{k} (ns)", text.num(v)) for k, v in d.durations.model_dump().items()]
+    return rows
+
+
+def sampling_rows(answers: Any, target: Target, out_dir: Path | None) -> list[tuple[str, Any]]:
+    """The sweep grid, the budget recorded in the out directory and what was sampled."""
+    from planner.manifest import read_manifest
+
+    sw = target.sweep
+    tasks = answers.fits.tasks
+    rows: list[tuple[str, Any]] = [
+        ("code, decoder", f"{sw.code}, {sw.decoder}"),
+        ("distances sampled", ", ".join(map(str, answers.fits.sampled_distances))),
+        ("bases", ", ".join(sw.bases)),
+        ("joint scale factors", ", ".join(text.num(x) for x in sw.joint_scales)),
+        ("component scale factors", ", ".join(text.num(x) for x in sw.component_scales) or "none"),
+        ("components with own axis", ", ".join(target.components) if sw.component_scales else "none"),
+    ]
+    manifest = None
+    if out_dir is not None:
+        try:
+            manifest = read_manifest(Path(out_dir))
+        except ValueError:  # an unreadable manifest is the store's concern, not the page's
+            manifest = None
+    if manifest is not None and manifest.max_errors is not None:
+        rows.append(("budget (stopping rule per task)",
+                     f"'{manifest.budget}': {manifest.max_errors:,} errors or {manifest.max_shots:,} shots"))
+    else:
+        rows.append(("budget (stopping rule per task)", "not recorded"))
+    if tasks:
+        rows += [("tasks", len(tasks)), ("shots (total)", f"{sum(t.shots for t in tasks):,}"),
+                 ("logical errors (total)", f"{sum(t.errors for t in tasks):,}"),
+                 ("fewest errors in one task", min(t.errors for t in tasks))]
+    return rows
+
+
+def model_rows(answers: Any) -> list[tuple[str, Any]]:
+    m = answers.model
+    if m is None:
+        return [("response model", "none: " + "; ".join(answers.notes))]
+    q = m.quality
+    rows: list[tuple[str, Any]] = [
+        ("form", f"{m.form}: 1/Lambda = sum over components of w_c s_c"
+         + (" + v_c s_c^2" if m.form == "quadratic" else "") + "; ln A linear in the s_c; "
+         "eps_d = A Lambda^(-(d+1)/2)"),
+        ("fit quality", q.summary()),
+        ("points fitted", q.num_points),
+        ("chi2 per degree of freedom", text.num(q.chi2_per_dof)),
+        ("largest |residual| (sigma)", text.num(q.max_abs_residual)),
+        ("held-out largest |residual| (sigma)", text.num(q.loo_max_abs_residual)),
+        ("worst point", q.worst_point),
+    ]
+    rows += [(f"weight w_{c} (1/Lambda per unit scale)", text.num(w)) for c, w in m.weights.items()]
+    if m.unsampled:
+        rows.append(("lumped (no own axis, weight split evenly)", ", ".join(m.unsampled)))
+    return rows
+
+
+def report_html(answers: Any, *, target: Target, pngs: Mapping[str, bytes],
+                out_dir: Path | None = None) -> str:
+    """The page as text (``pngs``: PNG bytes by plot name, from plots.render_all)."""
+    goal = target.goal
+    body = [f"<h1>Error-budget report: {esc(target.device.name)}</h1>",
+            f"<p>Target <code>{esc(target.name)}</code>, sha256 <code>{esc(target.sha256[:16])}</code>. "
+            f"{esc(text.INTERVAL_NOTE)}</p>",
+            '<div class="caveats"><strong>Caveats</strong><ul>'
+            + "".join(f"<li>{esc(c)}</li>" for c in CAVEATS) + "</ul></div>",
+            "<h2>Device and goal</h2>", _pairs(device_rows(target)),
+            _pairs([("goal: logical error per cycle", text.num(goal.logical_error_per_cycle)),
+                    ("goal: largest code (physical qubits)", goal.max_qubits)]),
+            "<h2>Sampling</h2>", _pairs(sampling_rows(answers, target, out_dir)),
+            "<h2>Fits and model</h2>", _pairs(model_rows(answers))]
+    body += [table_html(t) for t in text.fits_tables(answers.fits)]
+    if answers.requirements is not None:
+        from planner.reports.files import lambda_today_model
+
+        body.append("<h2>Requirements</h2>")
+        body += [table_html(t) for t in text.requirements_tables(
+            answers.requirements, lambda_today_model=lambda_today_model(answers))]
+    if answers.roadmap is not None:
+        body.append("<h2>Roadmap</h2>")
+        body += [table_html(t) for t in text.roadmap_tables(answers.roadmap)]
+    if answers.sensitivity is not None:
+        lumped = answers.model.unsampled if answers.model is not None else ()
+        body.append("<h2>Sensitivity</h2>")
+        body += [table_html(t) for t in text.sensitivity_tables(answers.sensitivity, lumped=lumped)]
+    if answers.notes:
+        body.append("<h2>Notes</h2><ul>" + "".join(f"<li>{esc(n)}</li>" for n in answers.notes) + "</ul>")
+    if pngs:
+        body.append("<h2>Plots</h2>")
+    for name, data in pngs.items():
+        uri = "data:image/png;base64," + base64.b64encode(data).decode("ascii")
+        caption = PLOT_CAPTIONS.get(name, name)
+        body.append(f'<figure><img alt="{esc(caption)}" src="{uri}"><figcaption>{esc(caption)} '
+                    f"({esc(f'{CONFIDENCE:.0%}')} intervals)</figcaption></figure>")
+    return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+            f"<title>{esc('planner report: ' + target.device.name)}</title>"
+            f"<style>{STYLE}</style></head><body>\n" + "\n".join(body) + "\n</body></html>\n")

@@ -1,0 +1,286 @@
+"""Plots as PNG bytes (matplotlib's object API with the Agg renderer: no display, no pyplot state).
+
+Each ``*_figure`` function returns a :class:`matplotlib.figure.Figure` (or None when its data is
+missing) so tests can look inside; :func:`render_all` turns them into PNG bytes keyed by name.
+Error bars and bands are :data:`~planner.fits.CONFIDENCE` intervals. matplotlib is imported
+inside the functions (it is slow to import and only reports need it).
+"""
+
+from __future__ import annotations
+
+import io
+import math
+from typing import Any
+
+import numpy as np
+
+from planner.config import COMPONENTS, Target
+from planner.fits import CONFIDENCE, FitReport
+from planner.reports.text import num
+
+#: colours of the axes of the sweep (own choice: distinct in print and for common colour blindness)
+COLOURS = {"joint": "#1d3557", "gate_1q": "#e76f51", "gate_2q": "#2a9d8f", "readout": "#8338ec",
+           "reset": "#f4a261", "idle": "#6c757d", "idle_measure": "#d62872"}
+GOAL_COLOUR = "#b5179e"
+THRESHOLD_COLOUR = "#9d0208"
+#: fitted lines are extended towards the goal at most to this distance
+MAX_PLOT_DISTANCE = 101
+DPI = 110
+CL = f"{CONFIDENCE:.0%}"
+
+
+def _figure(width: float, height: float, *, ncols: int = 1, nrows: int = 1, **kw: Any) -> tuple[Any, Any]:
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(width, height), dpi=DPI, layout="constrained")
+    axes = fig.subplots(nrows=nrows, ncols=ncols, squeeze=False, **kw)
+    return fig, axes
+
+
+def png_bytes(fig: Any) -> bytes:
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=DPI)
+    return buf.getvalue()
+
+
+def _plain_log(ax: Any, *, x: bool = True, y: bool = True) -> None:
+    """Log axes with plain tick labels (0.5, 2, 3) where the range spans less than a decade."""
+    from matplotlib.ticker import FormatStrFormatter, NullFormatter
+
+    for on, axis, lim in ((x, ax.xaxis, ax.get_xlim()), (y, ax.yaxis, ax.get_ylim())):
+        if on and lim[0] > 0 and lim[1] / lim[0] < 30:
+            axis.set_major_formatter(FormatStrFormatter("%g"))
+            axis.set_minor_formatter(FormatStrFormatter("%g") if lim[1] / lim[0] < 4 else NullFormatter())
+
+
+def _errbar(ax: Any, x: list[float], iv: list[Any], **kw: Any) -> None:
+    best = np.array([i.best for i in iv])
+    lo = np.clip(best - np.array([i.low for i in iv]), 0, None)
+    hi = np.clip(np.array([i.high for i in iv]) - best, 0, None)
+    ax.errorbar(x, best, yerr=[lo, hi], fmt="o", capsize=3, markersize=4, **kw)
+
+
+def _shade(base: str, k: int, n: int) -> str:
+    """``base`` colour lightened for the k-th of n factors (darkest = smallest factor)."""
+    from matplotlib.colors import to_rgb
+
+    r, g, b = to_rgb(base)
+    t = 0.0 if n <= 1 else 0.6 * k / (n - 1)
+    return "#%02x%02x%02x" % tuple(round(255 * (c + (1 - c) * t)) for c in (r, g, b))
+
+
+# ---------------------------------------------------------------------------------------------
+
+
+def rates_figure(report: FitReport, *, goal: float) -> Any:
+    """Logical error per cycle against distance for each scale point: points with error bars,
+    fitted lines (solid over the sampled distances, dashed beyond, towards the goal)."""
+    if not report.distances:
+        return None
+    axes_names = ["joint"] + sorted({p.axis for p in report.distances} - {"joint"})
+    panels = [["joint"], [a for a in axes_names if a != "joint"]]
+    panels = [p for p in panels if any(d.axis in p for d in report.distances)]
+    fig, axs = _figure(6.0 * len(panels), 4.6, ncols=len(panels), sharey=True)
+    sampled = report.sampled_distances
+    dmin, dmax = min(sampled), max(sampled)
+    for ax, names in zip(axs[0], panels):
+        d_end = dmax
+        for name in names:
+            lfs = sorted((lf for lf in report.lambdas if lf.axis == name), key=lambda lf: lf.factor)
+            for k, lf in enumerate(lfs):
+                colour = _shade(COLOURS.get(name, "#444444"), k, len(lfs))
+                label = f"{name} x{lf.factor:g}"
+                pts = sorted((p for p in report.distances if p.axis == name and p.factor == lf.factor),
+                             key=lambda p: p.distance)
+                _errbar(ax, [p.distance for p in pts], [p.per_cycle for p in pts], color=colour, label=label)
+                for p in pts:
+                    if p.zero_errors:
+                        ax.plot([p.distance], [p.per_cycle.high], marker="v", color=colour, markersize=7)
+                if lf.suppression is None or lf.ln_prefactor is None:
+                    continue
+                ln_a, ln_lam = lf.ln_prefactor.best, math.log(lf.suppression.best)
+                stop = dmax
+                if ln_lam > 0:
+                    d_goal = 2 * (ln_a - math.log(goal)) / ln_lam - 1
+                    stop = min(max(d_goal, dmax), MAX_PLOT_DISTANCE)
+                d_end = max(d_end, stop)
+                inside = np.linspace(dmin, dmax, 20)
+                beyond = np.linspace(dmax, stop, 60)
+                line = lambda d: np.exp(ln_a - (d + 1) / 2 * ln_lam)  # noqa: E731
+                ax.plot(inside, line(inside), "-", color=colour, linewidth=1.4)
+                if stop > dmax:
+                    ax.plot(beyond, line(beyond), "--", color=colour, linewidth=1.1)
+        ax.axhline(goal, color=GOAL_COLOUR, linewidth=1.5, linestyle=":", label=f"goal {goal:g}")
+        ax.set_yscale("log")
+        ax.set_xlim(dmin - 1, d_end + 2)
+        ax.set_xlabel("code distance d")
+        ax.set_title("joint axis (all components x factor)" if names == ["joint"]
+                     else "one component x factor, others today")
+        ax.grid(True, which="major", alpha=0.3)
+        ax.legend(fontsize=7, ncol=2 if len(ax.get_legend_handles_labels()[0]) > 8 else 1)
+    axs[0][0].set_ylabel("logical error per cycle")
+    fig.suptitle(f"Logical error per cycle ({CL} intervals); dashed: fitted line extrapolated")
+    return fig
+
+
+def lambda_joint_figure(report: FitReport, model: Any = None) -> Any:
+    """Lambda against the joint scale factor: points, interval band, Lambda = 1 and the threshold."""
+    joint = sorted((lf for lf in report.lambdas if lf.axis == "joint" and lf.suppression), key=lambda lf: lf.factor)
+    if not joint:
+        return None
+    fig, axs = _figure(6.4, 4.6)
+    ax = axs[0][0]
+    x = [lf.factor for lf in joint]
+    ivs = [lf.suppression for lf in joint]
+    if len(joint) > 1:
+        ax.fill_between(x, [i.low for i in ivs], [i.high for i in ivs], color=COLOURS["joint"], alpha=0.18,
+                        label=f"{CL} interval")
+    _errbar(ax, x, ivs, color=COLOURS["joint"], label="fitted Lambda")
+    lo, hi = min(x) / 1.3, max(x) * 1.3
+    th = report.threshold
+    if model is not None:
+        s = np.geomspace(lo, hi, 80)
+        lam = model.suppression_array(np.repeat(s[:, None], len(COMPONENTS), axis=1))
+        ax.plot(s, lam, "--", color="#555555", linewidth=1.1, label=f"response model ({model.form})")
+    ax.axhline(1.0, color=THRESHOLD_COLOUR, linewidth=1.2, label="Lambda = 1 (threshold)")
+    if th.factor is not None:
+        ax.axvline(th.factor.best, color=THRESHOLD_COLOUR, linestyle=":",
+                   label=f"threshold at joint x{th.factor.best:.3g}")
+        left = th.factor.low if th.factor.low > 0 else lo
+        right = th.factor.high if math.isfinite(th.factor.high) else hi
+        ax.axvspan(left, right, color=THRESHOLD_COLOUR, alpha=0.08)
+    else:
+        ax.text(0.02, 0.03, th.note, transform=ax.transAxes, fontsize=7, wrap=True)
+    ax.axvline(1.0, color="#999999", linewidth=0.8)
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlim(lo, hi)
+    ax.set_xlabel("joint scale factor (x today's error on every component)")
+    ax.set_ylabel("suppression factor Lambda (eps_d / eps_d+2)")
+    ax.set_title(f"Lambda against the joint scale ({CL} intervals)")
+    _plain_log(ax)
+    ax.grid(True, which="both", alpha=0.25)
+    ax.legend(fontsize=8)
+    return fig
+
+
+def lambda_components_figure(report: FitReport) -> Any:
+    """Lambda against each component's own factor (others today); today's point is shared."""
+    names = sorted({lf.axis for lf in report.lambdas if lf.axis != "joint" and lf.suppression},
+                   key=lambda c: COMPONENTS.index(c) if c in COMPONENTS else 99)
+    if not names:
+        return None
+    today = report.today()
+    fig, axs = _figure(6.4, 4.6)
+    ax = axs[0][0]
+    for k, name in enumerate(names):
+        pts = [lf for lf in report.lambdas if lf.axis == name and lf.suppression]
+        if today is not None and today.suppression is not None:
+            pts.append(today)
+        pts.sort(key=lambda lf: lf.factor)
+        x = [lf.factor * (1 + 0.012 * (k - len(names) / 2)) for lf in pts]  # a small dodge
+        colour = COLOURS.get(name, "#444444")
+        _errbar(ax, x, [lf.suppression for lf in pts], color=colour, label=name)
+        ax.plot(x, [lf.suppression.best for lf in pts], "-", color=colour, linewidth=1.2)
+    ax.axhline(1.0, color=THRESHOLD_COLOUR, linewidth=1.2, label="Lambda = 1 (threshold)")
+    ax.axvline(1.0, color="#999999", linewidth=0.8)
+    ax.set_xscale("log")
+    ax.set_xlabel("component scale factor (x today's error, others at today)")
+    ax.set_ylabel("suppression factor Lambda (eps_d / eps_d+2)")
+    ax.set_title(f"Lambda against each component ({CL} intervals)")
+    _plain_log(ax, y=False)
+    ax.grid(True, which="both", alpha=0.25)
+    ax.legend(fontsize=8)
+    return fig
+
+
+def budget_figure(sens: Any, *, lumped: tuple[str, ...] = ()) -> Any:
+    """Each component's share of 1/Lambda at today's point (horizontal bars, most limiting on top)."""
+    if sens is None or not sens.rows:
+        return None
+    rows = list(reversed(sens.rows))
+    fig, axs = _figure(6.4, 0.5 * len(rows) + 1.6)
+    ax = axs[0][0]
+    labels = [r.component + (" (lumped)" if r.component in lumped else "") for r in rows]
+    shares = [100 * r.share for r in rows]
+    bars = ax.barh(labels, shares, color=[COLOURS.get(r.component, "#444444") for r in rows])
+    for bar, r in zip(bars, rows):
+        if r.component in lumped:
+            bar.set_hatch("//")
+    for y, v in enumerate(shares):
+        ax.text(v, y, f" {v:.1f}%", va="center", fontsize=8)
+    ax.set_xlim(0, max(shares + [1.0]) * 1.18)
+    ax.set_xlabel("share of 1/Lambda at today's point (%)")
+    ax.set_title(f"Error budget: Lambda today {num(sens.suppression_today)} (model point values)")
+    ax.grid(True, axis="x", alpha=0.3)
+    return fig
+
+
+def roadmap_figure(rm: Any, model: Any, target: Target) -> Any:
+    """eps at the candidate distances against date (log y) with the goal, and the physical qubits
+    needed over time (lower panel), at the central rates."""
+    if rm is None or model is None or target.roadmap is None:
+        return None
+    from planner.planning.ask import smallest_distance
+    from planner.planning.model import physical_qubits
+    from planner.planning.roadmap import STEPS_PER_YEAR, RateSet, years_to_date
+
+    horizon = target.roadmap.horizon_years
+    rates = RateSet.from_rates(target.roadmap.rates)
+    t = np.linspace(0.0, horizon, int(horizon * 12) + 1)
+    scales = rates.scales(t)
+    dates = [years_to_date(rm.start, float(y)) for y in t]
+    fig, axs = _figure(7.2, 6.2, nrows=2, sharex=True, height_ratios=[3, 2])
+    top, bottom = axs[0][0], axs[1][0]
+    n = len(rm.candidate_distances)
+    for k, d in enumerate(rm.candidate_distances):
+        colour = _shade(COLOURS["joint"], n - 1 - k, n)
+        top.plot(dates, np.exp(model.ln_eps_array(scales, d)), "-", color=colour, label=f"d = {d}")
+        top.plot([s.date for s in rm.steps], [s.eps[d] for s in rm.steps], "o", color=colour, markersize=3)
+    top.axhline(rm.eps_target, color=GOAL_COLOUR, linestyle=":", linewidth=1.5, label=f"goal {rm.eps_target:g}")
+    g = rm.goal
+    for ax in (top, bottom):
+        if g.date is not None:
+            ax.axvline(g.date, color=GOAL_COLOUR, linewidth=1.0)
+        if g.low is not None:
+            ax.axvspan(g.low, g.high or dates[-1], color=GOAL_COLOUR, alpha=0.08)
+    top.set_yscale("log")
+    top.set_ylabel("logical error per cycle")
+    top.set_title("Roadmap at the central rates" + (f": goal met {g.date}" if g.date else ": goal not met"))
+    top.grid(True, which="major", alpha=0.3)
+    top.legend(fontsize=8, ncol=2)
+    per = STEPS_PER_YEAR[rm.step]
+    ts = np.arange(0, int(horizon * per) + 1) / per
+    qdates, qubits = [], []
+    for y, row in zip(ts, rates.scales(ts)):
+        d = smallest_distance(model, dict(zip(COMPONENTS, row.tolist())), rm.eps_target)
+        qdates.append(years_to_date(rm.start, float(y)))
+        qubits.append(physical_qubits(d) if d is not None else np.nan)
+    bottom.step(qdates, qubits, where="post", color=COLOURS["gate_2q"], label="physical qubits needed (2d^2-1)")
+    bottom.axhline(rm.max_qubits, color="#333333", linestyle="--", linewidth=1.0,
+                   label=f"goal.max_qubits {rm.max_qubits}")
+    bottom.set_yscale("log")
+    bottom.set_ylabel("physical qubits")
+    bottom.set_xlabel("date")
+    bottom.grid(True, which="major", alpha=0.3)
+    bottom.legend(fontsize=8)
+    return fig
+
+
+def figures(answers: Any, *, target: Target) -> dict[str, Any]:
+    """All figures that have data, by file stem."""
+    report = answers.fits
+    lumped = answers.model.unsampled if answers.model is not None else ()
+    figs = {
+        "logical_error_vs_distance": rates_figure(report, goal=target.goal.logical_error_per_cycle),
+        "lambda_vs_joint_scale": lambda_joint_figure(report, answers.model),
+        "lambda_vs_component_scale": lambda_components_figure(report),
+        "inverse_lambda_budget": budget_figure(answers.sensitivity, lumped=tuple(lumped)),
+        "roadmap": roadmap_figure(answers.roadmap, answers.model, target),
+    }
+    return {k: v for k, v in figs.items() if v is not None}
+
+
+def render_all(answers: Any, *, target: Target) -> dict[str, bytes]:
+    """PNG bytes of every figure with data, by file stem."""
+    return {name: png_bytes(fig) for name, fig in figures(answers, target=target).items()}
