@@ -49,6 +49,13 @@ def _full_rows(store: SampleStore) -> list[tuple[str, str]]:
     return out
 
 
+def _safe_stats(store: SampleStore) -> list[sinter.TaskStats]:
+    try:
+        return store.stats()
+    except FileNotFoundError:  # the shard directory appears with the first writer
+        return []
+
+
 def test_sigkill_at_random_moments_then_resume(tmp_path: Path) -> None:
     script = tmp_path / "child.py"
     script.write_text(CHILD)
@@ -57,9 +64,14 @@ def test_sigkill_at_random_moments_then_resume(tmp_path: Path) -> None:
     rng = random.Random(20240611)
     survived: set[str] = set()
     kills = 0
-    for _ in range(3):
+    # kill when a random share of the work is on disk (robust to machine speed), plus a random
+    # few milliseconds so the kill lands anywhere in a batch or a write
+    for low, high in ((0.05, 0.25), (0.35, 0.55), (0.65, 0.85)):
+        goal = rng.uniform(low, high) * 3 * MAX_SHOTS
         proc = subprocess.Popen([sys.executable, str(script), str(out)], start_new_session=True)
-        time.sleep(rng.uniform(0.8, 2.0))
+        while proc.poll() is None and sum(s.shots for s in _safe_stats(store)) < goal:
+            time.sleep(0.01)
+        time.sleep(rng.uniform(0.0, 0.05))
         if proc.poll() is None:
             os.killpg(proc.pid, signal.SIGKILL)  # the sweep and its sinter workers, mid-flight
             kills += 1
