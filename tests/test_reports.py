@@ -1,0 +1,314 @@
+"""Report files from one small real sweep: every file is produced and parses, the numbers agree
+across Markdown, CSV, JSON and HTML, writes are atomic, and an unwritable out dir is one clear
+error."""
+
+from __future__ import annotations
+
+import base64
+import csv
+import dataclasses
+import json
+import math
+from html.parser import HTMLParser
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pytest
+from rich.console import Console
+
+from planner.config import COMPONENTS, EXAMPLE_TOML, load_target, parse_target
+from planner.errors import InputError
+from planner.planning import answer_all
+from planner.reports import files, plots, text
+from planner.sampling import run_sweep
+from planner.store import SampleStore
+from planner.sweep import StoppingRule, plan_sweep
+
+#: small but real: 4 scale points x d = 3, 5 x two bases, 200 errors or 50k shots per task
+RULE = StoppingRule(max_errors=200, max_shots=50_000)
+ROADMAP = """
+[roadmap]
+start = 2030-01-01
+horizon_years = 10
+step = "year"
+[roadmap.rates]
+gate_2q = { per_year = 0.2, spread = 0.05 }
+readout = { halving_years = 3.0 }
+"""
+TARGET_TOML = EXAMPLE_TOML.replace(
+    "joint_scales = [0.5, 1.0]",
+    'joint_scales = [0.5, 1.0]\ncomponent_scales = [0.5]\ncomponents = ["gate_2q", "readout"]') + ROADMAP
+NO_ROADMAP_TOML = TARGET_TOML.replace(ROADMAP, "")
+
+EXPECTED = {"requirements.md", "requirements.csv", "roadmap.md", "roadmap.csv", "roadmap_dates.csv",
+            "sensitivity.md", "sensitivity.csv", "fits.json", "report.html",
+            *(f"plots/{n}.png" for n in ("logical_error_vs_distance", "lambda_vs_joint_scale",
+                                         "lambda_vs_component_scale", "inverse_lambda_budget", "roadmap"))}
+
+
+@dataclasses.dataclass(frozen=True)
+class Built:
+    out: Path
+    target: Any
+    stats: list
+    answers: Any
+    written: list[Path]
+
+
+@pytest.fixture(scope="module")
+def built(tmp_path_factory: pytest.TempPathFactory) -> Built:
+    root = tmp_path_factory.mktemp("reports")
+    path = root / "small.toml"
+    path.write_text(TARGET_TOML)
+    target = load_target(path)
+    out = root / "out"
+    store = SampleStore(out)
+    run_sweep(plan_sweep(target).tasks, store=store, rule=RULE, workers=2, target=target,
+              console=Console(stderr=True, quiet=True))
+    stats = store.stats()
+    answers = answer_all(target, stats, seed=0)
+    written = files.write_all(answers, out_dir=out, target=target)
+    return Built(out, target, stats, answers, written)
+
+
+def _read_csv(path: Path) -> list[dict[str, str]]:
+    with path.open(newline="") as fh:
+        return list(csv.DictReader(fh))
+
+
+def _header(path: Path) -> list[str]:
+    with path.open(newline="") as fh:
+        return next(csv.reader(fh))
+
+
+class _Page(HTMLParser):
+    """Collects tags, image sources, links and the cell texts of every table row."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.tags: list[str] = []
+        self.images: list[str] = []
+        self.links: list[str] = []
+        self.rows: list[list[str]] = []
+        self.text: list[str] = []
+        self._cell: list[str] | None = None
+
+    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        self.tags.append(tag)
+        a = dict(attrs)
+        if tag == "img":
+            self.images.append(a.get("src") or "")
+        for k in ("href", "src"):
+            if k in a and tag != "img":
+                self.links.append(a[k] or "")
+        if tag == "tr":
+            self.rows.append([])
+        if tag in ("td", "th"):
+            self._cell = []
+
+    def handle_endtag(self, tag: str) -> None:
+        if tag in ("td", "th") and self._cell is not None:
+            self.rows[-1].append("".join(self._cell))
+            self._cell = None
+
+    def handle_data(self, data: str) -> None:
+        self.text.append(data)
+        if self._cell is not None:
+            self._cell.append(data)
+
+
+def _page(path: Path) -> _Page:
+    p = _Page()
+    p.feed(path.read_text())
+    p.close()
+    return p
+
+
+def _md_rows(path: Path) -> list[list[str]]:
+    rows = []
+    for line in path.read_text().splitlines():
+        if line.startswith("| "):
+            rows.append([c.strip().replace("\\|", "|") for c in line.strip()[2:-2].split(" | ")])
+    return rows
+
+
+# ---------------------------------------------------------------------------------------------
+
+
+def test_every_file_is_written(built: Built) -> None:
+    rel = {p.relative_to(built.out).as_posix() for p in built.written}
+    assert rel == EXPECTED
+    assert all((built.out / r).is_file() and (built.out / r).stat().st_size > 0 for r in rel)
+
+
+def test_csv_files_have_the_expected_columns(built: Built) -> None:
+    assert _header(built.out / "requirements.csv") == list(files.REQUIREMENTS_COLUMNS)
+    rows = _read_csv(built.out / "requirements.csv")
+    levers = [r["lever"] for r in rows if r["quantity"] == "factor_needed"]
+    assert levers == ["joint", *COMPONENTS]
+    for r in rows:  # numbers or empty, never a formatted interval
+        for k in ("best", "low", "high"):
+            assert r[k] == "" or math.isfinite(float(r[k])), r
+    assert _header(built.out / "sensitivity.csv") == list(files.SENSITIVITY_COLUMNS)
+    sens = _read_csv(built.out / "sensitivity.csv")
+    assert sorted(r["component"] for r in sens) == sorted(COMPONENTS)
+    assert math.isclose(sum(float(r["share_of_inverse_lambda"]) for r in sens), 1.0, rel_tol=1e-9)
+    rm = built.answers.roadmap
+    head = _header(built.out / "roadmap.csv")
+    assert head[:2] == ["date", "years"]
+    assert [h for h in head if h.startswith("scale_")] == [f"scale_{c}" for c in COMPONENTS]
+    assert [h for h in head if h.startswith("eps_d")] == [f"eps_d{d}" for d in rm.candidate_distances]
+    steps = _read_csv(built.out / "roadmap.csv")
+    assert len(steps) == len(rm.steps) and steps[0]["date"] == "2030-01-01"
+    assert _header(built.out / "roadmap_dates.csv") == list(files.DATES_COLUMNS)
+    assert [r["event"] for r in _read_csv(built.out / "roadmap_dates.csv")] == ["goal", "Lambda >= 2",
+                                                                               "Lambda >= 4"]
+
+
+def test_fits_json_carries_the_target_and_the_confidence(built: Built) -> None:
+    doc = json.loads((built.out / "fits.json").read_text())
+    assert doc["confidence"] == 0.95
+    assert doc["target"]["sha256"] == built.target.sha256 and doc["target"]["name"] == "small"
+    assert {"fits", "model", "requirements", "roadmap", "sensitivity", "uncertainty"} <= doc.keys()
+    lam = [x for x in doc["fits"]["lambda"] if x["axis"] == "joint" and x["factor"] == 1.0]
+    assert len(lam) == 1 and set(lam[0]["suppression_factor"]) == {"best", "low", "high"}
+
+
+def test_pngs_decode_and_are_not_blank(built: Built) -> None:
+    from matplotlib.image import imread
+
+    for name in (p for p in EXPECTED if p.endswith(".png")):
+        img = imread(built.out / name)
+        assert img.ndim == 3 and img.shape[0] > 200 and img.shape[1] > 300, name
+        assert float(np.var(img[..., :3])) > 0, name
+
+
+def test_html_is_self_contained_and_embeds_every_plot(built: Built) -> None:
+    page = _page(built.out / "report.html")
+    assert page.links == []  # no stylesheet, script or image link to anything outside
+    assert "script" not in page.tags and "link" not in page.tags
+    pngs = sorted((built.out / "plots").glob("*.png"))
+    assert len(page.images) == len(pngs) == 5
+    embedded = []
+    for src in page.images:
+        assert src.startswith("data:image/png;base64,")
+        embedded.append(base64.b64decode(src.split(",", 1)[1], validate=True))
+    assert sorted(embedded) == sorted(p.read_bytes() for p in pngs)
+    body = " ".join(page.text)
+    assert "check against the device" in body.lower() or "check them against the device" in body.lower()
+    assert "No substitute for the team's own validation" in body
+    assert built.target.device.name in body and "1e-06" in body
+
+
+def test_html_escapes_text(built: Built, tmp_path: Path) -> None:
+    target = parse_target(TARGET_TOML.replace('name = "example"', 'name = "<b>chip & co</b>"'))
+    html_text = (files.write_all(built.answers, out_dir=tmp_path, target=target)[-1]).read_text()
+    assert "&lt;b&gt;chip &amp; co&lt;/b&gt;" in html_text and "<b>chip" not in html_text
+
+
+def test_tables_read_the_same_in_markdown_and_html(built: Built) -> None:
+    page_rows = _page(built.out / "report.html").rows
+    for md in ("requirements.md", "roadmap.md", "sensitivity.md"):
+        rows = _md_rows(built.out / md)
+        assert len(rows) > 3
+        for r in rows:
+            assert r in page_rows, (md, r)
+
+
+def test_joint_factor_and_lambda_today_agree_everywhere(built: Built) -> None:
+    doc = json.loads((built.out / "fits.json").read_text())
+    joint = doc["requirements"]["joint"]["factor_interval"]
+    today = next(x for x in doc["fits"]["lambda"] if x["axis"] == "joint" and x["factor"] == 1.0)
+    today = today["suppression_factor"]
+    rows = {(r["quantity"], r["lever"]): r for r in _read_csv(built.out / "requirements.csv")}
+    for key, iv in ((("factor_needed", "joint"), joint), (("suppression_factor_today_fitted", "joint"), today)):
+        for k in ("best", "low", "high"):
+            assert float(rows[key][k]) == iv[k]  # full precision round trip
+    md = (built.out / "requirements.md").read_text()
+    html_text = " ".join(_page(built.out / "report.html").text)
+    for iv in (joint, today):
+        shown = text.span(iv["best"], iv["low"], iv["high"])
+        assert shown in md and shown in html_text, shown
+    assert md.count(text.span(joint["best"], joint["low"], joint["high"])) == 1
+
+
+def test_markdown_states_the_interval_once_and_a_caveat_under_each_table(built: Built) -> None:
+    for name in ("requirements.md", "roadmap.md", "sensitivity.md"):
+        md = (built.out / name).read_text()
+        assert md.count("95% confidence") == 1, name
+        tables = md.count("\n## ")
+        assert tables >= 1 and md.count(f"_{text.CAVEAT}_") == tables, name
+        assert sum(line.startswith("|---|") for line in md.splitlines()) == tables
+    req = (built.out / "requirements.md").read_text()
+    assert "(x today's error)" in req and "(ratio)" in req  # units in the headers
+    rj = built.answers.requirements.to_json()
+    extrapolated = any(c["extrapolation"] for c in (rj["joint"], rj["cheapest_mix"], *rj["components"]))
+    cells = [c for row in _md_rows(built.out / "requirements.md") for c in row]
+    assert any(text.EXTRAPOLATED in c for c in cells) == extrapolated
+
+
+def test_rate_plot_draws_the_goal_and_dashes_the_extrapolation(built: Built) -> None:
+    goal = built.target.goal.logical_error_per_cycle
+    fig = plots.rates_figure(built.answers.fits, goal=goal)
+    ax = fig.axes[0]
+    assert any(list(line.get_ydata()) == [goal, goal] for line in ax.get_lines())
+    # the goal (1e-6) is far below the sampled rates (~1e-2), so every line goes on dashed
+    assert sum(line.get_linestyle() == "--" for line in ax.get_lines()) == 2
+    assert ax.get_yscale() == "log" and ax.get_xlabel() == "code distance d"
+    lam = plots.lambda_joint_figure(built.answers.fits, built.answers.model).axes[0]
+    assert any(list(line.get_ydata()) == [1.0, 1.0] for line in lam.get_lines())
+
+
+def test_no_temporary_files_are_left(built: Built) -> None:
+    leftovers = [p for p in built.out.rglob("*") if p.name.endswith(".tmp")]
+    assert leftovers == []
+
+
+def test_a_failed_write_keeps_the_old_file(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    path = files.write_atomic(tmp_path / "a.csv", "old\n")
+
+    def broken(src: str, dst: str) -> None:
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(files.os, "replace", broken)
+    with pytest.raises(InputError, match="a.csv: cannot write: No space left"):
+        files.write_atomic(path, "new\n" * 1000)
+    assert path.read_text() == "old\n"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["a.csv"]
+
+
+def test_unwritable_out_dir_is_an_input_error(built: Built, tmp_path: Path) -> None:
+    blocker = tmp_path / "a-file"
+    blocker.write_text("x")
+    with pytest.raises(InputError, match="a-file: cannot write reports"):
+        files.write_all(built.answers, out_dir=blocker, target=built.target)
+    with pytest.raises(InputError, match="a-file/sub: cannot write reports"):
+        files.write_requirements(built.answers.requirements, blocker / "sub")
+    assert blocker.read_text() == "x"
+
+
+def test_no_roadmap_section_writes_no_roadmap_files(built: Built, tmp_path: Path) -> None:
+    target = parse_target(NO_ROADMAP_TOML, source="noroad.toml")
+    answers = answer_all(target, built.stats, seed=0, replicas=20)
+    rel = {p.relative_to(tmp_path).as_posix() for p in files.write_all(answers, out_dir=tmp_path, target=target)}
+    assert rel == {r for r in EXPECTED if "roadmap" not in r}
+    assert "Roadmap" not in (tmp_path / "report.html").read_text()
+
+
+def test_single_distance_writes_what_it_can(built: Built, tmp_path: Path) -> None:
+    stats = [s for s in built.stats if s.json_metadata["d"] == 3]
+    answers = answer_all(built.target, stats, seed=0)
+    assert answers.model is None
+    rel = {p.relative_to(tmp_path).as_posix() for p in files.write_all(answers, out_dir=tmp_path, target=built.target)}
+    assert rel == {"fits.json", "report.html", "plots/logical_error_vs_distance.png"}
+    assert "only distance 3 sampled" in (tmp_path / "report.html").read_text()
+    assert json.loads((tmp_path / "fits.json").read_text())["requirements"] is None
+
+
+@pytest.mark.xfail(strict=True, reason="planner/store.py treats an out dir holding *.csv report files "
+                   "as a shard directory (SampleStore picks root over root/samples), so samples cannot "
+                   "be read back once requirements.csv exists: store owner to fix")
+def test_samples_still_read_after_reports_are_written(built: Built) -> None:
+    again = SampleStore(built.out).stats()
+    assert sum(s.shots for s in again) == sum(s.shots for s in built.stats)
