@@ -214,14 +214,20 @@ class ShardWriter:
 class SampleStore:
     """The sample shards of one out directory (``root/samples``) or of a shard directory.
 
-    ``root`` may be an out directory (shards live in ``root/samples/``) or a directory that
-    already holds shard files, or one named ``samples``.
+    ``root`` may be an out directory (shards live in ``root/samples/``), a directory named
+    ``samples``, or a bare directory of shard files (no ``samples/`` inside, no manifest). An
+    out directory also holds report CSVs (requirements.csv, ...): those are never shards.
     """
 
     def __init__(self, root: Path | str) -> None:
         root = Path(root)
         self.root = root
-        direct = root.name == "samples" or (root.is_dir() and any(root.glob("*" + SHARD_SUFFIX)))
+        if root.name == "samples":
+            direct = True
+        elif (root / "samples").is_dir() or (root / "manifest.json").exists():
+            direct = False
+        else:
+            direct = root.is_dir() and any(root.glob("*" + SHARD_SUFFIX))
         self.samples_dir = root if direct else root / "samples"
 
     def shard_files(self) -> list[Path]:

@@ -125,6 +125,15 @@ def test_chunk_ids_with_commas_are_rejected(tmp_path: Path) -> None:
         w.append(_stats("s1", 1, 0), chunk_id="a,b")
 
 
+def test_report_csvs_in_an_out_dir_are_not_shards(tmp_path: Path) -> None:
+    store = SampleStore(tmp_path)
+    _fill(store)
+    (tmp_path / "requirements.csv").write_text("component,factor\ngate_2q,0.5\n")
+    again = SampleStore(tmp_path)
+    assert again.samples_dir == tmp_path / "samples"
+    assert _totals(again) == EXPECTED
+
+
 def test_plain_sinter_csv_is_read(tmp_path: Path) -> None:
     (tmp_path / "samples").mkdir()
     path = tmp_path / "samples" / "plain.csv"
