@@ -13,7 +13,7 @@ from typing import Any
 
 import sinter
 
-from planner.config import Target, load_target
+from planner.config import COMPONENTS, Target, load_target
 from planner.errors import InputError
 from planner.fits import CONFIDENCE, FitReport, fit_stats
 from planner.planning.ask import (
@@ -76,7 +76,8 @@ def no_model_reason(report: FitReport) -> str:
 def answer_all(target: Target, stats: Sequence[sinter.TaskStats], *, seed: int = 0, replicas: int = 200,
                eps_target: float | None = None, distance: int | None = None,
                qubits: int | None = None) -> Answers:
-    """Fits, model, requirements (with bootstrap intervals), roadmap and sensitivity."""
+    """Fits, model, requirements, roadmap and sensitivity; with ``replicas > 0`` every figure
+    derived from the model carries a bootstrap interval (``replicas=0``: best values only)."""
     report = fit_stats(stats)
     if not report.tasks:
         raise InputError("no samples with shots to fit")
@@ -84,11 +85,13 @@ def answer_all(target: Target, stats: Sequence[sinter.TaskStats], *, seed: int =
         return Answers(report, None, None, None, None, None, (no_model_reason(report),))
     model = fit_model(report)
     req = requirements(model, target, eps_target=eps_target, distance=distance, qubits=qubits, report=report)
-    unc = bootstrap(stats, report, model, req, replicas=replicas, seed=seed) if replicas > 0 else None
+    unc = bootstrap(stats, report, model, req, replicas=replicas, seed=seed,
+                    costs={c: target.cost(c) for c in COMPONENTS}) if replicas > 0 else None
     if unc is not None:
         req = with_intervals(req, unc)
-    rm = build_roadmap(target, model, seed=seed, models=unc.models if unc else (), eps_target=eps_target)
-    return Answers(report, model, req, rm, sensitivity(model, target), unc)
+    models = unc.models if unc else ()
+    rm = build_roadmap(target, model, seed=seed, models=models, eps_target=eps_target)
+    return Answers(report, model, req, rm, sensitivity(model, target, models=models), unc)
 
 
 def load_out_dir(directory: str | Path) -> tuple[Target, list[sinter.TaskStats]]:

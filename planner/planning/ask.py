@@ -42,11 +42,14 @@ class FactorAnswer:
     note: str = ""
     extrapolation: tuple[str, ...] = ()
     factor_interval: Interval | None = None
+    #: bootstrap interval of :attr:`suppression` (same meaning: at the solution, or perfect)
+    suppression_interval: Interval | None = None
 
     def to_json(self) -> dict[str, Any]:
         return {"lever": self.lever, "reachable": self.reachable, "factor": self.factor,
                 "suppression_factor": _fin(self.suppression), "note": self.note,
-                "extrapolation": list(self.extrapolation), "factor_interval": _ivj(self.factor_interval)}
+                "extrapolation": list(self.extrapolation), "factor_interval": _ivj(self.factor_interval),
+                "suppression_factor_interval": _ivj(self.suppression_interval)}
 
 
 def _fin(x: float | None) -> float | None:
@@ -55,7 +58,12 @@ def _fin(x: float | None) -> float | None:
 
 @dataclasses.dataclass(frozen=True)
 class MixAnswer:
-    """The cheapest set of factors: minimises sum_c cost_c * log2(1/s_c) subject to the goal."""
+    """The cheapest set of factors: minimises sum_c cost_c * log2(1/s_c) subject to the goal.
+
+    ``cost_shares``: each component's part of :attr:`cost` (fractions summing to 1; empty when
+    the cost is 0). The ``*_interval(s)`` fields are bootstrap intervals (the mix re-solved on
+    each replica model), None until :func:`planner.planning.uncertainty.with_intervals` runs.
+    """
 
     reachable: bool
     scales: dict[str, float]
@@ -64,12 +72,27 @@ class MixAnswer:
     logical_error_per_cycle: float
     note: str = ""
     extrapolation: tuple[str, ...] = ()
+    cost_shares: dict[str, float] = dataclasses.field(default_factory=dict)
+    scale_intervals: dict[str, Interval] = dataclasses.field(default_factory=dict)
+    cost_share_intervals: dict[str, Interval] = dataclasses.field(default_factory=dict)
+    cost_interval: Interval | None = None
+    suppression_interval: Interval | None = None
+
+    def changed(self) -> list[str]:
+        """Components the mix improves (factor below 1), in COMPONENTS order."""
+        return [c for c in COMPONENTS if self.scales.get(c, 1.0) < 1.0]
 
     def to_json(self) -> dict[str, Any]:
         return {"reachable": self.reachable, "scales": dict(self.scales), "cost_halvings": self.cost,
                 "suppression_factor": _fin(self.suppression),
                 "logical_error_per_cycle": _fin(self.logical_error_per_cycle), "note": self.note,
-                "extrapolation": list(self.extrapolation)}
+                "extrapolation": list(self.extrapolation),
+                "halvings": {c: -math.log2(s) if s > 0 else None for c, s in self.scales.items()},
+                "cost_shares": dict(self.cost_shares),
+                "scale_intervals": {c: v.to_json() for c, v in self.scale_intervals.items()},
+                "cost_share_intervals": {c: v.to_json() for c, v in self.cost_share_intervals.items()},
+                "cost_halvings_interval": _ivj(self.cost_interval),
+                "suppression_factor_interval": _ivj(self.suppression_interval)}
 
 
 @dataclasses.dataclass(frozen=True)
@@ -85,6 +108,9 @@ class TodayAnswer:
     logical_error_per_cycle: float  # at the requested distance, model
     note: str = ""
     distance_interval: Interval | None = None
+    suppression_model_interval: Interval | None = None
+    logical_error_per_cycle_interval: Interval | None = None
+    max_qubits: int | None = None
 
     def to_json(self) -> dict[str, Any]:
         return {"suppression_factor_model": _fin(self.suppression_model),
@@ -92,7 +118,9 @@ class TodayAnswer:
                 "above_threshold": self.above_threshold, "distance": self.distance,
                 "physical_qubits": self.physical_qubits, "within_max_qubits": self.within_max_qubits,
                 "logical_error_per_cycle_at_distance": _fin(self.logical_error_per_cycle),
-                "note": self.note, "distance_interval": _ivj(self.distance_interval)}
+                "note": self.note, "distance_interval": _ivj(self.distance_interval),
+                "suppression_factor_model_interval": _ivj(self.suppression_model_interval),
+                "logical_error_per_cycle_at_distance_interval": _ivj(self.logical_error_per_cycle_interval)}
 
 
 @dataclasses.dataclass(frozen=True)
@@ -111,11 +139,13 @@ class Requirements:
     model_form: str
     model_quality: str
     notes: tuple[str, ...] = ()
+    required_suppression_interval: Interval | None = None
 
     def to_json(self) -> dict[str, Any]:
         return {"target_logical_error_per_cycle": self.eps_target, "distance": self.distance,
                 "physical_qubits": self.physical_qubits, "distance_source": self.distance_source,
                 "required_suppression_factor": _fin(self.required_suppression),
+                "required_suppression_factor_interval": _ivj(self.required_suppression_interval),
                 "joint": self.joint.to_json(), "components": [c.to_json() for c in self.components],
                 "cheapest_mix": self.mix.to_json(), "today": self.today.to_json(),
                 "model": {"form": self.model_form, "quality": self.model_quality},
@@ -201,9 +231,24 @@ def mix_cost(scales: Mapping[str, float], costs: Mapping[str, float]) -> float:
     return float(sum(costs.get(c, 1.0) * -math.log2(s) for c, s in scales.items() if s < 1))
 
 
+def cost_shares(scales: Mapping[str, float], costs: Mapping[str, float]) -> dict[str, float]:
+    """Each improved component's fraction of :func:`mix_cost` (empty when nothing improves).
+
+    >>> cost_shares({"gate_2q": 0.25, "readout": 0.5, "reset": 1.0}, {"gate_2q": 1.0, "readout": 3.0})
+    {'gate_2q': 0.4, 'readout': 0.6}
+    """
+    total = mix_cost(scales, costs)
+    if total <= 0:
+        return {}
+    return {c: costs.get(c, 1.0) * -math.log2(s) / total for c, s in scales.items() if s < 1}
+
+
 def cheapest_mix(model: ResponseModel, *, distance: int, eps_target: float, costs: Mapping[str, float],
-                 starts: tuple[dict[str, float], ...] = ()) -> MixAnswer:
-    """Minimise sum_c cost_c log2(1/s_c) over s_c in (0, 1] with eps_distance(s) <= eps_target."""
+                 starts: tuple[dict[str, float], ...] = (), default_starts: bool = True) -> MixAnswer:
+    """Minimise sum_c cost_c log2(1/s_c) over s_c in (0, 1] with eps_distance(s) <= eps_target.
+
+    ``starts`` seed the optimiser; ``default_starts=False`` uses only them (the bootstrap re-solves
+    each replica from the original answer, which is close, to stay fast)."""
     ln_t = math.log(eps_target)
     today = {c: 1.0 for c in COMPONENTS}
     if model.ln_eps(today, distance) <= ln_t:
@@ -224,8 +269,9 @@ def cheapest_mix(model: ResponseModel, *, distance: int, eps_target: float, cost
 
     best: np.ndarray | None = None
     x0s = [np.array([-math.log2(max(st.get(c, 1.0), 2 ** -MAX_HALVINGS)) for c in levers]) for st in starts]
-    x0s.append(np.full(len(levers), 1.0))
-    x0s.append(np.full(len(levers), 4.0))
+    if default_starts or not x0s:
+        x0s.append(np.full(len(levers), 1.0))
+        x0s.append(np.full(len(levers), 4.0))
     for x0 in x0s:
         r = minimize(lambda u: float(cost @ u), x0, jac=lambda u: cost, method="SLSQP",
                      bounds=[(0.0, MAX_HALVINGS)] * len(levers),
@@ -244,7 +290,7 @@ def cheapest_mix(model: ResponseModel, *, distance: int, eps_target: float, cost
     s = {c: (1.0 if v > 1 - 1e-12 else v) for c, v in s.items()}
     return MixAnswer(True, s, mix_cost(s, costs), model.suppression(s),
                      model.logical_error_per_cycle(s, distance),
-                     extrapolation=tuple(model.extrapolation(s)))
+                     extrapolation=tuple(model.extrapolation(s)), cost_shares=cost_shares(s, costs))
 
 
 def required_suppression(model: ResponseModel, *, distance: int, eps_target: float) -> float:
@@ -269,7 +315,7 @@ def today_answer(model: ResponseModel, report: FitReport | None, *, distance: in
         note = "" if physical_qubits(d) <= max_qubits else \
             f"needs {physical_qubits(d)} qubits, more than goal.max_qubits = {max_qubits}"
     return TodayAnswer(lam, fitted, above, d, physical_qubits(d) if d else None,
-                       bool(d and physical_qubits(d) <= max_qubits), eps_at, note)
+                       bool(d and physical_qubits(d) <= max_qubits), eps_at, note, max_qubits=max_qubits)
 
 
 def requirements(model: ResponseModel, target: Target, *, eps_target: float | None = None,

@@ -6,7 +6,8 @@ A rate ``per_year = f`` removes the fraction f of a component's error each year:
 is met at t when some odd distance within ``goal.max_qubits`` has eps_d(s(t)) <= goal. With a
 spread on the rates (1 sigma), rates are sampled (normal, clipped to the allowed range) and the
 dates come with a :data:`~planner.fits.CONFIDENCE` range; bootstrap models, when given, are
-paired with the samples so the range also covers the fit's uncertainty.
+paired with the samples so the range also covers the fit's uncertainty. The table's rows (central
+rates) get their Lambda and eps intervals from the bootstrap models alone.
 
 >>> round(scale_at(per_year=0.2, halving_years=None, years=2.0), 4), scale_at(per_year=None, halving_years=2.0, years=4.0)
 (0.64, 0.25)
@@ -23,9 +24,10 @@ from typing import Any
 import numpy as np
 
 from planner.config import COMPONENTS, Rate, Target
-from planner.fits import CONFIDENCE
+from planner.fits import CONFIDENCE, Interval
 from planner.planning.ask import smallest_distance
 from planner.planning.model import ResponseModel, largest_distance_within, physical_qubits
+from planner.planning.uncertainty import replica_interval
 
 STEPS_PER_YEAR = {"quarter": 4, "year": 1}
 #: time resolution of the date search (steps per year) before interpolation
@@ -121,12 +123,21 @@ class RoadmapStep:
     eps: dict[int, float]  # per candidate distance
     distance: int | None  # smallest meeting the goal within max_qubits
     physical_qubits: int | None
+    #: bootstrap intervals (None / empty without replica models)
+    suppression_interval: Interval | None = None
+    eps_intervals: dict[int, Interval] = dataclasses.field(default_factory=dict)
+    #: notes for scales outside the sampled range (the model is extrapolated there)
+    extrapolation: tuple[str, ...] = ()
 
     def to_json(self) -> dict[str, Any]:
         return {"date": self.date.isoformat(), "years": self.years, "scales": dict(self.scales),
                 "suppression_factor": self.suppression if math.isfinite(self.suppression) else None,
                 "logical_error_per_cycle": {str(d): e for d, e in self.eps.items()},
-                "distance": self.distance, "physical_qubits": self.physical_qubits}
+                "distance": self.distance, "physical_qubits": self.physical_qubits,
+                "suppression_factor_interval": self.suppression_interval.to_json()
+                if self.suppression_interval else None,
+                "logical_error_per_cycle_intervals": {str(d): v.to_json() for d, v in self.eps_intervals.items()},
+                "extrapolation": list(self.extrapolation)}
 
 
 @dataclasses.dataclass(frozen=True)
@@ -157,9 +168,14 @@ class Roadmap:
     milestones: tuple[DatedEvent, ...]
     num_scenarios: int
     note: str = ""
+    #: the largest odd distance within max_qubits (the distance the goal is judged at)
+    goal_distance: int = 3
+    #: replica models behind the rows' intervals (0: none)
+    num_replicas: int = 0
 
     def to_json(self) -> dict[str, Any]:
         return {"start": self.start.isoformat(), "step": self.step, "confidence": CONFIDENCE,
+                "goal_distance": self.goal_distance, "num_replicas": self.num_replicas,
                 "target_logical_error_per_cycle": self.eps_target, "max_qubits": self.max_qubits,
                 "candidate_distances": list(self.candidate_distances),
                 "steps": [s.to_json() for s in self.steps], "goal": self.goal.to_json(),
@@ -209,9 +225,11 @@ def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_sc
         d = d if d is not None and d <= dmax else None
         steps.append(RoadmapStep(years_to_date(rm.start, t), t, s, model.suppression(s),
                                  {c: model.logical_error_per_cycle(s, c) for c in cands}, d,
-                                 physical_qubits(d) if d else None))
+                                 physical_qubits(d) if d else None,
+                                 extrapolation=tuple(model.extrapolation(s))))
         if d is not None:
             break
+    steps = _with_intervals(steps, models, cands)
     rng = np.random.default_rng(seed)
     spread = any(r.spread > 0 for r in rm.rates.values())
     n = num_scenarios if (spread or models) else 0
@@ -227,4 +245,27 @@ def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_sc
         f"goal not met within {rm.horizon_years:g} years and {target.goal.max_qubits} qubits at these rates"
     if not rm.rates:
         note = (note + "; " if note else "") + "no rates given: nothing improves"
-    return Roadmap(rm.start, rm.step, eps, target.goal.max_qubits, cands, tuple(steps), goal, miles, n, note)
+    return Roadmap(rm.start, rm.step, eps, target.goal.max_qubits, cands, tuple(steps), goal, miles, n, note,
+                   goal_distance=dmax, num_replicas=len(models))
+
+
+def _with_intervals(steps: list[RoadmapStep], models: Sequence[ResponseModel],
+                    cands: Sequence[int]) -> list[RoadmapStep]:
+    """The steps with Lambda and eps intervals over the replica models (vectorised per model)."""
+    if not models or not steps:
+        return steps
+    s = np.array([[st.scales[c] for c in COMPONENTS] for st in steps])
+    lam = np.array([m.suppression_array(s) for m in models])  # (replicas, steps)
+    eps = {d: np.minimum(np.exp(np.array([m.ln_eps_array(s, d) for m in models])), 0.5) for d in cands}
+    out = []
+    for i, st in enumerate(steps):
+        out.append(dataclasses.replace(
+            st, suppression_interval=replica_interval(st.suppression, _finite_or_inf(lam[:, i])),
+            eps_intervals={d: iv for d in cands
+                           if (iv := replica_interval(st.eps[d], eps[d][:, i].tolist())) is not None}))
+    return out
+
+
+def _finite_or_inf(x: np.ndarray) -> list[float]:
+    # 1/0 from a perfect replica comes out as +inf (or nan from 0 * inf): treat both as +inf
+    return [float(v) if not np.isnan(v) else math.inf for v in x]

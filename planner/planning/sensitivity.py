@@ -5,20 +5,32 @@ elasticity d ln Lambda / d ln p_c = -(s_c d term_c / d s_c) / (1/Lambda) (negati
 error gives a larger Lambda; the component's probability is proportional to its scale), Lambda with
 the component halved and perfect, and (with a roadmap) how many months earlier the goal is met
 if the component's yearly improvement were :data:`FASTER_POINTS` faster.
+
+Given the bootstrap replica models, every figure also gets an interval: the same figure computed
+on each replica (rates at their central values: these intervals are the fit's uncertainty only).
 """
 
 from __future__ import annotations
 
 import dataclasses
 import math
+from collections.abc import Sequence
 from typing import Any
 
 from planner.config import COMPONENTS, Target
+from planner.fits import Interval
 from planner.planning.model import ResponseModel, largest_distance_within
 from planner.planning.roadmap import RateSet, goal_years
+from planner.planning.uncertainty import replica_interval
 
 FASTER_POINTS = 0.10
 MONTHS_PER_YEAR = 12.0
+#: the figures of a row that get an interval (attribute names of ComponentSensitivity)
+FIGURES = ("share", "elasticity", "suppression_halved", "suppression_perfect", "months_earlier")
+
+
+def _ivj(iv: Interval | None) -> dict[str, Any] | None:
+    return iv.to_json() if iv is not None else None
 
 
 @dataclasses.dataclass(frozen=True)
@@ -30,13 +42,20 @@ class ComponentSensitivity:
     suppression_perfect: float
     months_earlier: float | None
     note: str = ""
+    #: bootstrap intervals of the figures above, keyed by :data:`FIGURES` (empty without replicas)
+    intervals: dict[str, Interval] = dataclasses.field(default_factory=dict)
 
     def to_json(self) -> dict[str, Any]:
         f = lambda x: None if x is None or not math.isfinite(x) else float(x)  # noqa: E731
+        iv = lambda k: _ivj(self.intervals.get(k))  # noqa: E731
         return {"component": self.component, "share_of_inverse_lambda": self.share,
                 "elasticity": self.elasticity, "suppression_factor_halved": f(self.suppression_halved),
                 "suppression_factor_perfect": f(self.suppression_perfect),
-                "months_earlier": f(self.months_earlier), "note": self.note}
+                "months_earlier": f(self.months_earlier), "note": self.note,
+                "share_interval": iv("share"), "elasticity_interval": iv("elasticity"),
+                "suppression_factor_halved_interval": iv("suppression_halved"),
+                "suppression_factor_perfect_interval": iv("suppression_perfect"),
+                "months_earlier_interval": iv("months_earlier")}
 
 
 @dataclasses.dataclass(frozen=True)
@@ -47,17 +66,22 @@ class Sensitivity:
     model_form: str
     model_quality: str
     note: str = ""
+    suppression_today_interval: Interval | None = None
+    #: replica models the intervals came from (0: best values only)
+    num_replicas: int = 0
 
     def to_json(self) -> dict[str, Any]:
         return {"suppression_factor_today": self.suppression_today, "faster_points": self.faster_points,
                 "components": [r.to_json() for r in self.rows], "model_form": self.model_form,
-                "model_quality": self.model_quality, "note": self.note}
+                "model_quality": self.model_quality, "note": self.note,
+                "suppression_factor_today_interval": _ivj(self.suppression_today_interval),
+                "num_replicas": self.num_replicas}
 
 
-def sensitivity(model: ResponseModel, target: Target) -> Sensitivity:
+def _rows(model: ResponseModel, target: Target) -> dict[str, ComponentSensitivity]:
+    """The figures of every component for one model (best values, no intervals)."""
     terms = model.terms(None)
     total = sum(terms.values())
-    lam = model.suppression(None)
     rm = target.roadmap
     eps = target.goal.logical_error_per_cycle
     dmax = largest_distance_within(target.goal.max_qubits) or 3
@@ -66,7 +90,7 @@ def sensitivity(model: ResponseModel, target: Target) -> Sensitivity:
     if rm is not None:
         central = RateSet.from_rates(rm.rates)
         base_t = goal_years(model, central, eps_target=eps, max_distance=dmax, horizon_years=rm.horizon_years)
-    rows = []
+    rows = {}
     for c in COMPONENTS:
         share = terms[c] / total if total > 0 else 0.0
         slope = model.weights[c] + 2 * model.curvature[c]
@@ -83,9 +107,28 @@ def sensitivity(model: ResponseModel, target: Target) -> Sensitivity:
                 note = "goal not met within the horizon either way"
         elif rm is None:
             note = "no roadmap: months not computed"
-        rows.append(ComponentSensitivity(c, share, elasticity, model.suppression({c: 0.5}),
-                                         model.suppression({c: 0.0}), months, note))
+        rows[c] = ComponentSensitivity(c, share, elasticity, model.suppression({c: 0.5}),
+                                       model.suppression({c: 0.0}), months, note)
+    return rows
+
+
+def sensitivity(model: ResponseModel, target: Target, *, models: Sequence[ResponseModel] = ()) -> Sensitivity:
+    """Shares, elasticities and what-ifs at today's point, most limiting first; with replica
+    ``models`` (the bootstrap) each figure carries an interval over them."""
+    best = _rows(model, target)
+    replicas = [_rows(m, target) for m in models]
+    rows = []
+    for c, row in best.items():
+        ivs = {}
+        for k in FIGURES:
+            iv = replica_interval(getattr(row, k), [getattr(r[c], k) for r in replicas])
+            if iv is not None:
+                ivs[k] = iv
+        rows.append(dataclasses.replace(row, intervals=ivs))
     rows.sort(key=lambda r: (-r.share, -(r.months_earlier or 0.0)))
+    lam = model.suppression(None)
     return Sensitivity(lam, tuple(rows), FASTER_POINTS, model.form, model.quality.summary(),
                        "unsampled components share a lumped weight: " + ", ".join(model.unsampled)
-                       if model.unsampled else "")
+                       if model.unsampled else "",
+                       suppression_today_interval=replica_interval(lam, [m.suppression(None) for m in models]),
+                       num_replicas=len(models))

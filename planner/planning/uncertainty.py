@@ -5,7 +5,11 @@ posterior) and ``hits ~ Binomial(shots, p)``, refits the per-cycle rates, Lambda
 original log-space weights kept, common practice for a bootstrap of a weighted fit) and the
 response model in the same form, and re-solves the answers. Interval ends are the
 :data:`~planner.fits.CONFIDENCE` percentiles of the replicas; the best value stays the original
-answer.
+answer (and the interval is widened to hold it, should the replicas all fall on one side).
+
+Every figure derived from the model gets its interval the same way: evaluate the quantity on each
+replica model (:func:`replica_interval`). The requirement answers are done here; the roadmap and
+the sensitivity take the replica models (:attr:`Uncertainty.models`) and do it themselves.
 """
 
 from __future__ import annotations
@@ -13,7 +17,7 @@ from __future__ import annotations
 import dataclasses
 import math
 from collections import defaultdict
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -21,7 +25,15 @@ import sinter
 
 from planner.config import COMPONENTS
 from planner.fits import CONFIDENCE, FitReport, Interval, fit_tasks, weighted_line, zero_error_upper
-from planner.planning.ask import Requirements, _solve_lever, smallest_distance
+from planner.planning.ask import (
+    Requirements,
+    _scaled,
+    _solve_lever,
+    cheapest_mix,
+    cost_shares,
+    required_suppression,
+    smallest_distance,
+)
 from planner.planning.model import ModelData, ResponseModel, fit_response
 
 DEFAULT_REPLICAS = 200
@@ -29,8 +41,13 @@ DEFAULT_REPLICAS = 200
 
 @dataclasses.dataclass(frozen=True)
 class Uncertainty:
-    """Bootstrap intervals (keys: ``joint_factor``, ``factor.<component>``, ``lambda_today``,
-    ``today_distance``) and the replica models (for the roadmap's date ranges)."""
+    """Bootstrap intervals and the replica models (for the roadmap and the sensitivity).
+
+    Interval keys: ``joint_factor``, ``factor.<component>``, ``lambda.<lever>`` (Lambda reached,
+    lever ``joint`` or a component), ``lambda_today``, ``today_distance``, ``today_eps`` (model eps
+    per cycle at the answer's distance), ``required_lambda``, ``mix.factor.<component>``,
+    ``mix.share.<component>``, ``mix.cost``, ``mix.lambda``.
+    """
 
     replicas: int
     intervals: dict[str, Interval]
@@ -81,50 +98,110 @@ def replica_models(stats: Sequence[sinter.TaskStats], report: FitReport, model: 
     return out
 
 
-def _interval(best: float | None, values: Sequence[float]) -> Interval | None:
-    if best is None or not values:
+def replica_interval(best: float | None, values: Sequence[float | None]) -> Interval | None:
+    """``best`` with the central :data:`~planner.fits.CONFIDENCE` range of the replica ``values``
+    (None entries, replicas where the quantity does not exist, are dropped; None when no value is
+    left). The range is widened to hold ``best``. Infinite values (a perfect device) sort last.
+
+    >>> replica_interval(2.0, [1.0 + i / 100 for i in range(201)])
+    Interval(best=2.0, low=1.05, high=2.95)
+    >>> replica_interval(5.0, [1.0, 1.0]), replica_interval(None, [1.0]), replica_interval(1.0, [None])
+    (Interval(best=5.0, low=1.0, high=5.0), None, None)
+    """
+    vals = np.array([v for v in values if v is not None], float)
+    vals = vals[~np.isnan(vals)]
+    if best is None or vals.size == 0 or math.isnan(best):
         return None
     q = (1 - CONFIDENCE) / 2
-    lo, hi = np.quantile(np.array(values, float), [q, 1 - q])
+    # no interpolation across an infinite value (inf - inf); exact sample quantiles otherwise
+    method = "linear" if np.all(np.isfinite(vals)) else "inverted_cdf"
+    lo, hi = np.quantile(vals, [q, 1 - q], method=method)
     return Interval(float(best), float(min(lo, best)), float(max(hi, best)))
 
 
+_interval = replica_interval
+
+
 def bootstrap(stats: Sequence[sinter.TaskStats], report: FitReport, model: ResponseModel,
-              answer: Requirements, *, replicas: int = DEFAULT_REPLICAS, seed: int = 0) -> Uncertainty:
-    """Intervals on the requirement answers (factors, today's Lambda and distance)."""
+              answer: Requirements, *, replicas: int = DEFAULT_REPLICAS, seed: int = 0,
+              costs: Mapping[str, float] | None = None) -> Uncertainty:
+    """Intervals on the requirement answers: factors and the Lambda they reach, today's Lambda,
+    eps and distance, the required Lambda, and the cheapest mix (re-solved on every replica)."""
     models = replica_models(stats, report, model, replicas=replicas, seed=seed)
     d, eps = answer.distance, answer.eps_target
-    vals: dict[str, list[float]] = defaultdict(list)
+    costs = costs if costs is not None else {}
+    vals: dict[str, list[float | None]] = defaultdict(list)
     reached: dict[str, int] = defaultdict(int)
+    levers = {a.lever: a for a in (answer.joint, *answer.components)}
+    mix = answer.mix
     for m in models:
-        for lever in ("joint", *COMPONENTS):
+        for lever, best_answer in levers.items():
             a = _solve_lever(m, lever, distance=d, eps_target=eps)
             key = "joint_factor" if lever == "joint" else f"factor.{lever}"
             if a.reachable:
                 vals[key].append(a.factor)
                 reached[key] += 1
+            # the same quantity as the best answer: Lambda at the solution, or with the lever perfect
+            if best_answer.reachable:
+                vals[f"lambda.{lever}"].append(a.suppression if a.reachable else None)
+            elif lever != "joint":
+                vals[f"lambda.{lever}"].append(m.suppression(_scaled(lever, 0.0)))
         vals["lambda_today"].append(m.suppression(None))
+        vals["today_eps"].append(m.logical_error_per_cycle(None, d))
+        vals["required_lambda"].append(required_suppression(m, distance=d, eps_target=eps))
         td = smallest_distance(m, None, eps)
         if td is not None:
             vals["today_distance"].append(td)
             reached["today_distance"] += 1
-    best = {"joint_factor": answer.joint.factor, "lambda_today": answer.today.suppression_model,
-            "today_distance": answer.today.distance}
+        if mix.reachable:
+            mm = cheapest_mix(m, distance=d, eps_target=eps, costs=costs, starts=(mix.scales,),
+                              default_starts=False)
+            if mm.reachable:
+                reached["mix"] += 1
+                vals["mix.cost"].append(mm.cost)
+                vals["mix.lambda"].append(mm.suppression)
+                shares = cost_shares(mm.scales, costs)
+                for c in COMPONENTS:
+                    vals[f"mix.factor.{c}"].append(mm.scales[c])
+                    vals[f"mix.share.{c}"].append(shares.get(c, 0.0))
+    best: dict[str, float | None] = {
+        "joint_factor": answer.joint.factor, "lambda_today": answer.today.suppression_model,
+        "today_distance": answer.today.distance, "today_eps": answer.today.logical_error_per_cycle,
+        "required_lambda": answer.required_suppression}
     best.update({f"factor.{a.lever}": a.factor for a in answer.components})
+    best.update({f"lambda.{k}": a.suppression for k, a in levers.items() if a.reachable or k != "joint"})
+    if mix.reachable:
+        best.update({"mix.cost": mix.cost, "mix.lambda": mix.suppression})
+        best.update({f"mix.factor.{c}": mix.scales[c] for c in COMPONENTS})
+        best.update({f"mix.share.{c}": mix.cost_shares.get(c, 0.0) for c in COMPONENTS})
     intervals = {}
     for k, b in best.items():
-        iv = _interval(b, vals.get(k, []))
+        iv = replica_interval(b, vals.get(k, []))
         if iv is not None:
             intervals[k] = iv
-    frac = {k: reached.get(k, 0) / replicas for k in best if k != "lambda_today"}
+    frac = {k: reached.get(k, 0) / replicas for k in best
+            if k in ("joint_factor", "today_distance") or k.startswith("factor.")}
+    if mix.reachable:
+        frac["mix"] = reached.get("mix", 0) / replicas
     return Uncertainty(replicas, intervals, frac, tuple(models))
 
 
 def with_intervals(answer: Requirements, unc: Uncertainty) -> Requirements:
-    """The answer with the bootstrap intervals attached to its factors and today's distance."""
+    """The answer with the bootstrap intervals attached (factors, Lambda reached, today's Lambda,
+    eps and distance, the required Lambda, the cheapest mix)."""
     iv = unc.intervals
-    joint = dataclasses.replace(answer.joint, factor_interval=iv.get("joint_factor"))
-    comps = tuple(dataclasses.replace(a, factor_interval=iv.get(f"factor.{a.lever}")) for a in answer.components)
-    today = dataclasses.replace(answer.today, distance_interval=iv.get("today_distance"))
-    return dataclasses.replace(answer, joint=joint, components=comps, today=today)
+    joint = dataclasses.replace(answer.joint, factor_interval=iv.get("joint_factor"),
+                                suppression_interval=iv.get("lambda.joint"))
+    comps = tuple(dataclasses.replace(a, factor_interval=iv.get(f"factor.{a.lever}"),
+                                      suppression_interval=iv.get(f"lambda.{a.lever}"))
+                  for a in answer.components)
+    today = dataclasses.replace(answer.today, distance_interval=iv.get("today_distance"),
+                                suppression_model_interval=iv.get("lambda_today"),
+                                logical_error_per_cycle_interval=iv.get("today_eps"))
+    pick = lambda prefix: {c: iv[f"{prefix}.{c}"] for c in COMPONENTS if f"{prefix}.{c}" in iv}  # noqa: E731
+    mix = dataclasses.replace(answer.mix, scale_intervals=pick("mix.factor"),
+                              cost_share_intervals=pick("mix.share"), cost_interval=iv.get("mix.cost"),
+                              suppression_interval=iv.get("mix.lambda"))
+    return dataclasses.replace(answer, joint=joint, components=comps, today=today, mix=mix,
+                               required_suppression_interval=iv.get("required_lambda"))
 
