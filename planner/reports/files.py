@@ -66,6 +66,7 @@ def write_atomic(path: Path, data: bytes | str) -> Path:
     except OSError as exc:
         raise InputError(f"{path.parent}: cannot write reports: {exc.strerror or exc}") from None
     try:
+        os.fchmod(fd, 0o666 & ~_umask())  # mkstemp makes 0600; reports are ordinary files
         with os.fdopen(fd, "wb") as fh:
             fh.write(payload)
             fh.flush()
@@ -78,6 +79,12 @@ def write_atomic(path: Path, data: bytes | str) -> Path:
         _remove_quietly(tmp)
         raise
     return path
+
+
+def _umask() -> int:
+    old = os.umask(0o022)
+    os.umask(old)
+    return old
 
 
 def _remove_quietly(path: str) -> None:
