@@ -15,6 +15,7 @@ from __future__ import annotations
 import datetime as _dt
 import difflib
 import hashlib
+import json
 import tomllib
 from pathlib import Path
 from typing import Annotated, Any, Literal
@@ -194,6 +195,13 @@ class Target(_Frozen):
     def components(self) -> tuple[str, ...]:
         """Components with their own scale axis in the sweep (all by default)."""
         return tuple(self.sweep.components) if self.sweep.components else COMPONENTS
+
+    @property
+    def sampling_sha256(self) -> str:
+        """Hash of what decides the samples (the device and the sweep sections). Editing the goal,
+        the costs or the roadmap leaves it unchanged, so existing samples stay usable."""
+        doc = self.model_dump(include={"device", "sweep"}, mode="json")
+        return hashlib.sha256(json.dumps(doc, sort_keys=True).encode()).hexdigest()
 
     def cost(self, component: str) -> float:
         return float(self.costs.get(component, 1.0))

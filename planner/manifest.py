@@ -79,10 +79,13 @@ class Manifest:
     budget: str | None = None
     max_errors: int | None = None
     max_shots: int | None = None
+    #: hash of the target's device and sweep sections only (see Target.sampling_sha256)
+    sample_sha256: str = ""
 
     @classmethod
     def for_sweep(cls, *, target_sha256: str, target_name: str, tasks: Iterable[sinter.Task],
-                  budget: str | None, max_errors: int | None, max_shots: int | None) -> Manifest:
+                  budget: str | None, max_errors: int | None, max_shots: int | None,
+                  sample_sha256: str = "") -> Manifest:
         entries = []
         for t in tasks:
             t = resolved_task(t)
@@ -90,7 +93,7 @@ class Manifest:
                                      json_metadata=t.json_metadata))
         return cls(target_sha256=target_sha256, target_name=target_name,
                    versions=software_versions(), tasks=tuple(entries), budget=budget,
-                   max_errors=max_errors, max_shots=max_shots)
+                   max_errors=max_errors, max_shots=max_shots, sample_sha256=sample_sha256)
 
     def to_json(self) -> dict[str, Any]:
         import planner
@@ -98,6 +101,7 @@ class Manifest:
         return {
             "format": FORMAT,
             "target_sha256": self.target_sha256,
+            "sample_sha256": self.sample_sha256,
             "target_name": self.target_name,
             "versions": dict(self.versions),
             "planner_version": planner.__version__,
@@ -114,7 +118,8 @@ class Manifest:
                        tasks=tuple(TaskEntry(strong_id=str(e["strong_id"]), decoder=str(e["decoder"]),
                                              json_metadata=e["json_metadata"]) for e in doc["tasks"]),
                        budget=budget.get("name"), max_errors=budget.get("max_errors"),
-                       max_shots=budget.get("max_shots"))
+                       max_shots=budget.get("max_shots"),
+                       sample_sha256=str(doc.get("sample_sha256", "")))
         except (KeyError, TypeError, AttributeError) as exc:
             raise InputError(f"{source}: not a planner manifest (missing or bad field {exc})") from None
 
@@ -158,9 +163,10 @@ def identity_difference(old: Manifest, new: Manifest) -> str | None:
     >>> identity_difference(a, dataclasses.replace(a, versions={"stim": "2"}))
     'stim version 1 vs 2'
     """
-    if old.target_sha256 != new.target_sha256:
+    same_samples = bool(old.sample_sha256) and old.sample_sha256 == new.sample_sha256
+    if old.target_sha256 != new.target_sha256 and not same_samples:
         return (f"target file hash {old.target_sha256[:12]} vs {new.target_sha256[:12]} "
-                "(the target file changed)")
+                "(its device or sweep section changed)")
     diffs = [f"{k} version {old.versions.get(k)} vs {new.versions.get(k)}"
              for k in VERSIONED if old.versions.get(k) != new.versions.get(k)]
     if diffs:
@@ -190,7 +196,9 @@ def prepare_out_dir(out_dir: Path, *, target_bytes: bytes, manifest: Manifest) -
         if diff is not None:
             raise InputError(f"{out_dir}: holds samples of another sweep: {diff}; use another "
                              f"--out or delete {out_dir}")
-    write_target_copy(out_dir, target_bytes)
+    # the device and sweep are unchanged (goal, costs or roadmap edited): keep the samples and
+    # take the new target copy, so the query commands answer for the edited goal
+    write_target_copy(out_dir, target_bytes, replace=old is not None)
     write_manifest(out_dir, manifest)
     return manifest
 
@@ -214,10 +222,11 @@ def combine_manifests(named: list[tuple[str, Manifest]]) -> Manifest:
     return dataclasses.replace(first, tasks=tuple(entries.values()))
 
 
-def write_target_copy(out_dir: Path, target_bytes: bytes) -> None:
-    """Write ``DIR/target.toml``; an existing copy with other bytes is refused."""
+def write_target_copy(out_dir: Path, target_bytes: bytes, *, replace: bool = False) -> None:
+    """Write ``DIR/target.toml``; an existing copy with other bytes is refused unless ``replace``
+    (the caller has checked that the samples' identity is unchanged)."""
     copy = Path(out_dir) / TARGET_COPY
-    if copy.exists():
+    if copy.exists() and not replace:
         if copy.read_bytes() != target_bytes:
             raise InputError(f"{copy}: differs from the target being written; use another --out "
                              f"or delete {out_dir}")

@@ -194,6 +194,7 @@ def run_sweep(tasks: Sequence[sinter.Task], *, store: SampleStore, rule: Stoppin
         raise ValueError("two tasks have the same strong id (identical circuit, decoder and metadata)")
     if target is not None:
         manifest = Manifest.for_sweep(target_sha256=target.sha256, target_name=target.name,
+                                      sample_sha256=target.sampling_sha256,
                                       tasks=resolved, budget=budget, max_errors=rule.max_errors,
                                       max_shots=rule.max_shots)
         prepare_out_dir(_out_dir_of(store), target_bytes=_target_bytes(target), manifest=manifest)
