@@ -95,10 +95,6 @@ T, MAL, BAD, MISS = _p("target"), _p("malformed"), _p("bad_value"), _p("missing"
 FILE, SAMPLED, NOSAMP, EMPTY = _p("a_file"), _p("sampled"), _p("no_samples"), _p("empty_dir")
 OUT = _p("missing", "out")  # a fresh directory, never created because the command fails first
 
-RUN_OUT = ("planner/cli/run.py prints its plan line on stderr before the out directory is checked, "
-           "so stderr has the chatter plus the error (sweep checks --out first): run's owner to fix")
-VERIFY_OUT = ("planner verify prints 'sampling N of N tasks' on stderr before DIR/verify/samples "
-              "turns out not creatable: check the directory before the chatter (verify's owner)")
 
 MATRIX = [
     # run
@@ -107,8 +103,8 @@ MATRIX = [
     case("run", BAD, "--out", OUT, needle="device.errors.gate_2q"),
     case("run", T, "--out", OUT, "--budget", "huge", needle="--budget"),
     case("run", T, "--out", OUT, "--workers", "0", needle="--workers"),
-    case("run", T, "--out", FILE, needle="a-file", xfail=RUN_OUT),
-    case("run", T, "--out", _p("a_file", "sub"), needle="a-file/sub", xfail=RUN_OUT),
+    case("run", T, "--out", FILE, needle="a-file"),
+    case("run", T, "--out", _p("a_file", "sub"), needle="a-file/sub"),
     # sweep
     case("sweep", _p("missing", "x.toml"), "--out", OUT, needle="x.toml"),
     case("sweep", MAL, "--out", OUT, needle="malformed.toml: not valid TOML"),
@@ -145,7 +141,7 @@ MATRIX = [
     case("verify", NOSAMP, needle="no samples"),
     case("verify", SAMPLED, "--budget", "huge", needle="--budget"),
     case("verify", SAMPLED, "--workers", "0", needle="--workers"),
-    case("verify", _p("verify_blocked"), needle="verify", xfail=VERIFY_OUT),
+    case("verify", _p("verify_blocked"), needle="verify"),
     # circuit
     case("circuit", _p("missing", "x.toml"), "--distance", "3", needle="x.toml"),
     case("circuit", MAL, "--distance", "3", needle="malformed.toml: not valid TOML"),

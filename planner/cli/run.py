@@ -10,7 +10,7 @@ from typing import Annotated
 import typer
 
 from planner.cli._common import one_line_errors, stderr_console, stdout_console
-from planner.cli.options import BudgetOpt, OutOpt, QuietOpt, WorkersOpt, default_out_dir
+from planner.cli.options import BudgetOpt, OutOpt, QuietOpt, WorkersOpt, default_out_dir, writable_dir
 
 
 def register(app: typer.Typer) -> None:
@@ -31,6 +31,7 @@ def run_command(
     spec = load_target(target)  # validate before anything heavy is imported
     from planner.planning import answer_all
     from planner.reports import tables
+    from planner.reports.files import write_all
     from planner.sampling import run_sweep
     from planner.store import SampleStore
     from planner.sweep import plan_sweep
@@ -38,8 +39,8 @@ def run_command(
     err = stderr_console(quiet=quiet)
     con = stdout_console()
     started = time.monotonic()
-    out_dir = out if out is not None else default_out_dir(spec)
     plan = plan_sweep(spec, budget=budget)
+    out_dir = writable_dir(out if out is not None else default_out_dir(spec))
     err.print(f"[bold]{spec.device.name}[/]: {len(plan.tasks)} tasks over {len(plan.points)} scale points, "
               f"budget '{budget}' ({plan.rule.max_errors} errors or {plan.rule.max_shots:,} shots per task) "
               f"-> {out_dir}")
@@ -52,12 +53,7 @@ def run_command(
     if answers.roadmap is not None:
         tables.render_roadmap(answers.roadmap, con)
     tables.render_sensitivity(answers.sensitivity, con)
-    try:
-        from planner.reports.files import write_all
-    except ImportError:  # report files arrive with the reports stage
-        write_all = None
-    if write_all is not None:
-        written = write_all(answers, out_dir=out_dir, target=spec)
-        err.print(f"wrote {len(written)} files under {out_dir}")
+    written = write_all(answers, out_dir=out_dir, target=spec)
+    err.print(f"wrote {len(written)} files under {out_dir} (report.html has it all on one page)")
     err.print(f"done in {time.monotonic() - started:.0f} s. Projections are model-based: check them "
               "against the device before relying on them.")

@@ -8,7 +8,7 @@ from typing import Annotated
 import typer
 
 from planner.cli._common import one_line_errors, stderr_console, stdout_console
-from planner.cli.options import BudgetOpt, JsonOpt, QuietOpt, WorkersOpt
+from planner.cli.options import BudgetOpt, JsonOpt, QuietOpt, WorkersOpt, writable_dir
 
 DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep; samples go to DIR/verify/.")]
 
@@ -27,6 +27,7 @@ def verify_command(directory: DirArg, json: JsonOpt = False, workers: WorkersOpt
     from planner.reports.tables import json_text, render_verify
 
     spec, stats = load_out_dir(directory)
+    writable_dir(directory / "verify", option="DIR/verify")
     answers = answer_all(spec, stats)
     if answers.model is None:
         note = no_model_reason(answers.fits)
