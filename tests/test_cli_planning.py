@@ -136,3 +136,29 @@ def test_verify_prediction_overlaps_samples(out_dir):
     # predicted and sampled Lambda intervals (95% each) overlap at the proposed operating points
     assert all(r["holds"] for r in lam_rows), lam_rows
     assert (out_dir / "verify" / "samples").is_dir()
+
+
+def test_ask_and_roadmap_json_carry_intervals(out_dir):
+    doc = one_json(runner.invoke(app, ["ask", str(out_dir), "--json"]))
+    lam = doc["today"]["suppression_factor_model_interval"]
+    assert lam["low"] <= doc["today"]["suppression_factor_model"] <= lam["high"]
+    mix = doc["cheapest_mix"]
+    if mix["reachable"] and mix["cost_halvings"]:
+        changed = [c for c, s in mix["scales"].items() if s < 1]
+        assert changed and all(c in mix["scale_intervals"] for c in changed)
+    rm = one_json(runner.invoke(app, ["roadmap", str(out_dir), "--json"]))
+    step = rm["steps"][0]
+    iv = step["suppression_factor_interval"]
+    assert iv["low"] <= step["suppression_factor"] <= iv["high"] and iv["low"] < iv["high"]
+    assert str(rm["goal_distance"]) in step["logical_error_per_cycle_intervals"]
+
+
+def test_tables_at_80_columns(out_dir):
+    for args in (["fit", str(out_dir)], ["ask", str(out_dir)], ["roadmap", str(out_dir)],
+                 ["sensitivity", str(out_dir)], ["verify", str(out_dir), "--workers", "2", "--quiet"]):
+        res = runner.invoke(app, args, env={"COLUMNS": "80"})
+        assert res.exit_code == 0, (args, res.output)
+        for line in res.stdout.splitlines():
+            assert len(line) <= 80, (args, line)
+            # an interval is never cut by a line break ("[0.7," at a line end)
+            assert line.count("[") == line.count("]"), (args, line)
