@@ -373,7 +373,7 @@ def render_verify(v: Any, console: Console) -> None:
         rows.append([r.label, q, g(r.distance), iv(r.predicted), sampled,
                      {True: "holds", False: "DIFFERS", None: "—"}[r.holds]])
     emit(console, f"Verification: predicted vs sampled ({CL})", ["point", "quantity", "d", "predicted",
-                                                                   "sampled", "holds"], rows, left=(0, 1),
+                                                                   "sampled", "holds"], rows, left=(0, 1), key=3,
          caption="holds: the two intervals overlap"
          + (f"; {ZERO_ERRORS} no errors sampled: a bound" if any(r.zero_errors for r in v.rows) else ""))
     if v.note:
