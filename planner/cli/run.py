@@ -48,7 +48,7 @@ def run_command(
     run_sweep(plan.tasks, store=store, rule=plan.rule, workers=workers, console=err,
               target=spec, budget=budget)
     answers = answer_all(spec, store.stats(), seed=0)
-    tables.render_fits(answers.fits, con, model=answers.model)
+    tables.render_fits(answers.fits, con, model=answers.model, tasks=False)
     tables.render_requirements(answers.requirements, con)
     if answers.roadmap is not None:
         tables.render_roadmap(answers.roadmap, con)

@@ -25,7 +25,7 @@ def sensitivity_command(directory: DirArg, json: JsonOpt = False) -> None:
     from planner.reports.tables import json_text, render_sensitivity
 
     spec, stats = load_out_dir(directory)
-    answers = answer_all(spec, stats, replicas=0)
+    answers = answer_all(spec, stats)
     if answers.sensitivity is None:
         note = no_model_reason(answers.fits)
         typer.echo(json_text({"sensitivity": None, "note": note})) if json else stdout_console().print(note)
