@@ -10,7 +10,7 @@ import typer
 from planner.cli._common import one_line_errors, stdout_console
 from planner.cli.options import JsonOpt
 
-DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep (its target.toml needs [roadmap]).")]
+DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep (its target.toml needs a roadmap section).")]
 
 
 def register(app: typer.Typer) -> None:
