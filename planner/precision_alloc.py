@@ -35,6 +35,10 @@ MIN_STEP_SHOTS = 64
 MET_SLACK = 1e-9
 #: hard stop on greedy steps (a plan never needs this many)
 MAX_STEPS = 200_000
+#: an answer the caps keep from its target is aimed at this multiple of its smallest variance
+BEST_EFFORT = 1.1
+#: no task is ever planned beyond this many shots (keeps the arithmetic finite)
+MAX_SHOTS = 1e15
 
 
 @dataclasses.dataclass(frozen=True)
@@ -113,11 +117,18 @@ def allocate(*, shots: Sequence[int] | np.ndarray, rates: Sequence[float] | np.n
             per = np.where(sens > 0, sens / nn, 0.0)
         return per.sum(axis=1)
 
+    # an answer whose variance stays above target even with every task at its cap cannot be met:
+    # aim it at 1.1x its floor instead (as precise as the caps allow, with finite shots) and
+    # report it unmet
+    with np.errstate(divide="ignore"):
+        floor = np.where(sens > 0, sens / np.maximum(cap, 1e-300), 0.0).sum(axis=1)
+    goal = np.maximum(target, BEST_EFFORT * floor)
+    cap = np.minimum(cap, MAX_SHOTS)
     steps = 0
     while steps < MAX_STEPS:
         steps += 1
         v = variances(n)
-        excess = v - target * (1 + MET_SLACK)
+        excess = v - goal * (1 + MET_SLACK)
         unmet = excess > 0
         if not unmet.any():
             break
@@ -129,7 +140,7 @@ def allocate(*, shots: Sequence[int] | np.ndarray, rates: Sequence[float] | np.n
             drop = sens[unmet] * (1 / n - 1 / (n + step))  # (unmet answers, T)
         drop = np.where(np.isfinite(drop), drop, 0.0)
         # count only what is still missing of each answer, normalised by its target
-        gain = np.minimum(drop, excess[unmet][:, None]) / target[unmet][:, None]
+        gain = np.minimum(drop, excess[unmet][:, None]) / goal[unmet][:, None]
         merit = np.where(ok, gain.sum(axis=0) / (cost * np.where(step > 0, step, 1.0)), 0.0)
         best = int(np.argmax(merit))
         if merit[best] <= 0:

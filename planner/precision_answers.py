@@ -8,10 +8,12 @@ The answers tracked (``focus`` picks the kinds):
 - ``joint_factor``: the joint factor that reaches the goal at the goal distance (the headline
   of ``planner ask``).
 
-Precision is the relative half-width of the :data:`~planner.fits.CONFIDENCE` interval:
-``(high - low) / (2 * best)``. For Lambda it is read from the fit itself (so the chi2 widening of
-a scattered line counts); for the weights and the joint factor it is the delta-method value
-``Z * sd / |value|``.
+Precision is the relative half-width of the :data:`~planner.fits.CONFIDENCE` interval,
+``Z * sd / |value|`` with ``sd`` from the delta method below: the statistical width, the part that
+more shots narrow. (The Lambda fit widens its interval by sqrt(chi2/dof) when a line scatters
+beyond its points' intervals; with three distances that factor is a one-degree-of-freedom chi2,
+random under a correct model and constant under a wrong one, so more shots cannot target it.
+It is kept as ``fit_relative_width`` and reported in a note.)
 
 The delta method: per task, Var(ln P) = (1 - P) / (n P) for the shot error rate P from n shots;
 the per-cycle rate and the mean over bases carry it to ``y = ln eps`` at each (point, distance);
@@ -55,6 +57,8 @@ class AnswerPrecision:
     value: float
     relative_width: float
     target: float
+    #: Lambda only: the half-width of the fit's own interval (widened when chi2/dof > 1)
+    fit_relative_width: float | None = None
 
     @property
     def met(self) -> bool:
@@ -63,14 +67,15 @@ class AnswerPrecision:
     def to_json(self) -> dict[str, Any]:
         rel = self.relative_width if math.isfinite(self.relative_width) else None
         return {"name": self.name, "kind": self.kind, "value": self.value,
-                "relative_half_width": rel, "target": self.target, "met": self.met}
+                "relative_half_width": rel, "fit_relative_half_width": self.fit_relative_width,
+                "target": self.target, "met": self.met}
 
 
 @dataclasses.dataclass(frozen=True)
 class Assessment:
     """The answers now, and ``sensitivity[a, t]`` (per answer, per task in ``task_ids`` order)
-    such that Var(answer a) ~ sum_t sensitivity[a, t] / shots_t, scaled so that at the current
-    shots it equals ``(relative_width * value / Z)^2``."""
+    such that Var(answer a) ~ sum_t sensitivity[a, t] / shots_t (at the current shots that is
+    ``(relative_width * value / Z)^2``)."""
 
     answers: tuple[AnswerPrecision, ...]
     task_ids: tuple[str, ...]
@@ -236,16 +241,18 @@ def assess(stats: Sequence[sinter.TaskStats], target: Target, *, precision: floa
     answers = []
     by_name = {f"lambda {lf.axis}@{lf.factor:g}": lf for lf in lambdas}
     for a, ((name, kind), value) in enumerate(zip(names, values)):
-        delta_rel = Z_SCORE * math.sqrt(delta_var[a]) / abs(value) if value else math.inf
-        rel = delta_rel
+        rel = Z_SCORE * math.sqrt(delta_var[a]) / abs(value) if value else math.inf
+        fit_rel = None
         if kind == "lambda":
-            iv = by_name[name].suppression
-            rel = (iv.high - iv.low) / (2 * iv.best)
-            # the fit's width includes any chi2 widening: scale the projection to match it
-            if delta_rel > 0:
-                sens[a] *= (rel / delta_rel) ** 2
+            lf = by_name[name]
+            fit_rel = (lf.suppression.high - lf.suppression.low) / (2 * lf.suppression.best)
+            if fit_rel > max(rel, precision) * 1.05 and (lf.chi2_per_dof or 0) > 1:
+                notes.append(f"{name}: the fit widens its interval to +-{100 * fit_rel:.1f}% for "
+                             f"scatter beyond the intervals (chi2/dof {lf.chi2_per_dof:.2f}); more "
+                             "shots do not narrow that part")
         answers.append(AnswerPrecision(name=name, kind=kind, value=float(value),
-                                       relative_width=float(rel), target=precision))
+                                       relative_width=float(rel), target=precision,
+                                       fit_relative_width=fit_rel))
     return Assessment(tuple(answers), ids, sens, report, model0, tuple(notes))
 
 
