@@ -174,19 +174,27 @@ def identity_difference(old: Manifest, new: Manifest) -> str | None:
     return None
 
 
+def writable_dir(path: Path, *, option: str = "--out") -> Path:
+    """Create ``path`` if needed and check it can be written (InputError naming it otherwise).
+    Commands call it before any work or chatter, so a refusal is one line."""
+    if path.exists() and not path.is_dir():
+        raise InputError(f"{path}: {option} exists and is not a directory")
+    try:
+        path.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise InputError(f"{path}: cannot create the {option} directory ({exc.strerror or exc})") from None
+    if not os.access(path, os.W_OK):
+        raise InputError(f"{path}: the {option} directory is not writable")
+    return path
+
+
 def prepare_out_dir(out_dir: Path, *, target_bytes: bytes, manifest: Manifest) -> Manifest:
     """Create or resume ``out_dir`` for ``manifest``: refuse another identity, never mix.
 
     Writes ``target.toml`` (byte copy) and ``manifest.json``; a resumed directory keeps its
     tasks and records the latest budget.
     """
-    out_dir = Path(out_dir)
-    try:
-        out_dir.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise InputError(f"{out_dir}: cannot create the out directory ({exc.strerror or exc})") from None
-    if not os.access(out_dir, os.W_OK):
-        raise InputError(f"{out_dir}: out directory is not writable")
+    out_dir = writable_dir(Path(out_dir))
     old = read_manifest(out_dir)
     if old is not None:
         diff = identity_difference(old, manifest)

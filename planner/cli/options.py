@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import os
 from pathlib import Path
 from typing import Annotated
 
@@ -26,18 +25,3 @@ JsonOpt = Annotated[bool, typer.Option(
 
 def default_out_dir(target: Target) -> Path:
     return Path("out") / target.name
-
-
-def writable_dir(path: Path, *, option: str = "--out") -> Path:
-    """Create ``path`` if needed and check it can be written, before any work or chatter."""
-    from planner.errors import InputError
-
-    if path.exists() and not path.is_dir():
-        raise InputError(f"{path}: {option} exists and is not a directory")
-    try:
-        path.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise InputError(f"{path}: cannot create the {option} directory ({exc.strerror or exc})") from None
-    if not os.access(path, os.W_OK):
-        raise InputError(f"{path}: the {option} directory is not writable")
-    return path

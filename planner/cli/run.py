@@ -10,7 +10,7 @@ from typing import Annotated
 import typer
 
 from planner.cli._common import one_line_errors, stderr_console, stdout_console
-from planner.cli.options import BudgetOpt, OutOpt, QuietOpt, WorkersOpt, default_out_dir, writable_dir
+from planner.cli.options import BudgetOpt, OutOpt, QuietOpt, WorkersOpt, default_out_dir
 
 
 def register(app: typer.Typer) -> None:
@@ -31,6 +31,7 @@ def run_command(
     spec = load_target(target)  # validate before anything heavy is imported
     from planner.planning import answer_all
     from planner.reports import tables
+    from planner.manifest import writable_dir
     from planner.reports.files import write_all
     from planner.sampling import run_sweep
     from planner.store import SampleStore

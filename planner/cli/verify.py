@@ -8,7 +8,7 @@ from typing import Annotated
 import typer
 
 from planner.cli._common import one_line_errors, stderr_console, stdout_console
-from planner.cli.options import BudgetOpt, JsonOpt, QuietOpt, WorkersOpt, writable_dir
+from planner.cli.options import BudgetOpt, JsonOpt, QuietOpt, WorkersOpt
 
 DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep; samples go to DIR/verify/.")]
 
@@ -22,6 +22,7 @@ def register(app: typer.Typer) -> None:
 @one_line_errors
 def verify_command(directory: DirArg, json: JsonOpt = False, workers: WorkersOpt = None,
                    budget: BudgetOpt = "quick", quiet: QuietOpt = False) -> None:
+    from planner.manifest import writable_dir
     from planner.planning import answer_all, load_out_dir, no_model_reason
     from planner.planning.verify import run_verification
     from planner.reports.tables import json_text, render_verify
