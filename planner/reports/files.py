@@ -28,8 +28,13 @@ from planner.reports import text
 
 REQUIREMENTS_COLUMNS = ("quantity", "lever", "unit", "best", "low", "high", "reachable",
                         "extrapolated", "note")
-SENSITIVITY_COLUMNS = ("component", "share_of_inverse_lambda", "elasticity", "suppression_factor_halved",
-                       "suppression_factor_perfect", "months_earlier", "lumped", "note")
+#: the figures of a sensitivity row, each written as best then ``_low`` / ``_high`` columns
+SENSITIVITY_FIGURES = (("share_of_inverse_lambda", "share"), ("elasticity", "elasticity"),
+                       ("suppression_factor_halved", "suppression_halved"),
+                       ("suppression_factor_perfect", "suppression_perfect"),
+                       ("months_earlier", "months_earlier"))
+SENSITIVITY_COLUMNS = ("component", *(f"{name}{end}" for name, _ in SENSITIVITY_FIGURES
+                                      for end in ("", "_low", "_high")), "lumped", "note")
 DATES_COLUMNS = ("event", "date", "low", "high", "fraction_of_scenarios_reached")
 PLOTS_DIR = "plots"
 
@@ -128,18 +133,25 @@ def _iv(iv: Interval | None, best: float | None = None) -> tuple[Any, Any, Any]:
 
 
 def requirements_rows(req: Any, *, lambda_today_model: Interval | None = None) -> list[tuple[Any, ...]]:
-    """Long format: one row per quantity (and lever), columns :data:`REQUIREMENTS_COLUMNS`."""
+    """Long format: one row per quantity (and lever), columns :data:`REQUIREMENTS_COLUMNS`;
+    ``low``/``high`` are the bootstrap (model answers) or likelihood-ratio (fitted Lambda) ends,
+    empty for inputs and for model values without an interval."""
     td = req.today
+    model_lam = td.suppression_model_interval or lambda_today_model
     rows: list[tuple[Any, ...]] = [
-        ("target_logical_error_per_cycle", "", "per cycle", req.eps_target, None, None, None, None, ""),
+        ("target_logical_error_per_cycle", "", "per cycle", req.eps_target, None, None, None, None, "goal"),
         ("distance", "", "", req.distance, None, None, None, None, req.distance_source),
         ("physical_qubits", "", "qubits", req.physical_qubits, None, None, None, None, "2d^2-1"),
-        ("required_suppression_factor", "", "ratio", req.required_suppression, None, None, None, None,
-         "with today's prefactor"),
+        ("required_suppression_factor", "", "ratio",
+         *_iv(req.required_suppression_interval, req.required_suppression), None, None,
+         "with today's prefactor" + ("" if req.required_suppression_interval else f"; {text.POINT_VALUE}")),
         ("suppression_factor_today_fitted", "joint", "ratio", *_iv(td.suppression_fitted), None, None,
          "fitted at joint factor 1"),
-        ("suppression_factor_today_model", "", "ratio", *_iv(lambda_today_model, td.suppression_model),
+        ("suppression_factor_today_model", "", "ratio", *_iv(model_lam, td.suppression_model),
          None, None, "response model"),
+        ("today_logical_error_per_cycle", "", "per cycle",
+         *_iv(td.logical_error_per_cycle_interval, td.logical_error_per_cycle), None, None,
+         f"response model at distance {req.distance}"),
         ("today_distance", "", "", *_iv(td.distance_interval, td.distance), td.distance is not None,
          None, td.note),
         ("today_physical_qubits", "", "qubits", td.physical_qubits, None, None, td.within_max_qubits,
@@ -147,26 +159,45 @@ def requirements_rows(req: Any, *, lambda_today_model: Interval | None = None) -
     ]
     for a in (req.joint, *req.components):
         rows.append(("factor_needed", a.lever, "x today's error", *_iv(a.factor_interval, a.factor),
-                     a.reachable, bool(a.extrapolation), "; ".join(x for x in (a.note, *a.extrapolation) if x)))
-        rows.append(("suppression_factor_reached", a.lever, "ratio", a.suppression, None, None, a.reachable,
-                     bool(a.extrapolation), ""))
+                     a.reachable, bool(a.extrapolation),
+                     "; ".join(x for x in (text.lever_note(a), *a.extrapolation) if x)))
+        rows.append(("suppression_factor_reached", a.lever, "ratio", *_iv(a.suppression_interval, a.suppression),
+                     a.reachable, bool(a.extrapolation),
+                     "" if a.reachable else f"with {a.lever} perfect, the most it gives alone"))
     mix = req.mix
     for c, s in mix.scales.items():
-        rows.append(("cheapest_mix_factor", c, "x today's error", s, None, None, mix.reachable,
-                     any(x.startswith(f"{c} ") for x in mix.extrapolation), ""))
-    rows.append(("cheapest_mix_cost", "", "cost-weighted halvings", mix.cost, None, None, mix.reachable,
-                 bool(mix.extrapolation), mix.note))
+        extrapolated = any(x.startswith(f"{c} ") for x in mix.extrapolation)
+        h, h_iv = text.halvings(mix.scale_intervals.get(c), s)
+        rows.append(("cheapest_mix_factor", c, "x today's error", *_iv(mix.scale_intervals.get(c), s),
+                     mix.reachable, extrapolated, ""))
+        rows.append(("cheapest_mix_halvings", c, "halvings (log2 of 1/factor)", *_iv(h_iv, h),
+                     mix.reachable, extrapolated, ""))
+        rows.append(("cheapest_mix_cost_share", c, "fraction of the cost",
+                     *_iv(mix.cost_share_intervals.get(c), mix.cost_shares.get(c, 0.0)),
+                     mix.reachable, extrapolated, ""))
+    rows.append(("cheapest_mix_cost", "", "cost-weighted halvings", *_iv(mix.cost_interval, mix.cost),
+                 mix.reachable, bool(mix.extrapolation), mix.note))
+    rows.append(("cheapest_mix_suppression_factor", "", "ratio", *_iv(mix.suppression_interval, mix.suppression),
+                 mix.reachable, bool(mix.extrapolation), ""))
+    rows.append(("cheapest_mix_logical_error_per_cycle", "", "per cycle", mix.logical_error_per_cycle, None,
+                 None, mix.reachable, bool(mix.extrapolation), "the goal: the mix is solved to meet it"))
     return rows
 
 
 def roadmap_columns(rm: Any) -> tuple[str, ...]:
+    """Steps of the roadmap: best values and their bootstrap ends (``eps_low_d<d>``,
+    ``eps_high_d<d>``), empty ends without replica models."""
     return ("date", "years", *(f"scale_{c}" for c in COMPONENTS), "suppression_factor",
-            *(f"eps_d{d}" for d in rm.candidate_distances), "distance", "physical_qubits")
+            "suppression_factor_low", "suppression_factor_high",
+            *(f"{k}{d}" for d in rm.candidate_distances for k in ("eps_d", "eps_low_d", "eps_high_d")),
+            "distance", "physical_qubits", "extrapolation")
 
 
 def roadmap_rows(rm: Any) -> list[tuple[Any, ...]]:
-    return [(s.date.isoformat(), s.years, *(s.scales[c] for c in COMPONENTS), s.suppression,
-             *(s.eps[d] for d in rm.candidate_distances), s.distance, s.physical_qubits) for s in rm.steps]
+    return [(s.date.isoformat(), s.years, *(s.scales[c] for c in COMPONENTS),
+             *_iv(s.suppression_interval, s.suppression),
+             *(x for d in rm.candidate_distances for x in _iv(s.eps_intervals.get(d), s.eps[d])),
+             s.distance, s.physical_qubits, "; ".join(s.extrapolation)) for s in rm.steps]
 
 
 def roadmap_date_rows(rm: Any) -> list[tuple[Any, ...]]:
@@ -176,18 +207,22 @@ def roadmap_date_rows(rm: Any) -> list[tuple[Any, ...]]:
 
 
 def sensitivity_rows(sens: Any, *, lumped: Sequence[str] = ()) -> list[tuple[Any, ...]]:
-    return [(r.component, r.share, r.elasticity, r.suppression_halved, r.suppression_perfect,
-             r.months_earlier, r.component in lumped, r.note) for r in sens.rows]
+    return [(r.component, *(x for _, attr in SENSITIVITY_FIGURES
+                            for x in _iv(r.intervals.get(attr), getattr(r, attr))),
+             r.component in lumped, r.note) for r in sens.rows]
 
 
 # ---------------------------------------------------------------------------------------------
 # per-part writers (query commands call these directly)
 
 
-def write_requirements(req: Any, out_dir: Path, *, lambda_today_model: Interval | None = None) -> list[Path]:
-    """``requirements.md`` and ``requirements.csv`` (``req``: planning Requirements)."""
+def write_requirements(req: Any, out_dir: Path, *, lambda_today_model: Interval | None = None,
+                       uncertainty: Any = None) -> list[Path]:
+    """``requirements.md`` and ``requirements.csv`` (``req``: planning Requirements;
+    ``uncertainty``: the bootstrap behind its intervals, for the replica count)."""
     out_dir = ensure_dir(out_dir)
-    md = text.to_markdown(text.requirements_tables(req, lambda_today_model=lambda_today_model),
+    md = text.to_markdown(text.requirements_tables(req, lambda_today_model=lambda_today_model,
+                                                   uncertainty=uncertainty),
                           heading="Requirements for the goal")
     rows = requirements_rows(req, lambda_today_model=lambda_today_model)
     return [write_atomic(out_dir / "requirements.md", md),
@@ -265,7 +300,8 @@ def write_all(answers: Any, *, out_dir: Path, target: Target) -> list[Path]:
     written: list[Path] = []
     lam_model = lambda_today_model(answers)
     if answers.requirements is not None:
-        written += write_requirements(answers.requirements, out_dir, lambda_today_model=lam_model)
+        written += write_requirements(answers.requirements, out_dir, lambda_today_model=lam_model,
+                                      uncertainty=answers.uncertainty)
     if answers.roadmap is not None:
         written += write_roadmap(answers.roadmap, out_dir)
     if answers.sensitivity is not None:

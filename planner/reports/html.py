@@ -16,6 +16,7 @@ from typing import Any
 
 from planner.config import Target
 from planner.fits import CONFIDENCE
+from planner.planning.uncertainty import replica_interval
 from planner.reports import text
 
 CAVEATS = (
@@ -31,13 +32,20 @@ PLOT_CAPTIONS = {
                                  "dashed parts of the fitted lines are extrapolated towards the goal.",
     "lambda_vs_joint_scale": "Suppression factor Lambda against the joint scale factor, with its interval "
                              "band, the Lambda = 1 line and the threshold when the sampled range brackets it.",
-    "lambda_vs_component_scale": "Lambda against each component's own scale factor (others at today); "
-                                 "today's point is shared by every line.",
-    "inverse_lambda_budget": "Each component's share of 1/Lambda at today's point (hatched: lumped "
-                             "components without their own sweep axis, weight split evenly).",
+    "lambda_vs_component_scale": "Lambda against each component's own scale factor (others at today), "
+                                 "ticks at the sampled factors; today's point is shared by every line.",
+    "inverse_lambda_budget": "Each component's share of 1/Lambda at today's point, error bars from the "
+                             "bootstrap (hatched: lumped components without their own sweep axis, weight "
+                             "split evenly).",
     "roadmap": "Logical error per cycle at the candidate distances over time at the central rates, the "
-               "goal, and the physical qubits needed to meet it.",
+               "band at the goal distance from the bootstrap models, the goal, and the physical qubits "
+               "needed to meet it.",
 }
+
+#: which section each plot sits in, under that section's tables
+PLOT_SECTIONS = {"logical_error_vs_distance": "fits", "lambda_vs_joint_scale": "fits",
+                 "lambda_vs_component_scale": "fits", "inverse_lambda_budget": "sensitivity",
+                 "roadmap": "roadmap"}
 
 STYLE = """
 body { font-family: system-ui, sans-serif; max-width: 1100px; margin: 2em auto; padding: 0 1em;
@@ -130,6 +138,8 @@ def sampling_rows(answers: Any, target: Target, out_dir: Path | None) -> list[tu
 
 
 def model_rows(answers: Any) -> list[tuple[str, Any]]:
+    """The response model: its form, fit quality and weights (with bootstrap intervals over the
+    replica models when there are any)."""
     m = answers.model
     if m is None:
         return [("response model", "none: " + "; ".join(answers.notes))]
@@ -145,16 +155,31 @@ def model_rows(answers: Any) -> list[tuple[str, Any]]:
         ("held-out largest |residual| (sigma)", text.num(q.loo_max_abs_residual)),
         ("worst point", q.worst_point),
     ]
-    rows += [(f"weight w_{c} (1/Lambda per unit scale)", text.num(w)) for c, w in m.weights.items()]
+    replicas = answers.uncertainty.models if answers.uncertainty is not None else ()
+    how = "bootstrap interval" if replicas else text.POINT_VALUE
+    for c, w in m.weights.items():
+        iv = replica_interval(w, [r.weights[c] for r in replicas]) if replicas else None
+        rows.append((f"weight w_{c} (1/Lambda per unit scale; {how})", text.estimate(w, iv)))
     if m.unsampled:
         rows.append(("lumped (no own axis, weight split evenly)", ", ".join(m.unsampled)))
     return rows
 
 
+def figure_html(name: str, data: bytes) -> str:
+    """One plot as an embedded PNG with its caption."""
+    uri = "data:image/png;base64," + base64.b64encode(data).decode("ascii")
+    caption = PLOT_CAPTIONS.get(name, name)
+    return (f'<figure><img alt="{esc(caption)}" src="{uri}"><figcaption>{esc(caption)} '
+            f"({esc(f'{CONFIDENCE:.0%}')} intervals)</figcaption></figure>")
+
+
 def report_html(answers: Any, *, target: Target, pngs: Mapping[str, bytes],
                 out_dir: Path | None = None) -> str:
-    """The page as text (``pngs``: PNG bytes by plot name, from plots.render_all)."""
+    """The page as text (``pngs``: PNG bytes by plot name, from plots.render_all). Order: the
+    caveats, device and goal, sampling, then each stage's tables with its plots under them."""
     goal = target.goal
+    plots_of = lambda section: [figure_html(n, d) for n, d in pngs.items()  # noqa: E731
+                                if PLOT_SECTIONS.get(n, "other") == section]
     body = [f"<h1>Error-budget report: {esc(target.device.name)}</h1>",
             f"<p>Target <code>{esc(target.name)}</code>, sha256 <code>{esc(target.sha256[:16])}</code>. "
             f"{esc(text.INTERVAL_NOTE)}</p>",
@@ -166,28 +191,25 @@ def report_html(answers: Any, *, target: Target, pngs: Mapping[str, bytes],
             "<h2>Sampling</h2>", _pairs(sampling_rows(answers, target, out_dir)),
             "<h2>Fits and model</h2>", _pairs(model_rows(answers))]
     body += [table_html(t) for t in text.fits_tables(answers.fits)]
+    body += plots_of("fits")
     if answers.requirements is not None:
-        from planner.reports.files import lambda_today_model
-
         body.append("<h2>Requirements</h2>")
         body += [table_html(t) for t in text.requirements_tables(
-            answers.requirements, lambda_today_model=lambda_today_model(answers))]
+            answers.requirements, uncertainty=answers.uncertainty)]
     if answers.roadmap is not None:
         body.append("<h2>Roadmap</h2>")
         body += [table_html(t) for t in text.roadmap_tables(answers.roadmap)]
+        body += plots_of("roadmap")
     if answers.sensitivity is not None:
         lumped = answers.model.unsampled if answers.model is not None else ()
         body.append("<h2>Sensitivity</h2>")
         body += [table_html(t) for t in text.sensitivity_tables(answers.sensitivity, lumped=lumped)]
+        body += plots_of("sensitivity")
+    others = plots_of("other")
+    if others:
+        body += ["<h2>Other plots</h2>", *others]
     if answers.notes:
         body.append("<h2>Notes</h2><ul>" + "".join(f"<li>{esc(n)}</li>" for n in answers.notes) + "</ul>")
-    if pngs:
-        body.append("<h2>Plots</h2>")
-    for name, data in pngs.items():
-        uri = "data:image/png;base64," + base64.b64encode(data).decode("ascii")
-        caption = PLOT_CAPTIONS.get(name, name)
-        body.append(f'<figure><img alt="{esc(caption)}" src="{uri}"><figcaption>{esc(caption)} '
-                    f"({esc(f'{CONFIDENCE:.0%}')} intervals)</figcaption></figure>")
     return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
             f"<title>{esc('planner report: ' + target.device.name)}</title>"
             f"<style>{STYLE}</style></head><body>\n" + "\n".join(body) + "\n</body></html>\n")

@@ -43,14 +43,50 @@ def png_bytes(fig: Any) -> bytes:
     return buf.getvalue()
 
 
+def nice_log_ticks(low: float, high: float) -> list[float]:
+    """Tick values for a log axis from ``low`` to ``high`` (both > 0) spanning less than about a
+    decade and a half, where matplotlib would label only the powers of ten: the finest of the
+    1..9, 1-1.5-2-3-4-5-7, 1-2-3-5 and 1-2-5 ladders that gives 2 to 8 ticks.
+
+    >>> nice_log_ticks(0.95, 4.5)
+    [1.0, 2.0, 3.0, 4.0]
+    >>> nice_log_ticks(0.25, 1.3)
+    [0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0]
+    """
+    ladders = ((1, 2, 3, 4, 5, 6, 7, 8, 9), (1, 1.5, 2, 3, 4, 5, 7), (1, 2, 3, 5), (1, 2, 5), (1,))
+    for subs in ladders:
+        ticks = [round(m * 10.0 ** k, 12) for k in range(math.floor(math.log10(low)) - 1,
+                                                           math.ceil(math.log10(high)) + 1)
+                 for m in subs if low <= m * 10.0 ** k <= high]
+        if 2 <= len(ticks) <= 8:
+            return ticks
+    return []
+
+
 def _plain_log(ax: Any, *, x: bool = True, y: bool = True) -> None:
-    """Log axes with plain tick labels (0.5, 2, 3) where the range spans less than a decade."""
-    from matplotlib.ticker import FormatStrFormatter, NullFormatter
+    """Log axes with plain tick labels (0.5, 2, 3) where the range spans less than ~1.5 decades."""
+    from matplotlib.ticker import FixedLocator, FormatStrFormatter, NullFormatter, NullLocator
 
     for on, axis, lim in ((x, ax.xaxis, ax.get_xlim()), (y, ax.yaxis, ax.get_ylim())):
-        if on and lim[0] > 0 and lim[1] / lim[0] < 30:
+        lo, hi = sorted(lim)
+        if not on or lo <= 0 or hi / lo >= 30:
+            continue
+        ticks = nice_log_ticks(lo, hi)
+        if ticks:
+            axis.set_major_locator(FixedLocator(ticks))
             axis.set_major_formatter(FormatStrFormatter("%g"))
-            axis.set_minor_formatter(FormatStrFormatter("%g") if lim[1] / lim[0] < 4 else NullFormatter())
+            axis.set_minor_locator(NullLocator())
+            axis.set_minor_formatter(NullFormatter())
+
+
+def _fixed_ticks(axis: Any, values: list[float]) -> None:
+    """Labelled ticks exactly at ``values`` (e.g. the sampled factors), no minor labels."""
+    from matplotlib.ticker import FixedLocator, FormatStrFormatter, NullFormatter, NullLocator
+
+    axis.set_major_locator(FixedLocator(sorted(set(values))))
+    axis.set_major_formatter(FormatStrFormatter("%g"))
+    axis.set_minor_locator(NullLocator())
+    axis.set_minor_formatter(NullFormatter())
 
 
 def _errbar(ax: Any, x: list[float], iv: list[Any], **kw: Any) -> None:
@@ -185,40 +221,65 @@ def lambda_components_figure(report: FitReport) -> Any:
     ax.axhline(1.0, color=THRESHOLD_COLOUR, linewidth=1.2, label="Lambda = 1 (threshold)")
     ax.axvline(1.0, color="#999999", linewidth=0.8)
     ax.set_xscale("log")
-    ax.set_xlabel("component scale factor (x today's error, others at today)")
+    factors = sorted({lf.factor for lf in report.lambdas if lf.axis in names} | {1.0})
+    ax.set_xlim(factors[0] / 1.15, factors[-1] * 1.15)
+    ax.set_xlabel("component scale factor (x today's error, others today; ticks: sampled)")
     ax.set_ylabel("suppression factor Lambda (eps_d / eps_d+2)")
     ax.set_title(f"Lambda against each component ({CL} intervals)")
-    _plain_log(ax, y=False)
+    _fixed_ticks(ax.xaxis, factors)
     ax.grid(True, which="both", alpha=0.25)
     ax.legend(fontsize=8)
     return fig
 
 
 def budget_figure(sens: Any, *, lumped: tuple[str, ...] = ()) -> Any:
-    """Each component's share of 1/Lambda at today's point (horizontal bars, most limiting on top)."""
+    """Each component's share of 1/Lambda at today's point (horizontal bars, most limiting on top),
+    error bars from the bootstrap intervals of the shares when there are any."""
+    from planner.reports.text import estimate
+
     if sens is None or not sens.rows:
         return None
     rows = list(reversed(sens.rows))
     fig, axs = _figure(6.4, 0.5 * len(rows) + 1.6)
     ax = axs[0][0]
     labels = [r.component + (" (lumped)" if r.component in lumped else "") for r in rows]
-    shares = [100 * r.share for r in rows]
-    bars = ax.barh(labels, shares, color=[COLOURS.get(r.component, "#444444") for r in rows])
+    shares = np.array([100 * r.share for r in rows])
+    ivs = [r.intervals.get("share") for r in rows]
+    lo = np.array([100 * (r.share - iv.low) if iv else 0.0 for r, iv in zip(rows, ivs)])
+    hi = np.array([100 * (iv.high - r.share) if iv else 0.0 for r, iv in zip(rows, ivs)])
+    has_iv = any(iv is not None for iv in ivs)
+    bars = ax.barh(labels, shares, color=[COLOURS.get(r.component, "#444444") for r in rows],
+                   xerr=[np.clip(lo, 0, None), np.clip(hi, 0, None)] if has_iv else None,
+                   error_kw={"ecolor": "#222222", "capsize": 3, "elinewidth": 1.0})
     for bar, r in zip(bars, rows):
         if r.component in lumped:
             bar.set_hatch("//")
-    for y, v in enumerate(shares):
-        ax.text(v, y, f" {v:.1f}%", va="center", fontsize=8)
-    ax.set_xlim(0, max(shares + [1.0]) * 1.18)
+    for y, (r, iv, top) in enumerate(zip(rows, ivs, shares + hi)):
+        label = estimate(r.share, iv, scale=100) if iv else f"{100 * r.share:.3g}"
+        ax.text(top, y, f"  {label} %", va="center", fontsize=8)
+    ax.set_xlim(0, max(list(shares + hi) + [1.0]) * 1.35)
     ax.set_xlabel("share of 1/Lambda at today's point (%)")
-    ax.set_title(f"Error budget: Lambda today {num(sens.suppression_today)} (model point values)")
+    lam = estimate(sens.suppression_today, sens.suppression_today_interval)
+    how = f"error bars: {CL} bootstrap" if has_iv else "best values, no bootstrap"
+    ax.set_title(f"Error budget: Lambda today {lam} ({how})", fontsize=10)
     ax.grid(True, axis="x", alpha=0.3)
     return fig
 
 
-def roadmap_figure(rm: Any, model: Any, target: Target) -> Any:
+def eps_band(models: Any, scales: np.ndarray, distance: int, best: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The :data:`~planner.fits.CONFIDENCE` range of eps per cycle at ``distance`` over the replica
+    ``models`` for each row of ``scales`` (shape (n, 6)), widened to hold ``best``: the same
+    interval the roadmap's rows carry (:func:`planner.planning.uncertainty.replica_interval`)."""
+    eps = np.minimum(np.exp(np.array([m.ln_eps_array(scales, distance) for m in models])), 0.5)
+    q = (1 - CONFIDENCE) / 2
+    lo, hi = np.quantile(eps, [q, 1 - q], axis=0)
+    return np.minimum(lo, best), np.maximum(hi, best)
+
+
+def roadmap_figure(rm: Any, model: Any, target: Target, *, models: Any = ()) -> Any:
     """eps at the candidate distances against date (log y) with the goal, and the physical qubits
-    needed over time (lower panel), at the central rates."""
+    needed over time (lower panel), at the central rates. With the bootstrap replica ``models``,
+    a band shows the interval of eps at the goal distance."""
     if rm is None or model is None or target.roadmap is None:
         return None
     from planner.planning.ask import smallest_distance
@@ -237,7 +298,15 @@ def roadmap_figure(rm: Any, model: Any, target: Target) -> Any:
         colour = _shade(COLOURS["joint"], n - 1 - k, n)
         top.plot(dates, np.exp(model.ln_eps_array(scales, d)), "-", color=colour, label=f"d = {d}")
         top.plot([s.date for s in rm.steps], [s.eps[d] for s in rm.steps], "o", color=colour, markersize=3)
+    dg = rm.goal_distance if rm.goal_distance in rm.candidate_distances else rm.candidate_distances[-1]
+    if len(models):
+        best = np.exp(model.ln_eps_array(scales, dg))
+        lo, hi = eps_band(models, scales, dg, np.minimum(best, 0.5))
+        top.fill_between(dates, lo, hi, color=COLOURS["joint"], alpha=0.22, linewidth=0,
+                         label=f"d = {dg}: {CL} interval (bootstrap)")
     top.axhline(rm.eps_target, color=GOAL_COLOUR, linestyle=":", linewidth=1.5, label=f"goal {rm.eps_target:g}")
+    # the lines fall for decades after the goal: keep the view on the goal's neighbourhood
+    top.set_ylim(bottom=max(top.get_ylim()[0], rm.eps_target * 1e-3))
     g = rm.goal
     for ax in (top, bottom):
         if g.date is not None:
@@ -276,7 +345,8 @@ def figures(answers: Any, *, target: Target) -> dict[str, Any]:
         "lambda_vs_joint_scale": lambda_joint_figure(report, answers.model),
         "lambda_vs_component_scale": lambda_components_figure(report),
         "inverse_lambda_budget": budget_figure(answers.sensitivity, lumped=tuple(lumped)),
-        "roadmap": roadmap_figure(answers.roadmap, answers.model, target),
+        "roadmap": roadmap_figure(answers.roadmap, answers.model, target,
+                                  models=answers.uncertainty.models if answers.uncertainty else ()),
     }
     return {k: v for k, v in figs.items() if v is not None}
 

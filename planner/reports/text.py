@@ -51,6 +51,33 @@ def interval(iv: Interval | None) -> str:
     return "—" if iv is None else span(iv.best, iv.low, iv.high)
 
 
+def estimate(best: float | None, iv: Interval | None, *, scale: float = 1.0) -> str:
+    """``best [low, high]`` when there is an interval, else ``best`` alone; every number
+    multiplied by ``scale`` (100 for percentages).
+
+    >>> estimate(0.25, Interval(0.25, 0.2, 0.3), scale=100), estimate(0.25, None)
+    ('25 [20, 30]', '0.25')
+    """
+    if iv is not None:
+        return span(iv.best * scale, iv.low * scale, iv.high * scale)
+    return num(None if best is None else best * scale)
+
+
+def halvings(iv: Interval | None, factor: float) -> tuple[float, Interval | None]:
+    """Halvings of error, log2(1/factor), and their interval from the factor's (the map is
+    decreasing, so the factor's high end gives the low end). ``-0`` never appears.
+
+    >>> halvings(Interval(0.25, 0.125, 0.5), 0.25)
+    (2.0, Interval(best=2.0, low=1.0, high=3.0))
+    """
+    h = lambda s: 0.0 + (-math.log2(s) if s > 0 else math.inf)  # noqa: E731
+    return h(factor), (None if iv is None else Interval(h(iv.best), h(iv.high), h(iv.low)))
+
+
+#: said of a model figure printed without an interval (no bootstrap replicas were run)
+POINT_VALUE = "best value of the model; no bootstrap interval"
+
+
 @dataclasses.dataclass(frozen=True)
 class TextTable:
     """One table as text: ``lead`` lines above it, ``notes`` below, then the caveat line."""
@@ -77,47 +104,106 @@ def _join(*parts: str) -> str:
 # requirements
 
 
-def requirements_tables(req: Any, *, lambda_today_model: Interval | None = None) -> list[TextTable]:
+def _with_point_note(best: float | None, iv: Interval | None) -> str:
+    return estimate(best, iv) if iv is not None else f"{num(best)} ({POINT_VALUE})"
+
+
+#: readable names of the keys of Uncertainty.reachable_fraction
+_ANSWER_NAMES = {"joint_factor": "joint factor", "today_distance": "today's distance", "mix": "cheapest mix"}
+
+
+def _replica_note(uncertainty: Any) -> str:
+    """How many bootstrap replicas, and the answers that exist on fewer than all of them (their
+    intervals are over the replicas where they do).
+
+    >>> from planner.planning import Uncertainty
+    >>> _replica_note(Uncertainty(200, {}, {"factor.gate_2q": 0.47, "joint_factor": 1.0, "mix": 0.87}, ()))
+    'Bootstrap intervals over 200 replica models of the fit. Replicas on which an answer exists, where not all (its interval is over those): gate_2q alone 47%, cheapest mix 87%.'
+    """
+    if uncertainty is None:
+        return ""
+    partial = [f"{_ANSWER_NAMES.get(k, k.removeprefix('factor.') + ' alone')} {v:.0%}"
+               for k, v in uncertainty.reachable_fraction.items() if 0 < v < 1]
+    return (f"Bootstrap intervals over {uncertainty.replicas} replica models of the fit."
+            + (" Replicas on which an answer exists, where not all (its interval is over those): "
+               + ", ".join(partial) + "." if partial else ""))
+
+
+def requirements_tables(req: Any, *, lambda_today_model: Interval | None = None,
+                        uncertainty: Any = None) -> list[TextTable]:
     """What each lever needs for the goal (``req``: :class:`planner.planning.Requirements`).
 
-    ``lambda_today_model``: the bootstrap interval of the model's Lambda today, when known.
+    ``lambda_today_model``: the bootstrap interval of the model's Lambda today when ``req`` does
+    not carry it; ``uncertainty``: the :class:`planner.planning.Uncertainty` behind the intervals
+    (for the replica count in the notes).
     """
     td = req.today
-    today_dist = interval(td.distance_interval) if td.distance_interval else num(td.distance)
-    model_lam = interval(lambda_today_model) if lambda_today_model else num(td.suppression_model)
+    model_lam = td.suppression_model_interval or lambda_today_model
     lead = (
         f"Goal: logical error per cycle <= {num(req.eps_target)} at distance {req.distance} "
         f"({req.physical_qubits} physical qubits, 2d^2-1; distance {req.distance_source}).",
-        f"Lambda needed at that distance with today's prefactor: {num(req.required_suppression)}.",
+        "Lambda needed at that distance with today's prefactor: "
+        f"{_with_point_note(req.required_suppression, req.required_suppression_interval)}.",
         f"Lambda today: {interval(td.suppression_fitted)} fitted at joint factor 1; "
-        f"{model_lam} from the response model.",
+        f"{_with_point_note(td.suppression_model, model_lam)} from the response model.",
+        f"Logical error per cycle today at distance {req.distance} (response model): "
+        f"{_with_point_note(td.logical_error_per_cycle, td.logical_error_per_cycle_interval)}.",
         "Smallest distance meeting the goal with today's device: "
-        + (f"{today_dist} ({td.physical_qubits} physical qubits)" if td.distance else "none")
+        + (f"{estimate(td.distance, td.distance_interval)} ({td.physical_qubits} physical qubits)"
+           if td.distance else "none")
         + (f"; {td.note}" if td.note else "") + ".",
     )
     mix = req.mix
     rows = []
     for a in (req.joint, *req.components):
         if a.reachable:
-            cell = interval(a.factor_interval) if a.factor_interval else num(a.factor)
-            cell += f" {EXTRAPOLATED}" if a.extrapolation else ""
+            cell = estimate(a.factor, a.factor_interval) + (f" {EXTRAPOLATED}" if a.extrapolation else "")
+            lam = estimate(a.suppression, a.suppression_interval)
         else:
             cell = "not reachable" + ("" if a.lever == "joint" else " alone")
-        mix_cell = "—" if a.lever == "joint" else num(mix.scales.get(a.lever))
-        if a.lever != "joint" and any(x.startswith(f"{a.lever} ") for x in mix.extrapolation):
-            mix_cell += f" {EXTRAPOLATED}"
-        rows.append((a.lever, cell, num(a.suppression), mix_cell, _join(a.note, *a.extrapolation)))
-    notes = [f"Cheapest mix ({'reachable' if mix.reachable else 'not reachable'}): cost "
-             f"{num(mix.cost)} cost-weighted halvings of error, Lambda {num(mix.suppression)}, "
-             f"logical error per cycle {num(mix.logical_error_per_cycle)}"
-             + (f"; {mix.note}" if mix.note else "") + ".",
+            # not reachable alone: the most it gives, with the component perfect
+            lam = "—" if a.lever == "joint" else "max " + estimate(a.suppression, a.suppression_interval)
+        rows.append((a.lever, cell, lam, *_mix_cells(mix, a.lever), _join(lever_note(a), *a.extrapolation)))
+    total = estimate(mix.cost, mix.cost_interval)
+    mix_lam = estimate(mix.suppression, mix.suppression_interval)
+    notes = [f"Cheapest mix ({'reachable' if mix.reachable else 'not reachable'}): cost {total} "
+             f"cost-weighted halvings of error (sum over components of cost x log2(1/factor)), Lambda "
+             f"{mix_lam}; logical error per cycle {num(mix.logical_error_per_cycle)} at distance "
+             f"{req.distance}, the goal it is solved to meet" + (f"; {mix.note}" if mix.note else "") + ".",
+             "Lambda reached: at the factor needed; 'max': with the component perfect, the most it "
+             "gives alone. Cost share: the component's part of the mix's cost.",
              f"Model: {req.model_form} form; fit quality: {req.model_quality}.",
-             EXTRAPOLATED_NOTE, *req.notes]
+             _replica_note(uncertainty), EXTRAPOLATED_NOTE, *req.notes]
     return [TextTable(
         key="requirements", title="What each lever needs to reach the goal",
         headers=("lever", "scale factor needed, alone (x today's error)", "Lambda reached (ratio)",
-                 "cheapest mix factor (x today's error)", "note"),
-        rows=tuple(rows), lead=lead, notes=tuple(notes))]
+                 "cheapest mix factor (x today's error)", "cheapest mix halvings (log2 of 1/factor)",
+                 "cheapest mix cost share (%)", "note"),
+        rows=tuple(rows), lead=lead, notes=tuple(n for n in notes if n))]
+
+
+def lever_note(a: Any) -> str:
+    """The note of one lever's answer, without the bare Lambda planning puts into the "not
+    reachable alone" note (the Lambda column carries it with its interval).
+
+    >>> from planner.planning import FactorAnswer
+    >>> lever_note(FactorAnswer("idle", False, None, 1.9, note="not reachable alone: with idle perfect, Lambda = 1.9"))
+    'not reachable alone: even with idle perfect, Lambda stays below the Lambda needed'
+    """
+    if not a.reachable and a.lever != "joint":
+        return f"not reachable alone: even with {a.lever} perfect, Lambda stays below the Lambda needed"
+    return a.note
+
+
+def _mix_cells(mix: Any, lever: str) -> tuple[str, str, str]:
+    """Factor, halvings and cost share of ``lever`` in the cheapest mix ('—' for joint or no mix)."""
+    if lever == "joint" or not mix.reachable or lever not in mix.scales:
+        return "—", "—", "—"
+    f_iv = mix.scale_intervals.get(lever)
+    mark = f" {EXTRAPOLATED}" if any(x.startswith(f"{lever} ") for x in mix.extrapolation) else ""
+    h, h_iv = halvings(f_iv, mix.scales[lever])
+    share = estimate(mix.cost_shares.get(lever, 0.0), mix.cost_share_intervals.get(lever), scale=100)
+    return estimate(mix.scales[lever], f_iv) + mark, estimate(h, h_iv), share
 
 
 # ---------------------------------------------------------------------------------------------
@@ -130,19 +216,47 @@ def moving_components(rm: Any) -> list[str]:
     return [c for c in first if any(s.scales[c] != 1.0 for s in rm.steps)]
 
 
+def goal_distance(rm: Any) -> int:
+    """The distance the roadmap judges the goal at (the largest within max_qubits)."""
+    return rm.goal_distance if rm.goal_distance in rm.candidate_distances else rm.candidate_distances[-1]
+
+
+def _fit_source(num_replicas: int) -> str:
+    return (f"best [low, high] over {num_replicas} bootstrap models of the fit" if num_replicas
+            else POINT_VALUE)
+
+
 def roadmap_tables(rm: Any) -> list[TextTable]:
-    """The roadmap steps (central rates) and the dated events with their ranges."""
+    """The roadmap steps (central rates), eps at every candidate distance, and the dated events
+    with their ranges."""
     moving = moving_components(rm)
-    headers = ("date", *(f"{c} scale (x today)" for c in moving), "Lambda (ratio)",
-               *(f"eps d={d} (per cycle)" for d in rm.candidate_distances), "distance (physical qubits)")
-    rows = tuple((s.date.isoformat(), *(num(s.scales[c]) for c in moving), num(s.suppression),
-                  *(num(s.eps[d]) for d in rm.candidate_distances),
-                  f"{s.distance} ({s.physical_qubits})" if s.distance else "—") for s in rm.steps)
+    dg = goal_distance(rm)
+    extra: list[str] = []
+    rows = []
+    for s in rm.steps:
+        if s.extrapolation and not extra:
+            extra = [f"{s.date.isoformat()}: {x}" for x in s.extrapolation]
+        mark = f" {EXTRAPOLATED}" if s.extrapolation else ""
+        rows.append((s.date.isoformat(), *(num(s.scales[c]) for c in moving),
+                     estimate(s.suppression, s.suppression_interval) + mark,
+                     estimate(s.eps[dg], s.eps_intervals.get(dg)),
+                     f"{s.distance} ({s.physical_qubits})" if s.distance else "—"))
     lead = (f"From {rm.start.isoformat()} per {rm.step} at the central rates; goal: logical error per "
-            f"cycle <= {num(rm.eps_target)} within {rm.max_qubits} physical qubits. The table stops "
-            "at the first step meeting the goal.",)
+            f"cycle <= {num(rm.eps_target)} within {rm.max_qubits} physical qubits, judged at distance "
+            f"{dg} (the largest within them). The table stops at the first step meeting the goal.",
+            "Scales follow from the rates in the target file (inputs, no interval); Lambda and eps: "
+            f"{_fit_source(rm.num_replicas)}, at the central rates.")
+    notes = [*([f"{EXTRAPOLATED} extrapolated: outside the sampled scale range, first at {extra[0]}"]
+               + extra[1:] if extra else []), *([rm.note] if rm.note else [])]
     steps = TextTable(key="roadmap", title="Roadmap: model predictions at the expected rates",
-                      headers=headers, rows=rows, lead=lead, notes=(rm.note,) if rm.note else ())
+                      headers=("date", *(f"{c} scale (x today)" for c in moving), "Lambda (ratio)",
+                               f"eps d={dg} (per cycle)", "distance (physical qubits)"),
+                      rows=tuple(rows), lead=lead, notes=tuple(notes))
+    eps = TextTable(key="roadmap_eps", title="Logical error per cycle at the candidate distances",
+                    headers=("date", *(f"eps d={d} (per cycle)" for d in rm.candidate_distances)),
+                    rows=tuple((s.date.isoformat(), *(estimate(s.eps[d], s.eps_intervals.get(d))
+                                                      for d in rm.candidate_distances)) for s in rm.steps),
+                    lead=(f"The same steps; {_fit_source(rm.num_replicas)}.",))
     ev_rows = []
     for e in (rm.goal, *rm.milestones):
         rng = (f"[{e.low.isoformat() if e.low else 'before start'}, "
@@ -154,8 +268,10 @@ def roadmap_tables(rm: Any) -> list[TextTable]:
                                "scenarios reaching it (%)"),
                       rows=tuple(ev_rows),
                       lead=(f"Ranges over {rm.num_scenarios} scenarios drawing the rates (their spreads) "
-                            "and the fit (bootstrap models).",) if rm.num_scenarios else ())
-    return [steps, dates]
+                            "and the fit (bootstrap models)." if rm.num_scenarios else
+                            "Dates at the central rates with the best model (no spreads, no bootstrap: "
+                            "no range).",))
+    return [steps, eps, dates]
 
 
 # ---------------------------------------------------------------------------------------------
@@ -163,10 +279,19 @@ def roadmap_tables(rm: Any) -> list[TextTable]:
 
 
 def sensitivity_tables(sens: Any, *, lumped: Sequence[str] = ()) -> list[TextTable]:
-    """Shares of the 1/Lambda budget at today's point, most limiting first."""
-    rows = tuple((r.component + (" (lumped)" if r.component in lumped else ""), num(100 * r.share),
-                  num(r.elasticity), num(r.suppression_halved), num(r.suppression_perfect),
-                  num(r.months_earlier), r.note) for r in sens.rows)
+    """Shares of the 1/Lambda budget at today's point, most limiting first, with their intervals."""
+    rows = []
+    for r in sens.rows:
+        iv = r.intervals
+        rows.append((r.component + (" (lumped)" if r.component in lumped else ""),
+                     estimate(r.share, iv.get("share"), scale=100),
+                     estimate(r.elasticity, iv.get("elasticity")),
+                     estimate(r.suppression_halved, iv.get("suppression_halved")),
+                     estimate(r.suppression_perfect, iv.get("suppression_perfect")),
+                     estimate(r.months_earlier, iv.get("months_earlier")), r.note))
+    source = (f"Intervals: best [low, high] over {sens.num_replicas} bootstrap models of the fit, at the "
+              "central rates (the spreads of the rates are not in them)." if sens.num_replicas
+              else f"Figures: {POINT_VALUE}.")
     notes = [f"Model: {sens.model_form} form; fit quality: {sens.model_quality}."]
     if sens.note:
         notes.append(sens.note)
@@ -175,9 +300,9 @@ def sensitivity_tables(sens: Any, *, lumped: Sequence[str] = ()) -> list[TextTab
         headers=("component", "share of 1/Lambda (%)", "d ln Lambda / d ln p (elasticity)",
                  "Lambda if halved (ratio)", "Lambda if perfect (ratio)",
                  f"months earlier at +{100 * sens.faster_points:g} points of error removed per year (months)", "note"),
-        rows=rows,
-        lead=(f"Lambda today from the response model: {num(sens.suppression_today)}. Point values of "
-              "the model (no interval).",),
+        rows=tuple(rows),
+        lead=("Lambda today from the response model: "
+              f"{_with_point_note(sens.suppression_today, sens.suppression_today_interval)}. {source}",),
         notes=tuple(notes))]
 
 
