@@ -21,7 +21,7 @@ from rich.console import Console
 from planner.config import COMPONENTS, EXAMPLE_TOML, load_target, parse_target
 from planner.errors import InputError
 from planner.planning import answer_all
-from planner.reports import files, plots, text
+from planner.reports import files, html, plots, text
 from planner.sampling import run_sweep
 from planner.store import SampleStore
 from planner.sweep import StoppingRule, plan_sweep
@@ -316,3 +316,184 @@ def test_samples_still_read_after_reports_are_written(built: Built) -> None:
     again = SampleStore(built.out).stats()
     assert sum(s.shots for s in again) == sum(s.shots for s in built.stats)
     assert (built.out / "requirements.csv").is_file()
+
+
+# ---------------------------------------------------------------------------------------------
+# the bootstrap intervals in every file (consistency with fits.json, the one machine record)
+
+
+def _csv_iv(row: dict[str, str], prefix: str = "") -> tuple[float, float, float]:
+    keys = ("best", "low", "high") if not prefix else (prefix, f"{prefix}_low", f"{prefix}_high")
+    return tuple(float(row[k]) for k in keys)  # type: ignore[return-value]
+
+
+def _json_iv(iv: dict[str, float]) -> tuple[float, float, float]:
+    return iv["best"], iv["low"], iv["high"]
+
+
+def _shown(iv: dict[str, float], scale: float = 1.0) -> str:
+    return text.span(iv["best"] * scale, iv["low"] * scale, iv["high"] * scale)
+
+
+def test_outdated_point_value_wording_is_gone(built: Built) -> None:
+    for name in ("requirements.md", "roadmap.md", "sensitivity.md", "report.html"):
+        body = (built.out / name).read_text()
+        assert "Point values of the model" not in body and "(no interval)" not in body, name
+        # the one allowed wording for a model figure without interval appears only without replicas
+        assert text.POINT_VALUE not in body, name
+    title = plots.budget_figure(built.answers.sensitivity).axes[0].get_title()
+    assert "point values" not in title and text.interval(built.answers.sensitivity.suppression_today_interval) in title
+
+
+def test_requirement_intervals_agree_across_json_csv_markdown_html(built: Built) -> None:
+    req = json.loads((built.out / "fits.json").read_text())["requirements"]
+    csv_rows = {(r["quantity"], r["lever"]): r for r in _read_csv(built.out / "requirements.csv")}
+    md = (built.out / "requirements.md").read_text()
+    md_rows = {r[0]: r for r in _md_rows(built.out / "requirements.md")}
+    page = _page(built.out / "report.html")
+    html_text = " ".join(page.text)
+    checked = 0
+    singles = [(("required_suppression_factor", ""), req["required_suppression_factor_interval"]),
+               (("suppression_factor_today_model", ""), req["today"]["suppression_factor_model_interval"]),
+               (("today_logical_error_per_cycle", ""),
+                req["today"]["logical_error_per_cycle_at_distance_interval"]),
+               (("cheapest_mix_cost", ""), req["cheapest_mix"]["cost_halvings_interval"]),
+               (("cheapest_mix_suppression_factor", ""), req["cheapest_mix"]["suppression_factor_interval"])]
+    for key, iv in singles:
+        assert iv is not None, key  # 200 replicas: every one of these has an interval
+        assert _csv_iv(csv_rows[key]) == _json_iv(iv), key  # full precision round trip
+        assert _shown(iv) in md and _shown(iv) in html_text, key
+        checked += 1
+    mix = req["cheapest_mix"]
+    assert mix["reachable"]
+    for lever in (req["joint"], *req["components"]):
+        name, iv = lever["lever"], lever["suppression_factor_interval"]
+        assert _csv_iv(csv_rows[("suppression_factor_reached", name)]) == _json_iv(iv)
+        assert md_rows[name][2] == ("" if lever["reachable"] else "max ") + _shown(iv)
+        checked += 1
+        if name == "joint":
+            continue
+        f_iv, s_iv = mix["scale_intervals"][name], mix["cost_share_intervals"][name]
+        assert _csv_iv(csv_rows[("cheapest_mix_factor", name)]) == _json_iv(f_iv)
+        assert _csv_iv(csv_rows[("cheapest_mix_cost_share", name)]) == _json_iv(s_iv)
+        assert md_rows[name][3].removesuffix(f" {text.EXTRAPOLATED}") == _shown(f_iv)
+        assert md_rows[name][5] == _shown(s_iv, 100)  # percent in the tables, fraction in the CSV
+        # halvings = log2(1/factor): the factor's high end is the halvings' low end
+        h = _csv_iv(csv_rows[("cheapest_mix_halvings", name)])
+        assert h == pytest.approx((-math.log2(f_iv["best"]), -math.log2(f_iv["high"]), -math.log2(f_iv["low"])),
+                                  abs=1e-12)
+        assert h[1] <= h[0] <= h[2]
+        checked += 1
+    assert checked == len(singles) + 1 + 2 * len(COMPONENTS)
+    assert all(r in page.rows for r in md_rows.values())
+
+
+def test_sensitivity_intervals_agree_across_json_csv_markdown(built: Built) -> None:
+    sens = json.loads((built.out / "fits.json").read_text())["sensitivity"]
+    assert sens["num_replicas"] == 200
+    csv_rows = {r["component"]: r for r in _read_csv(built.out / "sensitivity.csv")}
+    md_rows = {r[0].removesuffix(" (lumped)"): r for r in _md_rows(built.out / "sensitivity.md")}
+    pairs = (("share_of_inverse_lambda", "share_interval", 1, 100), ("elasticity", "elasticity_interval", 2, 1),
+             ("suppression_factor_halved", "suppression_factor_halved_interval", 3, 1),
+             ("suppression_factor_perfect", "suppression_factor_perfect_interval", 4, 1),
+             ("months_earlier", "months_earlier_interval", 5, 1))
+    for comp in sens["components"]:
+        for col, key, cell, scale in pairs:
+            iv = comp[key]
+            assert iv is not None and iv["low"] <= iv["best"] <= iv["high"], (comp["component"], key)
+            assert _csv_iv(csv_rows[comp["component"]], col) == _json_iv(iv), (comp["component"], col)
+            assert md_rows[comp["component"]][cell] == _shown(iv, scale), (comp["component"], col)
+    lead = _shown(sens["suppression_factor_today_interval"])
+    assert lead in (built.out / "sensitivity.md").read_text()
+    assert lead in " ".join(_page(built.out / "report.html").text)
+
+
+def test_roadmap_intervals_agree_across_json_csv_markdown(built: Built) -> None:
+    rm = json.loads((built.out / "fits.json").read_text())["roadmap"]
+    dg = rm["goal_distance"]
+    assert rm["num_replicas"] == 200 and dg in rm["candidate_distances"]
+    csv_steps = _read_csv(built.out / "roadmap.csv")
+    tables: list[list[list[str]]] = []  # each Markdown table: header row first
+    for r in _md_rows(built.out / "roadmap.md"):
+        if r[0] in ("date", "event"):
+            tables.append([])
+        tables[-1].append(r)
+    (head, *steps), (eps_head, *eps_rows), dates = tables
+    assert "Lambda (ratio)" in head and f"eps d={dg} (per cycle)" in head and dates[0][0] == "event"
+    assert eps_head == ["date", *(f"eps d={d} (per cycle)" for d in rm["candidate_distances"])]
+    md_steps, md_eps = {r[0]: r for r in steps}, {r[0]: r for r in eps_rows}
+    assert len(csv_steps) == len(rm["steps"]) == len(md_steps) == len(md_eps)
+    for step, row in zip(rm["steps"], csv_steps):
+        lam = step["suppression_factor_interval"]
+        assert _csv_iv(row, "suppression_factor") == _json_iv(lam)
+        cells = dict(zip(head, md_steps[step["date"]]))
+        assert cells["Lambda (ratio)"].removesuffix(f" {text.EXTRAPOLATED}") == _shown(lam)
+        assert (text.EXTRAPOLATED in cells["Lambda (ratio)"]) == bool(step["extrapolation"])
+        assert cells[f"eps d={dg} (per cycle)"] == _shown(step["logical_error_per_cycle_intervals"][str(dg)])
+        eps_cells = dict(zip(eps_head, md_eps[step["date"]]))
+        for d in rm["candidate_distances"]:
+            iv = step["logical_error_per_cycle_intervals"][str(d)]
+            assert (float(row[f"eps_d{d}"]), float(row[f"eps_low_d{d}"]), float(row[f"eps_high_d{d}"])) == _json_iv(iv)
+            assert eps_cells[f"eps d={d} (per cycle)"] == _shown(iv)
+
+
+def test_html_puts_each_plot_under_its_tables_and_the_caveats_first(built: Built) -> None:
+    page = (built.out / "report.html").read_text()
+    at = lambda s: page.index(s)  # noqa: E731
+    assert at('class="caveats"') < at("<h2>Device and goal</h2>")
+    sections = ["<h2>Fits and model</h2>", "<h2>Requirements</h2>", "<h2>Roadmap</h2>", "<h2>Sensitivity</h2>"]
+    assert [at(s) for s in sections] == sorted(at(s) for s in sections)
+    img = {name: at(f'<img alt="{html.esc(caption)}"') for name, caption in html.PLOT_CAPTIONS.items()}
+    for name in ("logical_error_vs_distance", "lambda_vs_joint_scale", "lambda_vs_component_scale"):
+        assert at("Suppression factor Lambda per scale point") < img[name] < at(sections[1]), name
+    assert at("When the goal and the Lambda milestones are met") < img["roadmap"] < at(sections[3])
+    assert at("Which component holds Lambda back") < img["inverse_lambda_budget"]
+
+
+def test_budget_plot_error_bars_are_the_share_intervals(built: Built) -> None:
+    sens = built.answers.sensitivity
+    ax = plots.budget_figure(sens).axes[0]
+    bars = [c for c in ax.containers if hasattr(c, "has_xerr") and c.has_xerr]
+    assert len(bars) == 1
+    segs = bars[0].lines[2][0].get_segments()  # one horizontal segment per bar, bottom bar first
+    want = [(100 * r.intervals["share"].low, 100 * r.intervals["share"].high) for r in reversed(sens.rows)]
+    got = [(float(s[:, 0].min()), float(s[:, 0].max())) for s in segs]
+    assert np.allclose(got, want, rtol=0, atol=1e-9), (got, want)
+
+
+def test_component_plot_labels_the_sampled_factors(built: Built) -> None:
+    ax = plots.lambda_components_figure(built.answers.fits).axes[0]
+    ticks = list(ax.get_xticks())
+    assert ticks == [0.5, 1.0]  # component_scales = [0.5] in TARGET_TOML, plus today's point
+    assert ax.xaxis.get_major_formatter().format_ticks(ticks) == ["0.5", "1"]
+    assert list(ax.xaxis.get_minor_locator()()) == []  # no unlabelled minor ticks between them
+    lam = plots.lambda_joint_figure(built.answers.fits, built.answers.model).axes[0]
+    labels = lam.yaxis.get_major_formatter().format_ticks(lam.get_yticks())
+    assert len(labels) >= 3 and "1" in labels  # a log axis of less than a decade still reads
+
+
+def test_roadmap_band_is_the_rows_interval_at_the_goal_distance(built: Built) -> None:
+    rm, models = built.answers.roadmap, built.answers.uncertainty.models
+    dg = rm.goal_distance
+    scales = np.array([[s.scales[c] for c in COMPONENTS] for s in rm.steps])
+    lo, hi = plots.eps_band(models, scales, dg, np.array([s.eps[dg] for s in rm.steps]))
+    for s, a, b in zip(rm.steps, lo, hi):
+        assert (a, b) == pytest.approx((s.eps_intervals[dg].low, s.eps_intervals[dg].high), rel=1e-9)
+    fig = plots.roadmap_figure(rm, built.answers.model, built.target, models=models)
+    labels = [c.get_label() for c in fig.axes[0].collections]
+    assert any(f"d = {dg}: 95% interval" in x for x in labels)
+    bare = plots.roadmap_figure(rm, built.answers.model, built.target)
+    assert not any("interval" in c.get_label() for c in bare.axes[0].collections)
+
+
+def test_without_bootstrap_model_figures_say_they_are_best_values(built: Built) -> None:
+    answers = answer_all(built.target, built.stats, seed=0, replicas=0)
+    req = text.requirements_tables(answers.requirements)[0]
+    assert f"{text.num(answers.requirements.required_suppression)} ({text.POINT_VALUE})" in " ".join(req.lead)
+    assert "fitted at joint factor 1" in " ".join(req.lead)  # the fitted Lambda keeps its LR interval
+    sens = text.sensitivity_tables(answers.sensitivity)[0]
+    assert text.POINT_VALUE in sens.lead[0] and not any("[" in c for r in sens.rows for c in r[1:6])
+    steps, eps, _ = text.roadmap_tables(answers.roadmap)
+    assert text.POINT_VALUE in " ".join(steps.lead) and text.POINT_VALUE in eps.lead[0]
+    assert not any("[" in c for r in (*steps.rows, *eps.rows) for c in r)
+    assert "no bootstrap" in plots.budget_figure(answers.sensitivity).axes[0].get_title()

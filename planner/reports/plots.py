@@ -44,8 +44,8 @@ def png_bytes(fig: Any) -> bytes:
 
 
 def nice_log_ticks(low: float, high: float) -> list[float]:
-    """Tick values for a log axis from ``low`` to ``high`` (both > 0) spanning less than about a
-    decade and a half, where matplotlib would label only the powers of ten: the finest of the
+    """Tick values for a log axis from ``low`` to ``high`` (both > 0) spanning less than two
+    decades, where matplotlib would label only the powers of ten: the finest of the
     1..9, 1-1.5-2-3-4-5-7, 1-2-3-5 and 1-2-5 ladders that gives 2 to 8 ticks.
 
     >>> nice_log_ticks(0.95, 4.5)
@@ -64,12 +64,12 @@ def nice_log_ticks(low: float, high: float) -> list[float]:
 
 
 def _plain_log(ax: Any, *, x: bool = True, y: bool = True) -> None:
-    """Log axes with plain tick labels (0.5, 2, 3) where the range spans less than ~1.5 decades."""
+    """Log axes with plain tick labels (0.5, 2, 3) where the range spans less than two decades."""
     from matplotlib.ticker import FixedLocator, FormatStrFormatter, NullFormatter, NullLocator
 
     for on, axis, lim in ((x, ax.xaxis, ax.get_xlim()), (y, ax.yaxis, ax.get_ylim())):
         lo, hi = sorted(lim)
-        if not on or lo <= 0 or hi / lo >= 30:
+        if not on or lo <= 0 or hi / lo >= 100:
             continue
         ticks = nice_log_ticks(lo, hi)
         if ticks:
@@ -329,6 +329,7 @@ def roadmap_figure(rm: Any, model: Any, target: Target, *, models: Any = ()) -> 
     bottom.axhline(rm.max_qubits, color="#333333", linestyle="--", linewidth=1.0,
                    label=f"goal.max_qubits {rm.max_qubits}")
     bottom.set_yscale("log")
+    _plain_log(bottom, x=False)  # 700, 1000, 2000 rather than 7x10^2
     bottom.set_ylabel("physical qubits")
     bottom.set_xlabel("date")
     bottom.grid(True, which="major", alpha=0.3)
