@@ -203,10 +203,10 @@ def run_on_cluster(items: Sequence[WorkItem], *, spec: str | ClusterSpec, rule: 
     if isinstance(spec, str):
         spec = parse_cluster(spec)
     with connect(spec, console) as client:
-        _drive(client, items, sink)
+        drive_chunks(client, items, sink)
 
 
-def _drive(client: Any, items: Sequence[WorkItem], sink: ChunkSink) -> None:
+def drive_chunks(client: Any, items: Sequence[WorkItem], sink: ChunkSink) -> None:
     from distributed import as_completed
 
     tasks = [_Progress(item=it, text=str(it.task.circuit)) for it in items]  # largest first

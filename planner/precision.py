@@ -32,7 +32,7 @@ from planner.manifest import Manifest, prepare_out_dir, read_manifest, resolved_
 from planner.precision_alloc import Allocation, allocate
 from planner.precision_answers import (DEFAULT_FOCUS, AnswerPrecision, Assessment, assess,
                                        check_focus, describe, task_label)
-from planner.sampling import WorkItem, _out_dir_of, _target_bytes, default_workers, run_local
+from planner.sampling import WorkItem, out_dir_of, target_bytes_of, default_workers, run_local
 from planner.store import SampleStore
 from planner.sweep import StoppingRule
 
@@ -141,9 +141,9 @@ class _Engine:
         if not items:
             return
         if self._client is not None:
-            from planner.cluster import _drive
+            from planner.cluster import drive_chunks
 
-            _drive(self._client, items, sink)
+            drive_chunks(self._client, items, sink)
         else:
             run_local(items, workers=self.workers, sink=sink)
 
@@ -186,10 +186,10 @@ def run_targeted(tasks: Sequence[sinter.Task], *, store: SampleStore, target: Ta
     if write_manifest:
         manifest = Manifest.for_sweep(
             target_sha256=target.sha256, target_name=target.name, tasks=resolved,
-            budget=f"precision {precision:g}",
+            sample_sha256=target.sampling_sha256, budget=f"precision {precision:g}",
             max_errors=budget_cap.max_errors if budget_cap else None,
             max_shots=budget_cap.max_shots if budget_cap else None)
-        prepare_out_dir(_out_dir_of(store), target_bytes=_target_bytes(target), manifest=manifest)
+        prepare_out_dir(out_dir_of(store), target_bytes=target_bytes_of(target), manifest=manifest)
     priors = [prior_cost_per_shot(t) for t in resolved]
     store.repair()
     counts = {"shots": 0, "errors": 0, "chunks": 0, "seconds": 0.0}
@@ -346,7 +346,7 @@ def status_precision(store: SampleStore, target: Target, precision: float, *,
     ``precision`` on the tracked answers, and the estimated CPU time of that plan (no sampling)."""
     _validate(precision, None, max_cpu_seconds_per_task, min_errors)
     have = store.stats_by_id()
-    manifest = read_manifest(_out_dir_of(store))
+    manifest = read_manifest(out_dir_of(store))
     order = list(have)
     if manifest is not None:
         order = [e.strong_id for e in manifest.tasks] + [s for s in have if s not in manifest.strong_ids]

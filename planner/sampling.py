@@ -167,7 +167,7 @@ def _capped(item: WorkItem) -> sinter.Task:
                                                                    max_errors=item.errors_left))
 
 
-def _out_dir_of(store: SampleStore) -> Path:
+def out_dir_of(store: SampleStore) -> Path:
     return store.root if store.samples_dir != store.root else store.samples_dir.parent
 
 
@@ -197,7 +197,7 @@ def run_sweep(tasks: Sequence[sinter.Task], *, store: SampleStore, rule: Stoppin
                                       sample_sha256=target.sampling_sha256,
                                       tasks=resolved, budget=budget, max_errors=rule.max_errors,
                                       max_shots=rule.max_shots)
-        prepare_out_dir(_out_dir_of(store), target_bytes=_target_bytes(target), manifest=manifest)
+        prepare_out_dir(out_dir_of(store), target_bytes=target_bytes_of(target), manifest=manifest)
     if shard is not None:
         mine = shard_share(ids, shard)
         keep = [k for k, sid in enumerate(ids) if sid in mine]
@@ -220,7 +220,7 @@ def run_sweep(tasks: Sequence[sinter.Task], *, store: SampleStore, rule: Stoppin
                             complete=True, shard_file=None, totals=_totals(have, ids))
     console.print(f"sampling {len(items)} of {len(ids)} tasks{where} until {rule.max_errors:,} "
                   f"errors or {rule.max_shots:,} shots each ({len(ids) - len(items)} already "
-                  f"there) -> {_out_dir_of(store)}")
+                  f"there) -> {out_dir_of(store)}")
     counts = {"shots": 0, "errors": 0, "chunks": 0}
     shard_name = sharded_name(index=shard[0], count=shard[1]) if shard else None
     with store.writer(shard_name) as writer, SweepProgress(items, rule, console) as bar:
@@ -255,7 +255,7 @@ def _totals(have: dict[str, sinter.TaskStats], ids: Sequence[str]) -> tuple[sint
     return tuple(have[sid] for sid in ids if sid in have)
 
 
-def _target_bytes(target: Target) -> bytes:
+def target_bytes_of(target: Target) -> bytes:
     import hashlib
 
     try:

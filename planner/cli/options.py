@@ -14,9 +14,13 @@ OutOpt = Annotated[Path | None, typer.Option(
 WorkersOpt = Annotated[int | None, typer.Option(
     "--workers", min=1, help="Worker processes for local sampling (default: all cores).",
     rich_help_panel="Sampling")]
-BudgetOpt = Annotated[str, typer.Option(
-    "--budget", help="Stopping rule per task: quick (demo, minutes), standard, overnight.",
+BudgetOpt = Annotated[str | None, typer.Option(
+    "--budget", help="Stopping rule per task: quick (demo, minutes; the default), standard, overnight.",
     rich_help_panel="Sampling")]
+PrecisionOpt = Annotated[float | None, typer.Option(
+    "--precision", metavar="REL", help="Sample until Lambda per point, the model weights that matter "
+    "and the joint-factor answer reach a relative 95% half-width of REL (e.g. 0.05), putting shots "
+    "where they help most; --budget then only caps each task.", rich_help_panel="Sampling")]
 QuietOpt = Annotated[bool, typer.Option(
     "--quiet", "-q", help="No progress or chatter on stderr (batch jobs).", rich_help_panel="Output")]
 JsonOpt = Annotated[bool, typer.Option(
@@ -25,3 +29,12 @@ JsonOpt = Annotated[bool, typer.Option(
 
 def default_out_dir(target: Target) -> Path:
     return Path("out") / target.name
+
+
+def check_precision(precision: float | None) -> None:
+    """--precision is a relative half-width: 0 < REL < 1."""
+    from planner.errors import InputError
+
+    if precision is not None and not 0 < precision < 1:
+        raise InputError(f"--precision: {precision:g} is not allowed: give a relative 95% half-width "
+                         "between 0 and 1 (0.05 means +-5%)")

@@ -10,7 +10,7 @@ from typing import Annotated, Any
 import typer
 
 from planner.cli._common import one_line_errors, stdout_console
-from planner.cli.options import JsonOpt
+from planner.cli.options import JsonOpt, PrecisionOpt, check_precision
 
 
 def register(app: typer.Typer) -> None:
@@ -55,6 +55,10 @@ def _sort_key(meta: Any) -> tuple:
 def status_command(
     directory: Annotated[Path, typer.Argument(metavar="DIR", help="Out directory of a sweep.")],
     as_json: JsonOpt = False,
+    precision: Annotated[float | None, typer.Option(
+        "--precision", metavar="REL", help="Also show, per task, the interval width against this "
+        "precision target and the estimated CPU time to reach it (see `planner sweep --precision`).",
+        rich_help_panel="Precision")] = None,
 ) -> None:
     from planner.errors import InputError
     from planner.fits import CONFIDENCE, LIKELIHOOD_FACTOR
@@ -68,7 +72,15 @@ def status_command(
     if not store.shard_files():
         raise InputError(f"{directory}: holds no samples ({store.samples_dir} has no .csv shards); "
                          "run 'planner sweep' first")
+    check_precision(precision)
     manifest = read_manifest(directory)
+    targeted: dict[str, Any] = {}
+    if precision is not None:
+        from planner.config import load_target
+        from planner.precision import status_precision
+
+        spec = load_target(directory / "target.toml")
+        targeted = {p.strong_id: p for p in status_precision(store, spec, precision)}
     rows = sorted(store_status(store, manifest=manifest, likelihood_factor=LIKELIHOOD_FACTOR),
                   key=lambda r: _sort_key(r.json_metadata))
     known = [r.cpu_seconds_left for r in rows if r.done is False]
@@ -89,8 +101,11 @@ def status_command(
                           "cpu_seconds": r.seconds,
                           "error_per_shot": {"best": r.rate_best, "low": r.rate_low, "high": r.rate_high},
                           "relative_width": r.relative_width, "done": r.done,
-                          "shots_left": r.shots_left, "cpu_seconds_left": r.cpu_seconds_left}
+                          "shots_left": r.shots_left, "cpu_seconds_left": r.cpu_seconds_left,
+                          **({"precision": targeted[r.strong_id].to_json()} if r.strong_id in targeted else {})}
                          for r in rows]}
+        if precision is not None:
+            doc["precision"] = precision
         typer.echo(json.dumps(doc, allow_nan=False))
         return
 
@@ -106,6 +121,9 @@ def status_command(
                          ("error/shot", "right"), ("width", "right"), ("state", "left"),
                          ("CPU left", "right")):
         table.add_column(col, justify=justify)  # type: ignore[arg-type]
+    if precision is not None:
+        _precision_table(rows, targeted, precision, directory)
+        return
     for r in rows:
         state = "?" if r.done is None else ("done" if r.done else f"~{r.shots_left:,} shots left")
         table.add_row(_label(r.json_metadata), f"{r.shots:,}", f"{r.errors:,}",
@@ -117,3 +135,27 @@ def status_command(
     con.print(f"total: {totals['shots']:,} shots, {totals['errors']:,} errors, "
               f"{_duration(totals['cpu_seconds'])} CPU used, {_duration(cpu_left)} CPU left "
               "(divide by the number of cores)")
+
+
+def _precision_table(rows: Any, targeted: dict[str, Any], precision: float, directory: Path) -> None:
+    from rich.table import Table
+
+    table = Table(title=f"{directory}: tasks against a precision target of +-{precision:.0%}",
+                  caption="width: relative 95% half-width of the task's error rate now, and after the "
+                  "plan that brings the tracked answers to the target; CPU: estimated core time of that plan")
+    for col in ("task", "shots", "errors", "width now", "planned", "extra shots", "CPU", "state"):
+        table.add_column(col, justify="left" if col in ("task", "state") else "right")
+    cpu = 0.0
+    for r in rows:
+        p = targeted.get(r.strong_id)
+        if p is None:
+            continue
+        pct = lambda x: "-" if x is None else f"{x:.1%}"  # noqa: E731
+        cpu += p.cpu_seconds_to_target or 0.0
+        table.add_row(_label(r.json_metadata), f"{r.shots:,}", f"{r.errors:,}", pct(p.relative_width),
+                      pct(p.planned_relative_width), f"{p.extra_shots:,}" if p.extra_shots else "-",
+                      _duration(p.cpu_seconds_to_target) if p.extra_shots else "-", p.state)
+    con = stdout_console()
+    con.print(table)
+    con.print(f"to reach +-{precision:.0%}: about {_duration(cpu)} of CPU (divide by the number of cores); "
+              f"run `planner sweep TARGET --out {directory} --precision {precision:g}`")
