@@ -12,6 +12,7 @@ from __future__ import annotations
 import collections
 import dataclasses
 import logging
+import math
 import re
 import threading
 import time
@@ -37,6 +38,8 @@ FIRST_CHUNK_SHOTS = 200  # before anything is measured: small, so the first timi
 FIRST_CHUNK_S = 1.0  # target seconds of work per chunk, doubling per finished chunk of a task ...
 MAX_CHUNK_S = 16.0  # ... up to this
 IN_FLIGHT_PER_WORKER = 2
+TAIL_SHARES = 4  # a chunk holds at most 1/(4 x workers) of the work left ...
+MIN_TAIL_CHUNK_S = 0.25  # ... but not less than this
 CACHE_CIRCUITS = 8
 RESUBMITS = 3  # a chunk whose workers all died (KilledWorker) is resubmitted, same chunk id
 
@@ -139,8 +142,17 @@ class _Progress:
     def met(self) -> bool:
         return self.shots >= self.item.shots_left or self.errors >= self.item.errors_left
 
-    def next_chunk_shots(self) -> int:
-        """Shots for the next chunk (0: nothing more to submit)."""
+    def unclaimed_seconds(self) -> float:
+        """Estimated seconds of work not yet submitted (0 before anything is measured)."""
+        if self.met or self.shots == 0 or self.seconds <= 0:
+            return 0.0
+        unclaimed = self.item.shots_left - self.shots - sum(self.in_flight.values())
+        return max(unclaimed, 0) * self.seconds / self.shots
+
+    def next_chunk_shots(self, cap_seconds: float = math.inf) -> int:
+        """Shots for the next chunk (0: nothing more to submit), at most ``cap_seconds`` of work
+        (the caller shrinks it as the sweep nears its end, so the last chunks are small and no
+        worker idles while one long chunk finishes)."""
         if self.met:
             return 0
         unclaimed = self.item.shots_left - self.shots - sum(self.in_flight.values())
@@ -161,6 +173,8 @@ class _Progress:
             if needed <= 0:
                 return 0
             want = min(want, int(1.1 * needed) + 1)
+        if self.shots and self.seconds > 0 and math.isfinite(cap_seconds):
+            want = min(want, max(FIRST_CHUNK_SHOTS, int(cap_seconds * self.shots / self.seconds)))
         return max(1, min(want, unclaimed))
 
 
@@ -225,15 +239,18 @@ def drive_chunks(client: Any, items: Sequence[WorkItem], sink: ChunkSink) -> Non
         done.add(fut)
 
     def fill() -> None:
-        slots = IN_FLIGHT_PER_WORKER * _workers(client) - len(futures)
+        n = _workers(client)
+        slots = IN_FLIGHT_PER_WORKER * n - len(futures)
         while slots > 0:
+            # a chunk is at most a small share of all the work left, so the sweep ends evenly
+            cap = max(MIN_TAIL_CHUNK_S, sum(tp.unclaimed_seconds() for tp in tasks) / (TAIL_SHARES * n))
             # the open task with the fewest chunks in flight, larger circuits first on ties
             open_tasks = [(len(tp.in_flight), k, tp) for k, tp in enumerate(tasks)]
-            open_tasks = [(n, k, tp) for n, k, tp in open_tasks if tp.next_chunk_shots() > 0]
+            open_tasks = [(c, k, tp) for c, k, tp in open_tasks if tp.next_chunk_shots(cap) > 0]
             if not open_tasks:
                 return
             _, _, tp = min(open_tasks, key=lambda e: (e[0], e[1]))
-            submit(tp, tp.next_chunk_shots(), new_chunk_id(), 0)
+            submit(tp, tp.next_chunk_shots(cap), new_chunk_id(), 0)
             slots -= 1
 
     fill()
