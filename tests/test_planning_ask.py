@@ -183,3 +183,15 @@ def test_curvature_form_chosen_when_linear_fails_held_out():
     assert m.curvature["gate_2q"] > 0.3
     lin = fit_model(fit_stats(stats), form="linear")
     assert lin.quality.loo_max_abs_residual > m.quality.loo_max_abs_residual
+
+
+def test_goal_distance_beyond_the_sampled_ones_is_called_an_extrapolation():
+    stats = synthetic_stats(weights=W, prefactor=0.1, distances=(3, 5), joint_scales=(0.5, 1.0),
+                            component_scales=(0.5,), shots=100_000, seed=3)
+    report = fit_stats(stats)
+    m = fit_model(report)
+    target = parse_target(EXAMPLE_TOML)
+    far = requirements(m, target, distance=11, report=report)
+    assert any("beyond the largest sampled distance 5" in n and "3 more factors" in n for n in far.notes)
+    near = requirements(m, target, distance=5, report=report)
+    assert not any("beyond" in n for n in near.notes)

@@ -22,6 +22,7 @@ from planner.planning.ask import (
     Requirements,
     TodayAnswer,
     cheapest_mix,
+    distance_extrapolation_note,
     requirements,
     smallest_distance,
 )
@@ -91,6 +92,8 @@ def answer_all(target: Target, stats: Sequence[sinter.TaskStats], *, seed: int =
         req = with_intervals(req, unc)
     models = unc.models if unc else ()
     rm = build_roadmap(target, model, seed=seed, models=models, eps_target=eps_target)
+    if rm is not None and (far := distance_extrapolation_note(rm.goal_distance, report.sampled_distances)):
+        rm = dataclasses.replace(rm, note="; ".join(n for n in (rm.note, far) if n))
     return Answers(report, model, req, rm, sensitivity(model, target, models=models), unc)
 
 

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -318,6 +318,22 @@ def today_answer(model: ResponseModel, report: FitReport | None, *, distance: in
                        bool(d and physical_qubits(d) <= max_qubits), eps_at, note, max_qubits=max_qubits)
 
 
+def distance_extrapolation_note(distance: int, sampled: Sequence[int]) -> str:
+    """Say when an answer at ``distance`` rests on the (d+1)/2 ansatz beyond the sampled distances.
+
+    >>> distance_extrapolation_note(21, (3, 5, 7))
+    'd = 21 is beyond the largest sampled distance 7: eps there is extrapolated along the (d+1)/2 law by 7 more factors of Lambda'
+    >>> distance_extrapolation_note(5, (3, 5, 7))
+    ''
+    """
+    top = max(sampled, default=0)
+    if not sampled or distance <= top:
+        return ""
+    steps = (distance - top) // 2
+    return (f"d = {distance} is beyond the largest sampled distance {top}: eps there is extrapolated "
+            f"along the (d+1)/2 law by {steps} more factor{'s' if steps != 1 else ''} of Lambda")
+
+
 def requirements(model: ResponseModel, target: Target, *, eps_target: float | None = None,
                  distance: int | None = None, qubits: int | None = None,
                  report: FitReport | None = None) -> Requirements:
@@ -331,6 +347,8 @@ def requirements(model: ResponseModel, target: Target, *, eps_target: float | No
     mix = cheapest_mix(model, distance=d, eps_target=eps, costs={c: target.cost(c) for c in COMPONENTS},
                        starts=starts)
     notes = []
+    if report is not None and (far := distance_extrapolation_note(d, report.sampled_distances)):
+        notes.append(far)
     if model.unsampled:
         notes.append("no own sweep axis, weight split evenly: " + ", ".join(model.unsampled))
     return Requirements(eps, d, physical_qubits(d), source,
