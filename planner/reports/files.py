@@ -247,16 +247,6 @@ def write_sensitivity(sens: Any, out_dir: Path, *, lumped: Sequence[str] = ()) -
                          csv_text(SENSITIVITY_COLUMNS, sensitivity_rows(sens, lumped=lumped)))]
 
 
-def _clean(x: Any) -> Any:
-    if isinstance(x, float) and not math.isfinite(x):
-        return None
-    if isinstance(x, dict):
-        return {str(k): _clean(v) for k, v in x.items()}
-    if isinstance(x, list | tuple):
-        return [_clean(v) for v in x]
-    return x
-
-
 def fits_document(answers_or_report: Any, *, target: Target | None = None) -> dict[str, Any]:
     """The fits.json document: ``to_json()`` of an Answers (or a FitReport) with the target's
     identity and the confidence level; non-finite numbers become null."""
@@ -267,7 +257,7 @@ def fits_document(answers_or_report: Any, *, target: Target | None = None) -> di
                           "goal_logical_error_per_cycle": target.goal.logical_error_per_cycle,
                           "goal_max_qubits": target.goal.max_qubits}
     head.update({k: v for k, v in doc.items() if k != "confidence"})
-    return _clean(head)
+    return text.json_safe(head)
 
 
 def write_fits(answers_or_report: Any, out_dir: Path, *, target: Target | None = None) -> list[Path]:

@@ -384,13 +384,6 @@ def json_text(obj: Any) -> str:
     """One JSON document; non-finite floats become null (JSON has no inf/nan)."""
     import json
 
-    def clean(x: Any) -> Any:
-        if isinstance(x, float) and not math.isfinite(x):
-            return None
-        if isinstance(x, dict):
-            return {str(k): clean(v) for k, v in x.items()}
-        if isinstance(x, list | tuple):
-            return [clean(v) for v in x]
-        return x
+    from planner.reports.text import json_safe
 
-    return json.dumps(clean(obj), allow_nan=False)
+    return json.dumps(json_safe(obj), allow_nan=False)

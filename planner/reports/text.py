@@ -350,3 +350,18 @@ def to_markdown(tables: Sequence[TextTable], *, heading: str) -> str:
         out += [*(f"- {_md_line(n)}" for n in t.notes), ""] if t.notes else []
         out += [f"_{t.caveat}_", ""]
     return "\n".join(out)
+
+
+def json_safe(x: Any) -> Any:
+    """A copy JSON can hold: non-finite floats become null (JSON has no inf/nan), keys strings.
+
+    >>> json_safe({"a": float("inf"), 1: [2.0, float("nan")]})
+    {'a': None, '1': [2.0, None]}
+    """
+    if isinstance(x, float) and not math.isfinite(x):
+        return None
+    if isinstance(x, dict):
+        return {str(k): json_safe(v) for k, v in x.items()}
+    if isinstance(x, list | tuple):
+        return [json_safe(v) for v in x]
+    return x
