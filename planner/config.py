@@ -174,6 +174,10 @@ class Roadmap(_Frozen):
     step: Literal["quarter", "year"] = "quarter"
     rates: dict[Literal[COMPONENTS], Rate] = {}  # type: ignore[valid-type]
     milestones: tuple[Positive, ...] = (2.0, 4.0)
+    #: T1 and T2 both grow by this fraction per year (0.2 = +20%/yr); it lowers the twirled part
+    #: of the idle and idle_measure errors, on top of their own rates
+    coherence_growth_per_year: Annotated[float, Field(ge=0.0, le=10.0)] = 0.0
+    coherence_growth_spread: Annotated[float, Field(ge=0.0)] = 0.0
 
 
 class Target(_Frozen):

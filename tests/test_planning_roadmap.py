@@ -139,3 +139,17 @@ def test_answer_all_bootstrap_intervals_and_speed():
     import json
 
     json.dumps(a.to_json(), allow_nan=True)
+
+
+def test_coherence_growth_lowers_the_idle_errors_and_brings_the_goal_forward():
+    m = make_model(W)
+    growth = ROADMAP.replace('step = "year"', 'step = "year"\ncoherence_growth_per_year = 0.3')
+    base, faster = build_roadmap(target_with(), m), build_roadmap(target_with(growth), m)
+    assert faster.goal.date < base.goal.date
+    one_year = next(s for s in faster.steps if s.years == 1)
+    # the example device has no idle excess, so its idle errors are pure T1/T2 twirl: after a year
+    # of +30% the twirled error is ~1/1.3 of today's (exp(-t/T) ~ 1 - t/T over short layers;
+    # common practice, no source)
+    for comp in ("idle", "idle_measure"):
+        assert one_year.scales[comp] == pytest.approx(1 / 1.3, rel=0.02)
+    assert one_year.scales["gate_1q"] == 1.0  # other components only follow their own rates

@@ -45,21 +45,71 @@ def scale_at(*, per_year: float | None, halving_years: float | None, years: floa
 
 
 @dataclasses.dataclass(frozen=True)
+class Coherence:
+    """What a T1/T2 growth acts on: today's times and, per idle component, its layer duration and
+    excess (non-T1/T2) error. The idle component's factor after ``years`` is
+    (twirl(T1 g, T2 g) + excess) / (twirl(T1, T2) + excess) with g = (1 + growth)^years, the twirl
+    taken over the layer (the two-qubit gate layer for ``idle``, the measure+reset layer for
+    ``idle_measure``).
+
+    >>> c = Coherence(t1_us=50.0, t2_us=40.0, layers={"idle_measure": (700.0, 0.0)})
+    >>> round(float(c.factor("idle_measure", growth=1.0, years=np.array([1.0]))[0]), 3)  # T1, T2 doubled
+    0.502
+    """
+
+    t1_us: float
+    t2_us: float
+    layers: Mapping[str, tuple[float, float]]  # component -> (duration_ns, excess probability)
+
+    @classmethod
+    def from_target(cls, target: Target) -> Coherence | None:
+        from planner.noise import NoiseModel
+
+        m = NoiseModel.from_target(target)
+        if not (math.isfinite(m.t1_us) and math.isfinite(m.t2_us)):
+            return None
+        return cls(m.t1_us, m.t2_us, {"idle": (m.gate_2q_ns, m.idle_excess),
+                                      "idle_measure": (m.measure_ns + m.reset_ns, m.idle_measure_excess)})
+
+    def factor(self, component: str, *, growth: float, years: np.ndarray) -> np.ndarray:
+        from planner.noise import twirl_idle
+
+        duration, excess = self.layers[component]
+        today = twirl_idle(duration_ns=duration, t1_us=self.t1_us, t2_us=self.t2_us).total + excess
+        if today <= 0 or growth == 0:
+            return np.ones_like(years, dtype=float)
+        g = (1 + growth) ** np.asarray(years, dtype=float)
+        later = np.array([twirl_idle(duration_ns=duration, t1_us=self.t1_us * x, t2_us=self.t2_us * x).total
+                          for x in np.ravel(g)]).reshape(np.shape(g))
+        return (later + excess) / today
+
+
+@dataclasses.dataclass(frozen=True)
 class RateSet:
-    """Central rates per component: ``per_year`` or ``halving_years`` (None = no improvement)."""
+    """Central rates per component: ``per_year`` or ``halving_years`` (None = no improvement),
+    and an optional T1/T2 growth per year acting on the idle components (see :class:`Coherence`)."""
 
     per_year: dict[str, float | None]
     halving_years: dict[str, float | None]
+    coherence_growth: float = 0.0
+    coherence: Coherence | None = None
 
     @classmethod
-    def from_rates(cls, rates: Mapping[str, Rate]) -> RateSet:
+    def from_rates(cls, rates: Mapping[str, Rate], *, target: Target | None = None) -> RateSet:
+        growth = target.roadmap.coherence_growth_per_year if target is not None and target.roadmap else 0.0
         return cls({c: (rates[c].per_year if c in rates else None) for c in COMPONENTS},
-                   {c: (rates[c].halving_years if c in rates else None) for c in COMPONENTS})
+                   {c: (rates[c].halving_years if c in rates else None) for c in COMPONENTS},
+                   growth, Coherence.from_target(target) if growth and target is not None else None)
 
     def scales(self, years: np.ndarray) -> np.ndarray:
         """Scale factors, shape (len(years), 6)."""
-        return np.stack([scale_at(per_year=self.per_year[c], halving_years=self.halving_years[c],
-                                  years=years) for c in COMPONENTS], axis=1)
+        cols = []
+        for c in COMPONENTS:
+            s = scale_at(per_year=self.per_year[c], halving_years=self.halving_years[c], years=years)
+            if self.coherence is not None and c in self.coherence.layers:
+                s = s * self.coherence.factor(c, growth=self.coherence_growth, years=years)
+            cols.append(s)
+        return np.stack(cols, axis=1)
 
     def faster(self, component: str, points: float) -> RateSet:
         """The same rates with ``component`` removing ``points`` more of its error per year."""
@@ -69,10 +119,14 @@ class RateSet:
         per = dict(self.per_year)
         hal = dict(self.halving_years)
         per[component], hal[component] = min(base + points, 0.999), None
-        return RateSet(per, hal)
+        return dataclasses.replace(self, per_year=per, halving_years=hal)
 
-    def sample(self, rates: Mapping[str, Rate], rng: np.random.Generator) -> RateSet:
+    def sample(self, rates: Mapping[str, Rate], rng: np.random.Generator, *,
+               coherence_spread: float = 0.0) -> RateSet:
         per, hal = dict(self.per_year), dict(self.halving_years)
+        growth = self.coherence_growth
+        if coherence_spread > 0 and self.coherence is not None:
+            growth = float(max(rng.normal(growth, coherence_spread), 0.0))
         for c, r in rates.items():
             if r.spread <= 0:
                 continue
@@ -80,7 +134,7 @@ class RateSet:
                 per[c] = float(np.clip(rng.normal(r.per_year, r.spread), 0.0, 0.999))
             else:
                 hal[c] = float(max(rng.normal(r.halving_years, r.spread), 0.05))
-        return RateSet(per, hal)
+        return dataclasses.replace(self, per_year=per, halving_years=hal, coherence_growth=growth)
 
 
 def years_to_date(start: dt.date, years: float) -> dt.date:
@@ -213,7 +267,7 @@ def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_sc
         return None
     eps = float(eps_target if eps_target is not None else target.goal.logical_error_per_cycle)
     dmax = largest_distance_within(target.goal.max_qubits) or 3
-    central = RateSet.from_rates(rm.rates)
+    central = RateSet.from_rates(rm.rates, target=target)
     per = STEPS_PER_YEAR[rm.step]
     cands = _candidates(dmax)
     t_goal = goal_years(model, central, eps_target=eps, max_distance=dmax, horizon_years=rm.horizon_years)
@@ -233,7 +287,7 @@ def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_sc
     rng = np.random.default_rng(seed)
     spread = any(r.spread > 0 for r in rm.rates.values())
     n = num_scenarios if (spread or models) else 0
-    scen = [(central.sample(rm.rates, rng), models[i % len(models)] if models else model) for i in range(n)]
+    scen = [(central.sample(rm.rates, rng, coherence_spread=rm.coherence_growth_spread), models[i % len(models)] if models else model) for i in range(n)]
     goal = _event("goal", rm.start, t_goal,
                   [goal_years(m, r, eps_target=eps, max_distance=dmax, horizon_years=rm.horizon_years)
                    for r, m in scen])
@@ -243,7 +297,7 @@ def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_sc
                   for ms in rm.milestones)
     note = "" if t_goal is not None else \
         f"goal not met within {rm.horizon_years:g} years and {target.goal.max_qubits} qubits at these rates"
-    if not rm.rates:
+    if not rm.rates and not rm.coherence_growth_per_year:
         note = (note + "; " if note else "") + "no rates given: nothing improves"
     return Roadmap(rm.start, rm.step, eps, target.goal.max_qubits, cands, tuple(steps), goal, miles, n, note,
                    goal_distance=dmax, num_replicas=len(models))

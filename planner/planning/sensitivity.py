@@ -88,7 +88,7 @@ def _rows(model: ResponseModel, target: Target) -> dict[str, ComponentSensitivit
     base_t = None
     central = None
     if rm is not None:
-        central = RateSet.from_rates(rm.rates)
+        central = RateSet.from_rates(rm.rates, target=target)
         base_t = goal_years(model, central, eps_target=eps, max_distance=dmax, horizon_years=rm.horizon_years)
     rows = {}
     for c in COMPONENTS:
