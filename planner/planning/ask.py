@@ -166,18 +166,19 @@ def choose_distance(target: Target, *, distance: int | None = None, qubits: int 
         (target.goal.max_qubits, "from goal.max_qubits")
     d = largest_distance_within(limit)
     if d is None:
-        raise InputError(f"{limit} qubits is fewer than the 17 a distance-3 code needs")
+        raise InputError(f"{'--qubits' if qubits is not None else 'goal.max_qubits'}: {limit} qubits is "
+                         "fewer than the 17 a distance-3 code needs")
     return d, f"{source} ({limit})"
 
 
-def check_distance(distance: int) -> None:
+def check_distance(distance: int, *, name: str = "--distance") -> None:
     if distance < 3 or distance % 2 == 0:
-        raise InputError(f"distance {distance} is not allowed: odd integers >= 3")
+        raise InputError(f"{name}: {distance} is not allowed: give an odd integer >= 3")
 
 
 def check_rate(name: str, value: float) -> None:
     if not (0 < value < 0.5):
-        raise InputError(f"{name} {value!r} is not allowed: a per-cycle error rate 0 < eps < 0.5")
+        raise InputError(f"{name}: {value!r} is not allowed: a per-cycle error rate 0 < eps < 0.5")
 
 
 def _scaled(comp: str, f: float) -> dict[str, float]:
@@ -339,7 +340,7 @@ def requirements(model: ResponseModel, target: Target, *, eps_target: float | No
                  report: FitReport | None = None) -> Requirements:
     """All answers for one goal (default: the target's goal) at one distance."""
     eps = float(eps_target if eps_target is not None else target.goal.logical_error_per_cycle)
-    check_rate("target", eps)
+    check_rate("--target" if eps_target is not None else "goal.logical_error_per_cycle", eps)
     d, source = choose_distance(target, distance=distance, qubits=qubits)
     joint = _solve_lever(model, "joint", distance=d, eps_target=eps)
     comps = tuple(_solve_lever(model, c, distance=d, eps_target=eps) for c in COMPONENTS)
