@@ -145,6 +145,9 @@ def read_manifest(out_dir: Path) -> Manifest | None:
 def _atomic_write(path: Path, data: bytes) -> None:
     # temp file + rename: concurrent shard jobs may write the same file, readers never see half
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}-", suffix=".tmp")
+    umask = os.umask(0o022)
+    os.umask(umask)
+    os.fchmod(fd, 0o666 & ~umask)  # mkstemp makes 0600; other jobs and users read these files
     with os.fdopen(fd, "wb") as fh:
         fh.write(data)
     os.replace(tmp, path)

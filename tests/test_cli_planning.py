@@ -162,3 +162,17 @@ def test_tables_at_80_columns(out_dir):
             assert len(line) <= 80, (args, line)
             # an interval is never cut by a line break ("[0.7," at a line end)
             assert line.count("[") == line.count("]"), (args, line)
+
+
+def test_query_commands_write_their_own_part(out_dir):
+    for name in ("requirements.md", "roadmap.csv", "sensitivity.md", "fits.json"):
+        (out_dir / name).unlink(missing_ok=True)
+    for cmd, files in (("fit", ["fits.json"]), ("ask", ["requirements.md", "requirements.csv"]),
+                       ("roadmap", ["roadmap.md", "roadmap.csv"]), ("sensitivity", ["sensitivity.md"])):
+        res = runner.invoke(app, [cmd, str(out_dir), "--json"])
+        assert res.exit_code == 0, res.stderr
+        json.loads(res.stdout)  # stdout stays one JSON document
+        for f in files:
+            assert (out_dir / f).is_file(), (cmd, f)
+    doc = json.loads((out_dir / "fits.json").read_text())
+    assert doc["requirements"] is not None  # `fit` writes the whole document, as `run` does

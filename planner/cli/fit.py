@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 
-from planner.cli._common import one_line_errors, stdout_console
+from planner.cli._common import one_line_errors, stderr_console, stdout_console
 from planner.cli.options import JsonOpt
 
 DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep (holds target.toml and samples/).")]
@@ -24,10 +24,17 @@ def fit_command(directory: DirArg, json: JsonOpt = False) -> None:
     from planner.planning import fit_model, load_out_dir
     from planner.reports.tables import json_text, render_fits
 
-    _, stats = load_out_dir(directory)
+    from planner.reports.files import write_fits
+
+    spec, stats = load_out_dir(directory)
     report = fit_stats(stats)
     has_lambda = any(lf.suppression is not None for lf in report.lambdas)
     model = fit_model(report) if has_lambda else None
+    from planner.planning import answer_all
+
+    # fits.json holds every fitted figure, the model's and the answers' too, as `planner run` writes it
+    written = write_fits(answer_all(spec, stats), directory, target=spec)
+    stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {directory}")
     if json:
         doc = report.to_json()
         doc["model"] = model.to_json() if model else None
