@@ -10,7 +10,7 @@ from typing import Annotated, Any
 import typer
 
 from planner.cli._common import one_line_errors, stdout_console
-from planner.cli.options import JsonOpt, PrecisionOpt, check_precision
+from planner.cli.options import JsonOpt, check_precision
 
 
 def register(app: typer.Typer) -> None:

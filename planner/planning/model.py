@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
@@ -195,9 +195,6 @@ class ResponseModel:
                 "sampled_min": dict(self.sampled_min), "sampled_max": dict(self.sampled_max),
                 "unsampled_components": list(self.unsampled), "quality": self.quality.to_json()}
 
-    def with_terms(self, weights: Mapping[str, float], curvature: Mapping[str, float] | None = None) -> ResponseModel:
-        return dataclasses.replace(self, weights=dict(weights),
-                                   curvature=dict(curvature or {c: 0.0 for c in COMPONENTS}))
 
 
 # ---------------------------------------------------------------------------------------------
@@ -304,6 +301,3 @@ def fit_model(report: FitReport, *, form: str | None = None) -> ResponseModel:
     """Response model from a :class:`~planner.fits.FitReport` (needs at least one Lambda)."""
     return fit_response(ModelData.from_fits(report), form=form)
 
-
-def odd_distances(*, up_to: int) -> Sequence[int]:
-    return range(3, max(up_to, 3) + 1, 2)

@@ -122,9 +122,6 @@ def replica_interval(best: float | None, values: Sequence[float | None]) -> Inte
     return Interval(float(best), float(min(lo, best)), float(max(hi, best)))
 
 
-_interval = replica_interval
-
-
 def bootstrap(stats: Sequence[sinter.TaskStats], report: FitReport, model: ResponseModel,
               answer: Requirements, *, replicas: int = DEFAULT_REPLICAS, seed: int = 0,
               costs: Mapping[str, float] | None = None) -> Uncertainty:

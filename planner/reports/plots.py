@@ -16,7 +16,6 @@ import numpy as np
 
 from planner.config import COMPONENTS, Target
 from planner.fits import CONFIDENCE, FitReport
-from planner.reports.text import num
 
 #: colours of the axes of the sweep (own choice: distinct in print and for common colour blindness)
 COLOURS = {"joint": "#1d3557", "gate_1q": "#e76f51", "gate_2q": "#2a9d8f", "readout": "#8338ec",
