@@ -141,7 +141,7 @@ def requirements_rows(req: Any, *, lambda_today_model: Interval | None = None) -
     rows: list[tuple[Any, ...]] = [
         ("target_logical_error_per_cycle", "", "per cycle", req.eps_target, None, None, None, None, "goal"),
         ("distance", "", "", req.distance, None, None, None, None, req.distance_source),
-        ("physical_qubits", "", "qubits", req.physical_qubits, None, None, None, None, "2d^2-1"),
+        ("physical_qubits", "", "qubits", req.physical_qubits, None, None, None, None, req.qubit_rule),
         ("required_suppression_factor", "", "ratio",
          *_iv(req.required_suppression_interval, req.required_suppression), None, None,
          "with today's prefactor" + ("" if req.required_suppression_interval else f"; {text.POINT_VALUE}")),
