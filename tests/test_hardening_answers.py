@@ -138,6 +138,21 @@ def fake_out_dir(tmp_path, monkeypatch):
     return out  # goal distance 9: 2*9^2-1 = 161 <= 200
 
 
+def test_ask_repetition_out_dir_counts_2d_minus_1(tmp_path, monkeypatch):
+    stats = synthetic_stats(weights=W, prefactor=0.1, distances=(3, 5), joint_scales=(0.5, 1.0), bases=("z",),
+                            seed=2)
+    import planner.planning
+
+    monkeypatch.setattr(planner.planning, "load_out_dir", lambda directory: (REPETITION, stats))
+    doc = json.loads(runner.invoke(app, ["ask", str(tmp_path), "--json"]).stdout)
+    assert (doc["distance"], doc["physical_qubits"], doc["qubit_rule"]) == (21, 41, "2d-1")
+    today = doc["today"]
+    assert today["physical_qubits"] == 2 * today["distance"] - 1
+    res = runner.invoke(app, ["ask", str(tmp_path), "--qubits", "13"])
+    assert res.exit_code == 0 and "d = 7 (13 qubits" in res.stdout, res.output  # 2*7-1 = 13
+    assert "2d-1" in (tmp_path / "requirements.md").read_text()
+
+
 def test_what_if_prints_and_keeps_the_review(fake_out_dir: Path):
     review = fake_out_dir / "requirements.md"
     res = runner.invoke(app, ["ask", str(fake_out_dir)])  # the review's own question: written

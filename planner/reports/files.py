@@ -155,7 +155,7 @@ def requirements_rows(req: Any, *, lambda_today_model: Interval | None = None) -
         ("today_distance", "", "", *_iv(td.distance_interval, td.distance), td.distance is not None,
          None, td.note),
         ("today_physical_qubits", "", "qubits", td.physical_qubits, None, None, td.within_max_qubits,
-         None, "within goal.max_qubits" if td.within_max_qubits else ""),
+         None, f"within the budget of {td.max_qubits} qubits" if td.within_max_qubits else ""),
     ]
     for a in (req.joint, *req.components):
         rows.append(("factor_needed", a.lever, "x today's error", *_iv(a.factor_interval, a.factor),
