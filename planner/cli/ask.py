@@ -69,7 +69,6 @@ def ask_command(
     if directory is None:
         raise InputError("give DIR (an out directory) or --lambda, --eps, --distance, --target")
     from planner.planning import answer_all, load_out_dir, no_model_reason
-
     from planner.planning.ask import what_if
 
     spec, stats = load_out_dir(directory)
@@ -93,7 +92,7 @@ def ask_command(
     question = " ".join(f"--{'target' if k == 'eps_target' else k} {v:g}" for k, v in asked.items())
     if save is not None:
         written = write_what_if(answers.requirements, md_path, csv_path,
-                                question=question or "the goal",
+                                question=question,
                                 lambda_today_model=lambda_today_model(answers), uncertainty=answers.uncertainty)
         chatter.print(f"wrote {', '.join(str(p) for p in written)}", markup=False, highlight=False)
     if not asked:

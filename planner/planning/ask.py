@@ -388,9 +388,6 @@ def today_answer(model: ResponseModel, report: FitReport | None, *, distance: in
         note = f"goal not met by any distance up to {MAX_DISTANCE}"
     else:
         note = "" if qubits <= max_qubits else f"needs {qubits} qubits, more than {budget_name} = {max_qubits}"
-    if _below(eps_at) is None:
-        note = "; ".join(n for n in (note, f"eps per cycle at d = {distance} is below {TINY:g}: beyond "
-                                     "any reachable, not printed") if n)
     return TodayAnswer(lam, fitted, above, d, qubits, bool(d and qubits <= max_qubits), _below(eps_at),
                        note, max_qubits=max_qubits)
 
@@ -434,7 +431,9 @@ def requirements(model: ResponseModel, target: Target, *, eps_target: float | No
         notes.append(f"Lambda needed at d = {d} is above 1e300: beyond any reachable")
     code = target.sweep.code
     budget = (qubits, "--qubits") if qubits is not None else (target.goal.max_qubits, "goal.max_qubits")
-    return Requirements(eps, d, physical_qubits(d, code), source, required, joint, comps, mix,
-                        today_answer(model, report, distance=d, eps_target=eps, max_qubits=budget[0],
-                                     code=code, budget_name=budget[1]),
+    today = today_answer(model, report, distance=d, eps_target=eps, max_qubits=budget[0], code=code,
+                         budget_name=budget[1])
+    if today.logical_error_per_cycle is None:
+        notes.append(f"eps per cycle today at d = {d} is below {TINY:g}: beyond any reachable, not printed")
+    return Requirements(eps, d, physical_qubits(d, code), source, required, joint, comps, mix, today,
                         model.form, model.quality.summary(), tuple(notes), code=code)

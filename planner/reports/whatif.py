@@ -48,9 +48,11 @@ def check_save_path(path: Path, out_dir: Path) -> tuple[Path, Path]:
 
 def write_what_if(req: Any, md_path: Path, csv_path: Path, *, question: str,
                   lambda_today_model: Interval | None = None, uncertainty: Any = None) -> list[Path]:
-    """The requirement tables of a what-if answer, headed by the question it answers."""
+    """The requirement tables of an answer, headed by the what-if ``question`` it answers (empty:
+    the goal's own answer, saved to another place)."""
     md = text.to_markdown(text.requirements_tables(req, lambda_today_model=lambda_today_model,
                                                    uncertainty=uncertainty),
-                          heading=f"What-if: {question} (not the review's goal)")
+                          heading=f"What-if: {question} (not the review's goal)" if question
+                          else "Requirements for the goal")
     rows = requirements_rows(req, lambda_today_model=lambda_today_model)
     return [write_atomic(md_path, md), write_atomic(csv_path, csv_text(REQUIREMENTS_COLUMNS, rows))]
