@@ -31,12 +31,17 @@ def ask_command(
         "largest within goal.max_qubits). Calculator: the distance --eps was measured at.",
         rich_help_panel=P_GOAL)] = None,
     qubits: Annotated[int | None, typer.Option(
-        "--qubits", help="Physical qubit budget: the largest odd d with 2d^2-1 <= Q.",
-        rich_help_panel=P_GOAL)] = None,
+        "--qubits", help="Physical qubit budget: the largest odd d whose code fits in Q (surface "
+        "code 2d^2-1 qubits, repetition code 2d-1).", rich_help_panel=P_GOAL)] = None,
     lambda_: Annotated[float | None, typer.Option(
         "--lambda", help="Measured suppression factor Lambda.", rich_help_panel=P_CALC)] = None,
     eps: Annotated[float | None, typer.Option(
         "--eps", help="Measured logical error per cycle at --distance.", rich_help_panel=P_CALC)] = None,
+    save: Annotated[Path | None, typer.Option(
+        "--save", metavar="PATH.md", help="Also write the answer to PATH.md (and PATH.csv). A what-if "
+        "(--target, --distance or --qubits other than the goal) is otherwise only printed; the "
+        "out directory's requirements.md always answers the goal. Inside DIR only whatif-*.md names.",
+        rich_help_panel=P_GOAL)] = None,
     json: JsonOpt = False,
 ) -> None:
     from planner.errors import InputError
@@ -51,6 +56,8 @@ def ask_command(
             raise InputError(f"calculator mode needs {', '.join(missing)}")
         if qubits is not None:
             raise InputError("--qubits is not used in calculator mode")
+        if save is not None:
+            raise InputError("--save is not used in calculator mode (there is no out directory)")
         from planner.planning import calculate
 
         ans = calculate(suppression=lambda_, eps=eps, distance=distance, eps_target=target)
@@ -62,9 +69,16 @@ def ask_command(
     if directory is None:
         raise InputError("give DIR (an out directory) or --lambda, --eps, --distance, --target")
     from planner.planning import answer_all, load_out_dir, no_model_reason
+    from planner.planning.ask import what_if
 
     spec, stats = load_out_dir(directory)
-    answers = answer_all(spec, stats, eps_target=target, distance=distance, qubits=qubits)
+    # options equal to the goal ask the review's own question; the others make a what-if
+    asked = what_if(spec, eps_target=target, distance=distance, qubits=qubits)
+    if save is not None:
+        from planner.reports.whatif import check_save_path
+
+        md_path, csv_path = check_save_path(save, directory)
+    answers = answer_all(spec, stats, **asked)
     if answers.requirements is None:
         if json:
             typer.echo(json_text({"requirements": None, "note": no_model_reason(answers.fits)}))
@@ -72,13 +86,32 @@ def ask_command(
             stdout_console().print(no_model_reason(answers.fits))
         return
     from planner.reports.files import lambda_today_model, write_requirements
+    from planner.reports.whatif import default_name, write_what_if
 
-    written = write_requirements(answers.requirements, directory, uncertainty=answers.uncertainty,
-                                 lambda_today_model=lambda_today_model(answers))
-    stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {directory}")
+    chatter = stderr_console(quiet=json)
+    question = " ".join(f"--{'target' if k == 'eps_target' else k} {v:g}" for k, v in asked.items())
+    if save is not None:
+        written = write_what_if(answers.requirements, md_path, csv_path,
+                                question=question,
+                                lambda_today_model=lambda_today_model(answers), uncertainty=answers.uncertainty)
+        chatter.print(f"wrote {', '.join(str(p) for p in written)}", markup=False, highlight=False)
+    if not asked:
+        written = write_requirements(answers.requirements, directory, uncertainty=answers.uncertainty,
+                                     lambda_today_model=lambda_today_model(answers))
+        chatter.print(f"wrote {', '.join(p.name for p in written)} under {directory}", markup=False,
+                      highlight=False)
+    elif save is None:
+        chatter.print(f"what-if ({question}): printed only, {directory}'s report files still answer "
+                      f"the goal; to keep it: --save {directory / default_name(asked)}",
+                      markup=False, highlight=False)
     if json:
         doc = answers.requirements.to_json()
         doc["confidence"] = answers.fits.to_json()["confidence"]
+        doc["what_if"] = bool(asked)
         typer.echo(json_text(doc))
         return
-    render_requirements(answers.requirements, stdout_console())
+    console = stdout_console()
+    if asked:
+        console.print(f"What-if: {question} (not the goal of {directory}/target.toml).", markup=False,
+                      highlight=False)
+    render_requirements(answers.requirements, console)

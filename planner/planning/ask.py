@@ -18,10 +18,19 @@ from scipy.optimize import brentq, minimize
 from planner.config import COMPONENTS, Target
 from planner.errors import InputError
 from planner.fits import FitReport, Interval
-from planner.planning.model import ResponseModel, largest_distance_within, physical_qubits
+from planner.planning.model import ResponseModel, largest_distance_within, physical_qubits, qubit_rule
 
-#: largest distance any search goes to (a code this big is never the practical answer)
+#: largest distance planner answers for: every --distance, every search and every qubit budget
+#: stops here. A distance-1001 surface code is two million physical qubits, and an answer there
+#: already rests on hundreds of factors of Lambda extrapolated beyond any sampled distance.
 MAX_DISTANCE = 1001
+#: smallest logical error per cycle planner takes as a goal or a measurement: a rate below it
+#: is beyond any reachable one (no computation runs 10^100 cycles)
+MIN_RATE = 1e-100
+#: model figures below this are not printed as numbers (they would underflow to 0): "below"
+TINY = 1e-300
+#: a lever that may get this many times worse and still meet the goal has unbounded headroom
+HEADROOM_LIMIT = 1024.0
 #: the cheapest-mix search lets a component improve at most 2^-MAX_HALVINGS
 MAX_HALVINGS = 30.0
 
@@ -69,7 +78,7 @@ class MixAnswer:
     scales: dict[str, float]
     cost: float | None
     suppression: float
-    logical_error_per_cycle: float
+    logical_error_per_cycle: float | None
     note: str = ""
     extrapolation: tuple[str, ...] = ()
     cost_shares: dict[str, float] = dataclasses.field(default_factory=dict)
@@ -105,7 +114,8 @@ class TodayAnswer:
     distance: int | None
     physical_qubits: int | None
     within_max_qubits: bool
-    logical_error_per_cycle: float  # at the requested distance, model
+    #: at the requested distance, model (None: below :data:`TINY`, the note says so)
+    logical_error_per_cycle: float | None
     note: str = ""
     distance_interval: Interval | None = None
     suppression_model_interval: Interval | None = None
@@ -125,13 +135,15 @@ class TodayAnswer:
 
 @dataclasses.dataclass(frozen=True)
 class Requirements:
-    """Everything ``planner ask`` answers for one goal at one distance."""
+    """Everything ``planner ask`` answers for one goal at one distance (``code``: the swept code,
+    which decides the qubit count)."""
 
     eps_target: float
     distance: int
     physical_qubits: int
     distance_source: str
-    required_suppression: float
+    #: None when beyond any float (a note says so)
+    required_suppression: float | None
     joint: FactorAnswer
     components: tuple[FactorAnswer, ...]
     mix: MixAnswer
@@ -140,10 +152,17 @@ class Requirements:
     model_quality: str
     notes: tuple[str, ...] = ()
     required_suppression_interval: Interval | None = None
+    code: str = "surface"
+
+    @property
+    def qubit_rule(self) -> str:
+        """How :attr:`physical_qubits` follows from the distance ('2d^2-1' or '2d-1')."""
+        return qubit_rule(self.code)
 
     def to_json(self) -> dict[str, Any]:
         return {"target_logical_error_per_cycle": self.eps_target, "distance": self.distance,
                 "physical_qubits": self.physical_qubits, "distance_source": self.distance_source,
+                "code": self.code, "qubit_rule": self.qubit_rule,
                 "required_suppression_factor": _fin(self.required_suppression),
                 "required_suppression_factor_interval": _ivj(self.required_suppression_interval),
                 "joint": self.joint.to_json(), "components": [c.to_json() for c in self.components],
@@ -156,29 +175,77 @@ class Requirements:
 
 
 def choose_distance(target: Target, *, distance: int | None = None, qubits: int | None = None) -> tuple[int, str]:
-    """The distance to answer for, and where it came from."""
+    """The distance to answer for, and where it came from: ``distance`` as given, else the largest
+    odd one whose code (the target's ``sweep.code``) fits in ``qubits`` or ``goal.max_qubits``,
+    at most :data:`MAX_DISTANCE`."""
     if distance is not None and qubits is not None:
         raise InputError("give --distance or --qubits, not both")
     if distance is not None:
         check_distance(distance)
         return distance, "given"
-    limit, source = (qubits, "from --qubits") if qubits is not None else \
-        (target.goal.max_qubits, "from goal.max_qubits")
-    d = largest_distance_within(limit)
+    code = target.sweep.code
+    name, limit = ("--qubits", qubits) if qubits is not None else ("goal.max_qubits", target.goal.max_qubits)
+    if isinstance(limit, bool) or not isinstance(limit, int):
+        raise InputError(f"{name}: {limit!r} is not allowed: a whole number of physical qubits")
+    source = f"{'from --qubits' if qubits is not None else 'from goal.max_qubits'} ({limit})"
+    d = largest_distance_within(min(limit, physical_qubits(MAX_DISTANCE + 2, code) - 1), code)
     if d is None:
-        raise InputError(f"{'--qubits' if qubits is not None else 'goal.max_qubits'}: {limit} qubits is "
-                         "fewer than the 17 a distance-3 code needs")
-    return d, f"{source} ({limit})"
+        raise InputError(f"{name}: {limit} qubits is fewer than the {physical_qubits(3, code)} a "
+                         f"distance-3 {code} code needs ({qubit_rule(code)})")
+    if physical_qubits(MAX_DISTANCE + 2, code) <= limit:
+        source += f", capped at d = {MAX_DISTANCE}, the largest planner answers for"
+    return d, source
+
+
+def goal_distance(target: Target) -> int:
+    """The distance of the target's own goal: the largest odd d whose code (``sweep.code``) fits in
+    goal.max_qubits, between 3 and :data:`MAX_DISTANCE` (roadmap and sensitivity plan for it).
+
+    >>> from planner.config import EXAMPLE_TOML, parse_target
+    >>> goal_distance(parse_target(EXAMPLE_TOML))  # 2*21^2-1 = 881 <= 1000 qubits
+    21
+    """
+    found = largest_distance_within(target.goal.max_qubits, target.sweep.code) or 3
+    return min(found, MAX_DISTANCE)
 
 
 def check_distance(distance: int, *, name: str = "--distance") -> None:
-    if distance < 3 or distance % 2 == 0:
-        raise InputError(f"{name}: {distance} is not allowed: give an odd integer >= 3")
+    """Refuse a distance planner does not answer for (odd, 3 <= d <= :data:`MAX_DISTANCE`)."""
+    if isinstance(distance, bool) or not isinstance(distance, int) or distance < 3 or distance % 2 == 0 \
+            or distance > MAX_DISTANCE:
+        raise InputError(f"{name}: {distance} is not allowed: give an odd integer 3 <= d <= {MAX_DISTANCE}")
 
 
 def check_rate(name: str, value: float) -> None:
-    if not (0 < value < 0.5):
-        raise InputError(f"{name}: {value!r} is not allowed: a per-cycle error rate 0 < eps < 0.5")
+    """Refuse a logical error per cycle outside [:data:`MIN_RATE`, 0.5)."""
+    if not (MIN_RATE <= value < 0.5):
+        raise InputError(f"{name}: {value!r} is not allowed: a per-cycle error rate {MIN_RATE:g} <= eps < 0.5")
+
+
+def what_if(target: Target, *, eps_target: float | None = None, distance: int | None = None,
+            qubits: int | None = None) -> dict[str, Any]:
+    """The options that ask a different question than the target's goal (a what-if), the others
+    dropped: a --target equal to the goal's rate, a --qubits equal to goal.max_qubits or a
+    --distance equal to the goal distance ask the review's own question.
+
+    >>> from planner.config import EXAMPLE_TOML, parse_target
+    >>> t = parse_target(EXAMPLE_TOML)  # goal 1e-6 within 1000 qubits: d = 21
+    >>> what_if(t, eps_target=1e-6, distance=21), what_if(t, distance=15)
+    ({}, {'distance': 15})
+    """
+    asked: dict[str, Any] = {}
+    if eps_target is not None and eps_target != target.goal.logical_error_per_cycle:
+        asked["eps_target"] = eps_target
+    if qubits is not None and qubits != target.goal.max_qubits:
+        asked["qubits"] = qubits
+    if distance is not None and (qubits is not None or distance != goal_distance(target)):
+        asked["distance"] = distance
+    return asked
+
+
+def _below(x: float) -> float | None:
+    """``x``, or None when it is too small to print (it would read as 0)."""
+    return x if x >= TINY else None
 
 
 def _scaled(comp: str, f: float) -> dict[str, float]:
@@ -203,11 +270,13 @@ def _solve_lever(model: ResponseModel, lever: str, *, distance: int, eps_target:
     if h(1.0) <= 0:
         # met today: report the headroom (how much worse this lever could get)
         top = 1.0
-        while top < 1024 and h(top * 2) <= 0:
+        while top < HEADROOM_LIMIT and h(top * 2) <= 0:
             top *= 2
-        if top >= 1024:
-            return FactorAnswer(lever, True, 1.0, model.suppression(_scaled(lever, 1.0)),
-                                note="goal already met today")
+        if top >= HEADROOM_LIMIT:
+            # no finite answer to print (1 would read as "no headroom"): say so instead
+            return FactorAnswer(lever, True, None, model.suppression(None),
+                                note=f"goal already met today; {lever} may get more than "
+                                     f"x{HEADROOM_LIMIT:g} worse (the goal barely depends on it)")
         f = brentq(h, top, top * 2, xtol=1e-12, rtol=1e-10)
         return FactorAnswer(lever, True, f, model.suppression(_scaled(lever, f)),
                             note=f"goal already met today; headroom: {lever} may get x{f:.2f} worse",
@@ -254,7 +323,7 @@ def cheapest_mix(model: ResponseModel, *, distance: int, eps_target: float, cost
     today = {c: 1.0 for c in COMPONENTS}
     if model.ln_eps(today, distance) <= ln_t:
         return MixAnswer(True, today, 0.0, model.suppression(today),
-                         model.logical_error_per_cycle(today, distance), note="goal already met today")
+                         _below(model.logical_error_per_cycle(today, distance)), note="goal already met today")
     levers = [c for c in COMPONENTS if model.weights[c] > 0 or model.curvature[c] > 0]
     if not levers:
         return MixAnswer(False, today, None, model.suppression(today), math.nan, note="model has no levers")
@@ -294,18 +363,23 @@ def cheapest_mix(model: ResponseModel, *, distance: int, eps_target: float, cost
                      extrapolation=tuple(model.extrapolation(s)), cost_shares=cost_shares(s, costs))
 
 
-def required_suppression(model: ResponseModel, *, distance: int, eps_target: float) -> float:
-    """Lambda needed at ``distance`` with today's prefactor A: (A / eps)^(2 / (d + 1))."""
-    return math.exp((model.ln_prefactor(None) - math.log(eps_target)) * 2 / (distance + 1))
+def required_suppression(model: ResponseModel, *, distance: int, eps_target: float) -> float | None:
+    """Lambda needed at ``distance`` with today's prefactor A: (A / eps)^(2 / (d + 1)) (None when
+    that is beyond any float, which no device reaches)."""
+    ln_lam = (model.ln_prefactor(None) - math.log(eps_target)) * 2 / (distance + 1)
+    return math.exp(ln_lam) if ln_lam < math.log(1e300) else None
 
 
 def today_answer(model: ResponseModel, report: FitReport | None, *, distance: int, eps_target: float,
-                 max_qubits: int) -> TodayAnswer:
+                 max_qubits: int, code: str = "surface", budget_name: str = "goal.max_qubits") -> TodayAnswer:
+    """Today's device against the goal; ``max_qubits`` is the qubit budget in effect (named
+    ``budget_name``: goal.max_qubits, or --qubits when the question gives one)."""
     lam = model.suppression(None)
     fitted = report.today().suppression if report is not None and report.today() else None
     above = lam <= 1
     d = smallest_distance(model, None, eps_target)
     eps_at = model.logical_error_per_cycle(None, distance)
+    qubits = physical_qubits(d, code) if d else None
     if above:
         note = f"above threshold: Lambda = {lam:.3g} <= 1, a larger code does not help"
         if d is not None:
@@ -313,10 +387,9 @@ def today_answer(model: ResponseModel, report: FitReport | None, *, distance: in
     elif d is None:
         note = f"goal not met by any distance up to {MAX_DISTANCE}"
     else:
-        note = "" if physical_qubits(d) <= max_qubits else \
-            f"needs {physical_qubits(d)} qubits, more than goal.max_qubits = {max_qubits}"
-    return TodayAnswer(lam, fitted, above, d, physical_qubits(d) if d else None,
-                       bool(d and physical_qubits(d) <= max_qubits), eps_at, note, max_qubits=max_qubits)
+        note = "" if qubits <= max_qubits else f"needs {qubits} qubits, more than {budget_name} = {max_qubits}"
+    return TodayAnswer(lam, fitted, above, d, qubits, bool(d and qubits <= max_qubits), _below(eps_at),
+                       note, max_qubits=max_qubits)
 
 
 def distance_extrapolation_note(distance: int, sampled: Sequence[int]) -> str:
@@ -344,7 +417,8 @@ def requirements(model: ResponseModel, target: Target, *, eps_target: float | No
     d, source = choose_distance(target, distance=distance, qubits=qubits)
     joint = _solve_lever(model, "joint", distance=d, eps_target=eps)
     comps = tuple(_solve_lever(model, c, distance=d, eps_target=eps) for c in COMPONENTS)
-    starts = tuple(_scaled(a.lever, a.factor) for a in (joint, *comps) if a.reachable and a.factor < 1)
+    starts = tuple(_scaled(a.lever, a.factor) for a in (joint, *comps)
+                   if a.reachable and a.factor is not None and a.factor < 1)
     mix = cheapest_mix(model, distance=d, eps_target=eps, costs={c: target.cost(c) for c in COMPONENTS},
                        starts=starts)
     notes = []
@@ -352,8 +426,14 @@ def requirements(model: ResponseModel, target: Target, *, eps_target: float | No
         notes.append(far)
     if model.unsampled:
         notes.append("no own sweep axis, weight split evenly: " + ", ".join(model.unsampled))
-    return Requirements(eps, d, physical_qubits(d), source,
-                        required_suppression(model, distance=d, eps_target=eps), joint, comps, mix,
-                        today_answer(model, report, distance=d, eps_target=eps,
-                                     max_qubits=target.goal.max_qubits),
-                        model.form, model.quality.summary(), tuple(notes))
+    required = required_suppression(model, distance=d, eps_target=eps)
+    if required is None:
+        notes.append(f"Lambda needed at d = {d} is above 1e300: beyond any reachable")
+    code = target.sweep.code
+    budget = (qubits, "--qubits") if qubits is not None else (target.goal.max_qubits, "goal.max_qubits")
+    today = today_answer(model, report, distance=d, eps_target=eps, max_qubits=budget[0], code=code,
+                         budget_name=budget[1])
+    if today.logical_error_per_cycle is None:
+        notes.append(f"eps per cycle today at d = {d} is below {TINY:g}: beyond any reachable, not printed")
+    return Requirements(eps, d, physical_qubits(d, code), source, required, joint, comps, mix, today,
+                        model.form, model.quality.summary(), tuple(notes), code=code)

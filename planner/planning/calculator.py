@@ -46,26 +46,58 @@ class CalculatorAnswer:
                 "target_logical_error_per_cycle": self.eps_target, "note": self.note}
 
 
+#: largest measured Lambda taken: the ansatz has only been checked near threshold (Lambda of a
+#: few), and a factor above this says more about the input than about a device
+MAX_LAMBDA = 1000.0
+#: largest prefactor A = eps_D * Lambda^((D+1)/2) taken: eps_1 = A / Lambda is at most 1/2 on any
+#: device, so an A this large means the three numbers do not belong together
+MAX_PREFACTOR = 1e300
+
+
 def calculate(*, suppression: float, eps: float, distance: int, eps_target: float) -> CalculatorAnswer:
-    """Smallest odd distance meeting ``eps_target`` from a measured Lambda and eps at ``distance``."""
-    if not (suppression > 0 and math.isfinite(suppression)):
-        raise InputError(f"--lambda {suppression!r} is not allowed: a suppression factor > 0")
+    """Smallest odd distance meeting ``eps_target`` from a measured Lambda and eps at ``distance``.
+
+    Works in logarithms, so no intermediate overflows; a distance beyond
+    :data:`~planner.planning.ask.MAX_DISTANCE` is "not reachable" (exit 0), inputs out of range
+    raise :class:`~planner.errors.InputError`.
+    """
+    if not (0 < suppression <= MAX_LAMBDA):
+        raise InputError(f"--lambda: {suppression!r} is not allowed: a suppression factor "
+                         f"0 < Lambda <= {MAX_LAMBDA:g}")
     check_rate("--eps", eps)
     check_rate("--target", eps_target)
     check_distance(distance)
     k = (distance + 1) / 2
-    prefactor = eps * suppression**k
-    required = (prefactor / eps_target) ** (1 / k)
+    ln_lam = math.log(suppression)
+    ln_prefactor = math.log(eps) + k * ln_lam
+    if ln_prefactor > math.log(MAX_PREFACTOR):
+        raise InputError(f"--eps: {eps:g} at --distance {distance} with --lambda {suppression:g} is not "
+                         f"allowed: it implies a prefactor A = eps * Lambda^((d+1)/2) = 10^"
+                         f"{ln_prefactor / math.log(10):.0f}, above {MAX_PREFACTOR:g}; no device has that")
+    prefactor = math.exp(ln_prefactor)
+    # (A / eps_target)^(1/k) = Lambda * (eps / eps_target)^(1/k)
+    required = math.exp(ln_lam + (math.log(eps) - math.log(eps_target)) / k)
     if suppression <= 1:
         return CalculatorAnswer(suppression, eps, distance, eps_target, False, None, None, None,
                                 required, prefactor,
                                 note=f"not reachable: Lambda = {suppression:g} <= 1 means the device is "
                                      "at or above threshold, so a larger code does not lower the error")
-    ln_ratio = math.log(eps / eps_target) / math.log(suppression)
-    d = max(3, distance + 2 * math.ceil(ln_ratio - 1e-12))
+    steps = math.log(eps / eps_target) / ln_lam  # factors of Lambda needed beyond distance
+    if distance + 2 * steps > MAX_DISTANCE + 2:
+        return CalculatorAnswer(suppression, eps, distance, eps_target, False, None, None, None,
+                                required, prefactor,
+                                note=f"not reachable: needs d = {distance + 2 * steps:.3g} or more, beyond "
+                                     f"{MAX_DISTANCE}, the largest planner answers for (Lambda = "
+                                     f"{suppression:.8g} is too close to 1 for this target)")
+    d = max(3, distance + 2 * math.ceil(steps - 1e-12))
     if d % 2 == 0:
         d += 1
-    at = lambda dd: eps * suppression ** (-(dd - distance) / 2)  # noqa: E731
+
+    def at(dd: int) -> float:  # eps at distance dd (A <= MAX_PREFACTOR keeps it finite)
+        ln_step = -(dd - distance) / 2 * ln_lam
+        return eps * suppression ** (-(dd - distance) / 2) if abs(ln_step) < 700 else \
+            math.exp(math.log(eps) + ln_step)
+
     while d > 3 and at(d - 2) <= eps_target:  # guard against rounding at the boundary
         d -= 2
     while at(d) > eps_target * (1 + 1e-12):
@@ -73,7 +105,8 @@ def calculate(*, suppression: float, eps: float, distance: int, eps_target: floa
     if d > MAX_DISTANCE:
         return CalculatorAnswer(suppression, eps, distance, eps_target, False, None, None, None,
                                 required, prefactor,
-                                note=f"not reachable below distance {MAX_DISTANCE}: Lambda is too close to 1")
+                                note=f"not reachable: needs a distance beyond {MAX_DISTANCE}, the largest "
+                                     "planner answers for")
     note = "goal already met at the measured distance" if eps <= eps_target else ""
     return CalculatorAnswer(suppression, eps, distance, eps_target, True, d, physical_qubits(d), at(d),
                             required, prefactor, note)

@@ -6,7 +6,8 @@ If held-out points disagree beyond their intervals, the ``quadratic`` form adds 
 curvature term per component, ``1/Lambda = sum_c (w_c s_c + v_c s_c^2)``, and is kept when it
 predicts the held-out points better. The prefactor is ``ln A = a_0 + sum_c a_c s_c`` (weighted
 least squares). Then ``eps_d(s) = A(s) * Lambda(s)^(-(d+1)/2)`` (Google Quantum AI, Nature 638,
-920 (2025), eq. 1) and the code needs ``2 d^2 - 1`` physical qubits (same paper).
+920 (2025), eq. 1); a surface code needs ``2 d^2 - 1`` physical qubits (same paper), a repetition
+code ``2 d - 1`` (see :func:`physical_qubits`).
 
 Components without their own sweep axis only ever move together with the joint factor; their
 weight is fitted as one lumped column and split evenly between them (``unsampled`` names them).
@@ -31,25 +32,55 @@ FORMS = ("linear", "quadratic")
 LOO_LIMIT = 3.0
 
 
-def physical_qubits(distance: int) -> int:
-    """Physical qubits of a rotated surface code (Google Quantum AI, Nature 638, 920 (2025)).
+#: the codes planner plans for, and how many physical qubits a distance-d patch of each uses
+CODES = ("surface", "repetition")
 
-    >>> physical_qubits(7)
-    97
+
+def _check_code(code: str) -> None:
+    if code not in CODES:
+        raise ValueError(f"code must be one of {CODES}, got {code!r}")
+
+
+def physical_qubits(distance: int, code: str = "surface") -> int:
+    """Physical qubits of one distance-``distance`` memory: ``2 d^2 - 1`` for the rotated surface
+    code (d^2 data + d^2 - 1 measure qubits; Google Quantum AI, Nature 638, 920 (2025)), ``2 d - 1``
+    for the repetition code (d data + d - 1 measure qubits, common practice).
+
+    >>> physical_qubits(7), physical_qubits(7, "repetition")
+    (97, 13)
     """
-    return 2 * distance * distance - 1
+    _check_code(code)
+    return 2 * distance - 1 if code == "repetition" else 2 * distance * distance - 1
 
 
-def largest_distance_within(qubits: int) -> int | None:
-    """Largest odd d >= 3 with 2 d^2 - 1 <= ``qubits`` (None if even d = 3 does not fit).
+def qubit_rule(code: str = "surface") -> str:
+    """The qubit count of :func:`physical_qubits` as a short formula for tables.
+
+    >>> qubit_rule(), qubit_rule("repetition")
+    ('2d^2-1', '2d-1')
+    """
+    _check_code(code)
+    return "2d-1" if code == "repetition" else "2d^2-1"
+
+
+def largest_distance_within(qubits: int, code: str = "surface") -> int | None:
+    """Largest odd d >= 3 with ``physical_qubits(d, code) <= qubits`` (None if even d = 3 does not
+    fit).
 
     >>> largest_distance_within(97), largest_distance_within(96), largest_distance_within(10)
     (7, 5, None)
+    >>> largest_distance_within(13, "repetition"), largest_distance_within(12, "repetition")
+    (7, 5)
     """
-    d = int(math.isqrt((qubits + 1) // 2))
+    _check_code(code)
+    qubits = int(qubits)
+    if code == "repetition":
+        d = (qubits + 1) // 2
+    else:
+        d = int(math.isqrt(max(qubits + 1, 0) // 2))
     if d % 2 == 0:
         d -= 1
-    while d >= 3 and physical_qubits(d) > qubits:
+    while d >= 3 and physical_qubits(d, code) > qubits:
         d -= 2
     return d if d >= 3 else None
 
@@ -160,7 +191,7 @@ class ResponseModel:
         return self.ln_prefactor(scales) + (distance + 1) / 2 * math.log(inv)
 
     def logical_error_per_cycle(self, scales: Mapping[str, float] | None, distance: int) -> float:
-        return min(math.exp(self.ln_eps(scales, distance)), 0.5)
+        return math.exp(min(self.ln_eps(scales, distance), math.log(0.5)))  # no overflow: at most 1/2
 
     def ln_eps_array(self, scales: np.ndarray, distance: int) -> np.ndarray:
         """Vectorised :meth:`ln_eps` over rows of ``scales`` (shape (n, 6), COMPONENTS order)."""

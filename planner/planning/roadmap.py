@@ -25,8 +25,8 @@ import numpy as np
 
 from planner.config import COMPONENTS, Rate, Target
 from planner.fits import CONFIDENCE, Interval
-from planner.planning.ask import smallest_distance
-from planner.planning.model import ResponseModel, largest_distance_within, physical_qubits
+from planner.planning.ask import goal_distance, smallest_distance
+from planner.planning.model import ResponseModel, physical_qubits
 from planner.planning.uncertainty import replica_interval
 
 STEPS_PER_YEAR = {"quarter": 4, "year": 1}
@@ -266,7 +266,7 @@ def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_sc
     if rm is None:
         return None
     eps = float(eps_target if eps_target is not None else target.goal.logical_error_per_cycle)
-    dmax = largest_distance_within(target.goal.max_qubits) or 3
+    dmax = goal_distance(target)
     central = RateSet.from_rates(rm.rates, target=target)
     per = STEPS_PER_YEAR[rm.step]
     cands = _candidates(dmax)
@@ -279,7 +279,7 @@ def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_sc
         d = d if d is not None and d <= dmax else None
         steps.append(RoadmapStep(years_to_date(rm.start, t), t, s, model.suppression(s),
                                  {c: model.logical_error_per_cycle(s, c) for c in cands}, d,
-                                 physical_qubits(d) if d else None,
+                                 physical_qubits(d, target.sweep.code) if d else None,
                                  extrapolation=tuple(model.extrapolation(s))))
         if d is not None:
             break

@@ -19,7 +19,8 @@ from typing import Any
 
 from planner.config import COMPONENTS, Target
 from planner.fits import Interval
-from planner.planning.model import ResponseModel, largest_distance_within
+from planner.planning.ask import goal_distance
+from planner.planning.model import ResponseModel
 from planner.planning.roadmap import RateSet, goal_years
 from planner.planning.uncertainty import replica_interval
 
@@ -84,7 +85,7 @@ def _rows(model: ResponseModel, target: Target) -> dict[str, ComponentSensitivit
     total = sum(terms.values())
     rm = target.roadmap
     eps = target.goal.logical_error_per_cycle
-    dmax = largest_distance_within(target.goal.max_qubits) or 3
+    dmax = goal_distance(target)
     base_t = None
     central = None
     if rm is not None:

@@ -29,6 +29,7 @@ import sinter
 from planner.config import COMPONENTS
 from planner.fits import CONFIDENCE, FitReport, Interval, fit_tasks, weighted_line, zero_error_upper
 from planner.planning.ask import (
+    TINY,
     Requirements,
     _scaled,
     _solve_lever,
@@ -138,12 +139,17 @@ def bootstrap(stats: Sequence[sinter.TaskStats], report: FitReport, model: Respo
         for lever, best_answer in levers.items():
             a = _solve_lever(m, lever, distance=d, eps_target=eps)
             key = "joint_factor" if lever == "joint" else f"factor.{lever}"
-            if a.reachable:
+            # a replica with unbounded headroom (factor None) has no number to add: the interval
+            # is over the others and the reached fraction says how many
+            if a.reachable and a.factor is not None:
                 vals[key].append(a.factor)
                 reached[key] += 1
             # the same quantity as the best answer: Lambda at the solution, or with the lever perfect
-            if best_answer.reachable:
-                vals[f"lambda.{lever}"].append(a.suppression if a.reachable else None)
+            # (unbounded headroom: nothing needs to change, so Lambda today)
+            if best_answer.reachable and best_answer.factor is None:
+                vals[f"lambda.{lever}"].append(m.suppression(None))
+            elif best_answer.reachable:
+                vals[f"lambda.{lever}"].append(a.suppression if a.reachable and a.factor is not None else None)
             elif lever != "joint":
                 vals[f"lambda.{lever}"].append(m.suppression(_scaled(lever, 0.0)))
         vals["lambda_today"].append(m.suppression(None))
@@ -177,6 +183,8 @@ def bootstrap(stats: Sequence[sinter.TaskStats], report: FitReport, model: Respo
     intervals = {}
     for k, b in best.items():
         iv = replica_interval(b, vals.get(k, []))
+        if iv is not None and iv.low < TINY and k == "today_eps":
+            iv = None  # the low end underflows: a 0 there would be no bound at all
         if iv is not None:
             intervals[k] = iv
     frac = {k: reached.get(k, 0) / replicas for k in best

@@ -141,7 +141,7 @@ def requirements_rows(req: Any, *, lambda_today_model: Interval | None = None) -
     rows: list[tuple[Any, ...]] = [
         ("target_logical_error_per_cycle", "", "per cycle", req.eps_target, None, None, None, None, "goal"),
         ("distance", "", "", req.distance, None, None, None, None, req.distance_source),
-        ("physical_qubits", "", "qubits", req.physical_qubits, None, None, None, None, "2d^2-1"),
+        ("physical_qubits", "", "qubits", req.physical_qubits, None, None, None, None, req.qubit_rule),
         ("required_suppression_factor", "", "ratio",
          *_iv(req.required_suppression_interval, req.required_suppression), None, None,
          "with today's prefactor" + ("" if req.required_suppression_interval else f"; {text.POINT_VALUE}")),
@@ -155,7 +155,7 @@ def requirements_rows(req: Any, *, lambda_today_model: Interval | None = None) -
         ("today_distance", "", "", *_iv(td.distance_interval, td.distance), td.distance is not None,
          None, td.note),
         ("today_physical_qubits", "", "qubits", td.physical_qubits, None, None, td.within_max_qubits,
-         None, "within goal.max_qubits" if td.within_max_qubits else ""),
+         None, f"within the budget of {td.max_qubits} qubits" if td.within_max_qubits else ""),
     ]
     for a in (req.joint, *req.components):
         rows.append(("factor_needed", a.lever, "x today's error", *_iv(a.factor_interval, a.factor),

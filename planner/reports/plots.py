@@ -282,7 +282,7 @@ def roadmap_figure(rm: Any, model: Any, target: Target, *, models: Any = ()) -> 
     if rm is None or model is None or target.roadmap is None:
         return None
     from planner.planning.ask import smallest_distance
-    from planner.planning.model import physical_qubits
+    from planner.planning.model import physical_qubits, qubit_rule
     from planner.planning.roadmap import STEPS_PER_YEAR, RateSet, years_to_date
 
     horizon = target.roadmap.horizon_years
@@ -323,8 +323,9 @@ def roadmap_figure(rm: Any, model: Any, target: Target, *, models: Any = ()) -> 
     for y, row in zip(ts, rates.scales(ts)):
         d = smallest_distance(model, dict(zip(COMPONENTS, row.tolist())), rm.eps_target)
         qdates.append(years_to_date(rm.start, float(y)))
-        qubits.append(physical_qubits(d) if d is not None else np.nan)
-    bottom.step(qdates, qubits, where="post", color=COLOURS["gate_2q"], label="physical qubits needed (2d^2-1)")
+        qubits.append(physical_qubits(d, target.sweep.code) if d is not None else np.nan)
+    bottom.step(qdates, qubits, where="post", color=COLOURS["gate_2q"],
+                label=f"physical qubits needed ({qubit_rule(target.sweep.code)})")
     bottom.axhline(rm.max_qubits, color="#333333", linestyle="--", linewidth=1.0,
                    label=f"goal.max_qubits {rm.max_qubits}")
     bottom.set_yscale("log")

@@ -141,7 +141,7 @@ def requirements_tables(req: Any, *, lambda_today_model: Interval | None = None,
     model_lam = td.suppression_model_interval or lambda_today_model
     lead = (
         f"Goal: logical error per cycle <= {num(req.eps_target)} at distance {req.distance} "
-        f"({req.physical_qubits} physical qubits, 2d^2-1; distance {req.distance_source}).",
+        f"({req.physical_qubits} physical qubits, {req.qubit_rule}; distance {req.distance_source}).",
         "Lambda needed at that distance with today's prefactor: "
         f"{_with_point_note(req.required_suppression, req.required_suppression_interval)}.",
         f"Lambda today: {interval(td.suppression_fitted)} fitted at joint factor 1; "
