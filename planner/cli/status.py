@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import math
 from pathlib import Path
 from typing import Annotated, Any
@@ -38,17 +37,29 @@ def _duration(seconds: float | None) -> str:
 
 
 def _label(meta: Any) -> str:
+    """The code, then the task as the precision messages name it.
+
+    >>> _label({"code": "surface", "d": 5, "basis": "z", "axis": "gate_1q", "factor": 0.3})
+    'surface gate_1q ×0.3 d=5 z'
+    """
+    from planner.precision_answers import task_label
+
     if not isinstance(meta, dict):
         return str(meta)
-    return (f"{meta.get('code', '?')} d={meta.get('d', '?')} {meta.get('basis', '?')} "
-            f"{meta.get('axis', '?')}x{meta.get('factor', '?')}")
+    return f"{meta.get('code', '?')} {task_label(meta)}"
 
 
 def _sort_key(meta: Any) -> tuple:
     if not isinstance(meta, dict):
         return ("", 0.0, 0, "")
-    return (str(meta.get("axis", "")), float(meta.get("factor", 0.0)), int(meta.get("d", 0)),
-            str(meta.get("basis", "")))
+
+    def number(key: str) -> float:
+        try:
+            return float(meta.get(key, 0))
+        except (TypeError, ValueError):
+            return math.inf  # a hand-edited value sorts last instead of crashing the listing
+
+    return (str(meta.get("axis", "")), number("factor"), number("d"), str(meta.get("basis", "")))
 
 
 @one_line_errors
@@ -106,7 +117,9 @@ def status_command(
                          for r in rows]}
         if precision is not None:
             doc["precision"] = precision
-        typer.echo(json.dumps(doc, allow_nan=False))
+        from planner.reports.tables import json_text
+
+        typer.echo(json_text(doc))  # non-finite numbers as null, never NaN/Infinity
         return
 
     from rich.table import Table
