@@ -394,6 +394,19 @@ VERIFY_STALE = ("verify.json was made against an earlier fit (more samples, or o
                 "points since): its numbers no longer match these answers; run `planner verify DIR` again.")
 
 
+def _scales_text(scales: dict[str, float]) -> str:
+    """The scale factors of an operating point, briefly.
+
+    >>> _scales_text({"gate_1q": 0.5, "gate_2q": 0.5}), _scales_text({"gate_2q": 0.4, "readout": 1.0})
+    ('every component ×0.5', 'gate_2q ×0.4, others ×1')
+    """
+    values = set(scales.values())
+    if len(values) == 1:
+        return f"every component ×{num(values.pop())}"
+    changed = [f"{c} ×{num(x)}" for c, x in scales.items() if x != 1.0]
+    return ", ".join(changed) + (", others ×1" if len(changed) < len(scales) else "")
+
+
 def verify_tables(v: Any) -> list[TextTable]:
     """Predicted (response model, bootstrap) vs sampled (fits of the verify samples) at the
     proposed operating points (``v``: :class:`planner.planning.verify.Verification`)."""
@@ -405,8 +418,7 @@ def verify_tables(v: Any) -> list[TextTable]:
         rows.append((r.label, "eps per cycle" if is_eps else "Lambda (ratio)",
                      "—" if r.distance is None else str(r.distance), pred, sampled,
                      {True: "holds", False: "DIFFERS", None: "not sampled"}[r.holds]))
-    points = "; ".join(f"{p.label}: " + (", ".join(f"{c} x{num(x)}" for c, x in p.scales.items() if x != 1.0)
-                                         or "today's device") for p in v.points)
+    points = "; ".join(f"{p.label}: {_scales_text(p.scales)}" for p in v.points)
     lead = (f"Operating points sampled on the simulator (scale on today's error): {points or 'none'}.",
             f"Distances: {', '.join(map(str, v.distances))}. Overall: "
             + ("every prediction holds." if v.holds else "some predictions DIFFER from the samples."))
