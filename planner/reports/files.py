@@ -144,7 +144,7 @@ def _cell(x: Any, *, integer: bool = False) -> Any:
 def _overflow_note(columns: Sequence[str], row: Sequence[Any]) -> str:
     """Names the cells left empty because their value is infinite (for the row's note)."""
     inf = [c for c, x in zip(columns, row) if isinstance(x, float) and math.isinf(x)]
-    return f"{', '.join(inf)}: {text.BEYOND} (infinite, left empty)" if inf else ""
+    return f"{', '.join(inf)}: {text.BEYOND} (no finite value, left empty)" if inf else ""
 
 
 def csv_text(columns: Sequence[str], rows: Iterable[Sequence[Any]], *,

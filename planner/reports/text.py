@@ -42,8 +42,9 @@ BEYOND = "beyond any reachable"
 TINY = 1e-300
 UNDERFLOW = f"< {TINY:g}"
 OVERFLOW_NOTES = {
-    BEYOND: f"{BEYOND}: the value is infinite in the model (it overflows any number), so it has no "
-            "finite figure; the other columns say what is reachable.",
+    BEYOND: f"{BEYOND}: the model's value lies outside what a floating-point number holds (an "
+            "overflow, or a rate too small to show), so no figure is printed; the other columns say "
+            "what is reachable.",
     UNDERFLOW: f"{UNDERFLOW}: the model's logical error per cycle is below {TINY:g}, smaller than a "
                "floating-point number holds (an underflow, not zero).",
 }
