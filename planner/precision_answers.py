@@ -267,9 +267,15 @@ def describe(answer: AnswerPrecision) -> str:
 
 
 def task_label(meta: Mapping[str, Any]) -> str:
-    """Short text naming a task.
+    """Short text naming a task: the scale axis times its factor, the distance, the basis (the
+    same form in ``planner status`` and in the precision messages).
 
     >>> task_label({"axis": "joint", "factor": 1.0, "d": 5, "basis": "x"})
-    'joint@1 d=5 x'
+    'joint ×1 d=5 x'
+    >>> task_label({"axis": "gate_1q", "factor": 0.3, "d": 7, "basis": "z"})
+    'gate_1q ×0.3 d=7 z'
     """
-    return f"{meta.get('axis')}@{float(meta.get('factor', 0)):g} d={meta.get('d')} {meta.get('basis')}"
+    factor = meta.get("factor", "?")
+    if isinstance(factor, int | float) and not isinstance(factor, bool):
+        factor = f"{float(factor) + 0.0:g}"
+    return f"{meta.get('axis', '?')} ×{factor} d={meta.get('d', '?')} {meta.get('basis', '?')}"

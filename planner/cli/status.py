@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import math
 from pathlib import Path
 from typing import Annotated, Any
@@ -37,18 +36,42 @@ def _duration(seconds: float | None) -> str:
     return f"{seconds / 86400:.1f} d"
 
 
+def _percent(x: float | None, digits: int) -> str:
+    """A fraction as a percentage; '-' for missing or not finite (no errors yet: no width).
+
+    >>> _percent(0.1234, 1), _percent(float("inf"), 0), _percent(None, 0), _percent(-1e-9, 1)
+    ('12.3%', '-', '-', '0.0%')
+    """
+    if x is None or not math.isfinite(x):
+        return "-"
+    text = f"{x + 0.0:.{digits}%}"
+    return text[1:] if text.startswith("-") and float(text[1:-1]) == 0 else text  # never "-0%"
+
+
 def _label(meta: Any) -> str:
+    """The code, then the task as the precision messages name it.
+
+    >>> _label({"code": "surface", "d": 5, "basis": "z", "axis": "gate_1q", "factor": 0.3})
+    'surface gate_1q ×0.3 d=5 z'
+    """
+    from planner.precision_answers import task_label
+
     if not isinstance(meta, dict):
         return str(meta)
-    return (f"{meta.get('code', '?')} d={meta.get('d', '?')} {meta.get('basis', '?')} "
-            f"{meta.get('axis', '?')}x{meta.get('factor', '?')}")
+    return f"{meta.get('code', '?')} {task_label(meta)}"
 
 
 def _sort_key(meta: Any) -> tuple:
     if not isinstance(meta, dict):
         return ("", 0.0, 0, "")
-    return (str(meta.get("axis", "")), float(meta.get("factor", 0.0)), int(meta.get("d", 0)),
-            str(meta.get("basis", "")))
+
+    def number(key: str) -> float:
+        try:
+            return float(meta.get(key, 0))
+        except (TypeError, ValueError):
+            return math.inf  # a hand-edited value sorts last instead of crashing the listing
+
+    return (str(meta.get("axis", "")), number("factor"), number("d"), str(meta.get("basis", "")))
 
 
 @one_line_errors
@@ -106,7 +129,9 @@ def status_command(
                          for r in rows]}
         if precision is not None:
             doc["precision"] = precision
-        typer.echo(json.dumps(doc, allow_nan=False))
+        from planner.reports.tables import json_text
+
+        typer.echo(json_text(doc))  # non-finite numbers as null, never NaN/Infinity
         return
 
     from rich.table import Table
@@ -128,7 +153,7 @@ def status_command(
         state = "?" if r.done is None else ("done" if r.done else f"~{r.shots_left:,} shots left")
         table.add_row(_label(r.json_metadata), f"{r.shots:,}", f"{r.errors:,}",
                       f"{r.rate_best:.2e}" if r.shots else "-",
-                      f"{r.relative_width:.0%}" if r.relative_width is not None else "-",
+                      _percent(r.relative_width, 0),
                       state, "-" if r.done else _duration(r.cpu_seconds_left))
     con = stdout_console()
     con.print(table)
@@ -150,7 +175,7 @@ def _precision_table(rows: Any, targeted: dict[str, Any], precision: float, dire
         p = targeted.get(r.strong_id)
         if p is None:
             continue
-        pct = lambda x: "-" if x is None else f"{x:.1%}"  # noqa: E731
+        pct = lambda x: _percent(x, 1)  # noqa: E731
         cpu += p.cpu_seconds_to_target or 0.0
         table.add_row(_label(r.json_metadata), f"{r.shots:,}", f"{r.errors:,}", pct(p.relative_width),
                       pct(p.planned_relative_width), f"{p.extra_shots:,}" if p.extra_shots else "-",

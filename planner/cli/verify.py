@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated
+from typing import Annotated, Any
 
 import typer
 
@@ -16,7 +16,8 @@ DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep; samples 
 def register(app: typer.Typer) -> None:
     app.command("verify", no_args_is_help=True,
                 help="Sample the joint-factor answer and the cheapest mix at the largest samplable "
-                "distances; print predicted vs sampled eps and Lambda (95% intervals).")(verify_command)
+                "distances; print predicted vs sampled eps and Lambda (95% intervals) and write them to "
+                "DIR/verify.md, .csv and .json (and into report.html when DIR has one).")(verify_command)
 
 
 @one_line_errors
@@ -34,9 +35,28 @@ def verify_command(directory: DirArg, json: JsonOpt = False, workers: WorkersOpt
         note = no_model_reason(answers.fits)
         typer.echo(json_text({"verification": None, "note": note})) if json else stdout_console().print(note)
         return
+    err = stderr_console(quiet=quiet or json)
     result = run_verification(spec, answers, out_dir=directory, budget=budget, workers=workers,
-                              console=stderr_console(quiet=quiet or json))
+                              console=err)
+    written = [p.name for p in _write_files(result, answers, spec, directory)]
+    own = [n for n in written if n.startswith("verify.")]
+    err.print(f"wrote {', '.join(own)} under {directory}" + (
+        f"; rewrote report.html with it (and the {len(written) - len(own) - 1} other report files, "
+        "from the same answers)" if "report.html" in written else
+        "; `planner run` puts it into report.html"), markup=False, highlight=False)  # a path prints as written
     if json:
         typer.echo(json_text(result.to_json()))
         return
     render_verify(result, stdout_console())
+
+
+def _write_files(result: Any, answers: Any, spec: Any, directory: Path) -> list[Path]:
+    """verify.md/.csv/.json; and, where the out directory already has a report.html, the whole
+    report again (same answers as `planner run`), so the page shows the verification and its
+    tables and plots agree with it. Without a report.html, `planner run` includes verify.json
+    in the page it writes next."""
+    from planner.reports.files import write_all, write_verification
+
+    if (directory / "report.html").is_file():
+        return write_all(answers, out_dir=directory, target=spec, verification=result)
+    return write_verification(result, directory)

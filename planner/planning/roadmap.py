@@ -137,8 +137,39 @@ class RateSet:
         return dataclasses.replace(self, per_year=per, halving_years=hal, coherence_growth=growth)
 
 
+def add_months(start: dt.date, months: int) -> dt.date:
+    """``start`` moved by whole calendar months, the day clamped to the month's length.
+
+    >>> add_months(dt.date(2027, 1, 1), 3), add_months(dt.date(2027, 1, 31), 1), add_months(dt.date(2027, 1, 1), 12)
+    (datetime.date(2027, 4, 1), datetime.date(2027, 2, 28), datetime.date(2028, 1, 1))
+    """
+    y, m = divmod(start.month - 1 + months, 12)
+    year, month = start.year + y, m + 1
+    if month == 12:
+        days_in_month = 31
+    else:
+        days_in_month = (dt.date(year, month + 1, 1) - dt.date(year, month, 1)).days
+    return dt.date(year, month, min(start.day, days_in_month))
+
+
 def years_to_date(start: dt.date, years: float) -> dt.date:
-    return start + dt.timedelta(days=round(years * 365.25))
+    """The calendar date ``years`` after ``start``: whole months on the calendar (so quarterly
+    and yearly steps from 2027-01-01 land on 2027-04-01, 2028-01-01, ... and never drift), the
+    fraction of a month as days of that month.
+
+    >>> years_to_date(dt.date(2027, 1, 1), 0.25), years_to_date(dt.date(2027, 1, 1), 0.5), years_to_date(dt.date(2027, 1, 1), 3.0)
+    (datetime.date(2027, 4, 1), datetime.date(2027, 7, 1), datetime.date(2030, 1, 1))
+    >>> years_to_date(dt.date(2027, 1, 1), 1 / 24)  # half of January
+    datetime.date(2027, 1, 17)
+    """
+    months = years * 12
+    whole = math.floor(months + 1e-9)  # 0.25 * 12 is 3 up to rounding
+    frac = max(months - whole, 0.0)
+    d0 = add_months(start, whole)
+    if frac < 1e-9:
+        return d0
+    d1 = add_months(start, whole + 1)
+    return d0 + dt.timedelta(days=round(frac * (d1 - d0).days))
 
 
 def first_crossing(years: np.ndarray, values: np.ndarray) -> float | None:

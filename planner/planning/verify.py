@@ -68,6 +68,52 @@ class Verification:
                 "points": [{"label": p.label, "scales": p.scales, "factor": p.factor} for p in self.points],
                 "rows": [r.to_json() for r in self.rows], "holds": self.holds, "note": self.note}
 
+    @classmethod
+    def from_json(cls, doc: Any) -> Verification:
+        """The inverse of :meth:`to_json` (as written to ``verify.json``); ValueError if ``doc``
+        is not one. Missing numbers (JSON null: non-finite) come back as nan, or as -inf / +inf
+        for an interval's low / high end."""
+        try:
+            points = tuple(OperatingPoint(str(p["label"]), {str(k): float(v) for k, v in p["scales"].items()},
+                                          float(p["factor"])) for p in doc["points"])
+            rows = tuple(VerifyRow(str(r["label"]), str(r["quantity"]),
+                                   None if r["d"] is None else int(r["d"]), _interval(r["predicted"]),
+                                   None if r["sampled"] is None else _interval(r["sampled"]),
+                                   bool(r["zero_errors"])) for r in doc["rows"])
+            return cls(points, tuple(int(d) for d in doc["distances"]), rows, str(doc.get("note", "")))
+        except (KeyError, TypeError, ValueError, AttributeError) as exc:
+            raise ValueError(f"not a verification document ({type(exc).__name__}: {exc})") from None
+
+    def is_current(self, answers: Any) -> bool:
+        """Whether this verification was made against ``answers``: the same operating points and
+        the same predictions (an earlier fit, before more samples, predicts other numbers)."""
+        if answers.model is None:
+            return False
+        now = operating_points(answers)
+        if [p.label for p in now] != [p.label for p in self.points] or not all(
+                _same_scales(a.scales, b.scales) for a, b in zip(now, self.points)):
+            return False
+        scales = {p.label: p.scales for p in self.points}
+        for r in self.rows:
+            s = scales.get(r.label)
+            if s is None:
+                return False
+            best = (answers.model.logical_error_per_cycle(s, r.distance) if r.distance is not None
+                    else answers.model.suppression(s))
+            was = r.predicted.best
+            same = (math.isclose(best, was, rel_tol=1e-6) if math.isfinite(best)
+                    else not math.isfinite(was))  # JSON keeps a non-finite number as null
+            if not same:
+                return False
+        return True
+
+
+def _interval(doc: Any) -> Interval:
+    def f(key: str, missing: float) -> float:
+        v = doc[key]
+        return missing if v is None else float(v)
+    return Interval(f("best", math.nan), f("low", -math.inf), f("high", math.inf))
+
 
 def operating_points(answers: Any) -> tuple[OperatingPoint, ...]:
     """The joint-factor answer and the cheapest mix (those that are reachable)."""

@@ -36,6 +36,11 @@ SENSITIVITY_FIGURES = (("share_of_inverse_lambda", "share"), ("elasticity", "ela
 SENSITIVITY_COLUMNS = ("component", *(f"{name}{end}" for name, _ in SENSITIVITY_FIGURES
                                       for end in ("", "_low", "_high")), "lumped", "note")
 DATES_COLUMNS = ("event", "date", "low", "high", "fraction_of_scenarios_reached")
+VERIFY_COLUMNS = ("point", "quantity", "distance", "predicted", "predicted_low", "predicted_high",
+                  "sampled", "sampled_low", "sampled_high", "zero_errors", "holds")
+#: CSV columns (or requirements quantities) that are whole numbers: written as integers
+INTEGER_COLUMNS = frozenset({"distance", "physical_qubits", "today_distance", "today_physical_qubits"})
+VERIFY_FILES = ("verify.md", "verify.csv", "verify.json")
 PLOTS_DIR = "plots"
 
 
@@ -69,21 +74,36 @@ def write_atomic(path: Path, data: bytes | str) -> Path:
     try:
         fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
     except OSError as exc:
-        raise InputError(f"{path.parent}: cannot write reports: {exc.strerror or exc}") from None
+        raise InputError(f"{path.parent}: cannot write reports: {_why(exc)}") from None
     try:
-        os.fchmod(fd, 0o666 & ~_umask())  # mkstemp makes 0600; reports are ordinary files
-        with os.fdopen(fd, "wb") as fh:
+        try:
+            os.fchmod(fd, 0o666 & ~_umask())  # mkstemp makes 0600; reports are ordinary files
+            fh = os.fdopen(fd, "wb")
+        except BaseException:
+            os.close(fd)
+            raise
+        with fh:  # closing flushes: a full disk can fail there too, still inside this try
             fh.write(payload)
             fh.flush()
             os.fsync(fh.fileno())
         os.replace(tmp, path)
     except OSError as exc:
         _remove_quietly(tmp)
-        raise InputError(f"{path}: cannot write: {exc.strerror or exc}") from None
+        raise InputError(f"{path}: cannot write: {_why(exc)}") from None
     except BaseException:
         _remove_quietly(tmp)
         raise
     return path
+
+
+def _why(exc: OSError) -> str:
+    """What went wrong and, for a full disk or quota, what to do."""
+    import errno
+
+    why = exc.strerror or str(exc)
+    if exc.errno in (errno.ENOSPC, errno.EDQUOT):
+        why += " (free some space, then run the command again: the sampled data is kept)"
+    return why
 
 
 def _umask() -> int:
@@ -95,7 +115,7 @@ def _umask() -> int:
 def _remove_quietly(path: str) -> None:
     try:
         os.unlink(path)
-    except FileNotFoundError:
+    except OSError:  # gone already, or the directory went away: nothing left to clean
         pass
 
 
@@ -103,26 +123,50 @@ def _remove_quietly(path: str) -> None:
 # CSV
 
 
-def _cell(x: Any) -> Any:
-    """CSV cell: missing and non-finite numbers become empty; booleans as true/false."""
+def _cell(x: Any, *, integer: bool = False) -> Any:
+    """CSV cell: missing and non-finite numbers become empty (never 'inf' or 'nan'); booleans as
+    true/false; never '-0.0'; ``integer``: a whole float is written as an integer ('35', not
+    '35.0')."""
     if x is None:
         return ""
     if isinstance(x, bool):
         return "true" if x else "false"
-    if isinstance(x, float) and not math.isfinite(x):
-        return "" if math.isnan(x) else ("inf" if x > 0 else "-inf")
+    if isinstance(x, float):
+        if not math.isfinite(x):
+            return ""
+        if x == 0:
+            x = 0.0  # -0.0 -> 0.0
+        if integer and x.is_integer() and abs(x) < 2**53:
+            return int(x)
     return x
 
 
-def csv_text(columns: Sequence[str], rows: Iterable[Sequence[Any]]) -> str:
-    """One header row then the rows (floats written at full precision by the csv module)."""
+def _overflow_note(columns: Sequence[str], row: Sequence[Any]) -> str:
+    """Names the cells left empty because their value is infinite (for the row's note)."""
+    inf = [c for c, x in zip(columns, row) if isinstance(x, float) and math.isinf(x)]
+    return f"{', '.join(inf)}: {text.BEYOND} (no finite value, left empty)" if inf else ""
+
+
+def csv_text(columns: Sequence[str], rows: Iterable[Sequence[Any]], *,
+             integer_rows: Sequence[bool] | None = None) -> str:
+    """One header row then the rows (floats written at full precision by the csv module).
+
+    Columns named in :data:`INTEGER_COLUMNS` (and every number of a row flagged in
+    ``integer_rows``) are written as integers when whole. An infinite number is written empty;
+    when there is a ``note`` column it says which cells overflowed.
+    """
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(columns)
-    for r in rows:
+    note_at = columns.index("note") if "note" in columns else None
+    for i, r in enumerate(rows):
         if len(r) != len(columns):
             raise ValueError(f"row {r!r} does not have {len(columns)} cells")
-        w.writerow([_cell(x) for x in r])
+        whole_row = bool(integer_rows[i]) if integer_rows is not None else False
+        cells = [_cell(x, integer=whole_row or c in INTEGER_COLUMNS) for c, x in zip(columns, r)]
+        if note_at is not None and (extra := _overflow_note(columns, r)):
+            cells[note_at] = "; ".join(x for x in (cells[note_at], extra) if x)
+        w.writerow(cells)
     return buf.getvalue()
 
 
@@ -225,8 +269,9 @@ def write_requirements(req: Any, out_dir: Path, *, lambda_today_model: Interval 
                                                    uncertainty=uncertainty),
                           heading="Requirements for the goal")
     rows = requirements_rows(req, lambda_today_model=lambda_today_model)
+    whole = [r[0] in INTEGER_COLUMNS for r in rows]  # distances and qubits: '35', not '35.0'
     return [write_atomic(out_dir / "requirements.md", md),
-            write_atomic(out_dir / "requirements.csv", csv_text(REQUIREMENTS_COLUMNS, rows))]
+            write_atomic(out_dir / "requirements.csv", csv_text(REQUIREMENTS_COLUMNS, rows, integer_rows=whole))]
 
 
 def write_roadmap(rm: Any, out_dir: Path) -> list[Path]:
@@ -267,6 +312,41 @@ def write_fits(answers_or_report: Any, out_dir: Path, *, target: Target | None =
     return [write_atomic(out_dir / "fits.json", json.dumps(doc, indent=1, allow_nan=False) + "\n")]
 
 
+def verify_rows(v: Any) -> list[tuple[Any, ...]]:
+    """One row per (operating point, quantity, distance); ``distance`` empty for Lambda."""
+    return [(r.label, r.quantity, r.distance, *_iv(r.predicted), *_iv(r.sampled), r.zero_errors, r.holds)
+            for r in v.rows]
+
+
+def write_verification(v: Any, out_dir: Path) -> list[Path]:
+    """``verify.md``, ``verify.csv`` and ``verify.json`` (``v``: planning Verification)."""
+    out_dir = ensure_dir(out_dir)
+    md = text.to_markdown(text.verify_tables(v), heading="Verification on the simulator")
+    doc = text.json_safe({"confidence": CONFIDENCE, **v.to_json()})
+    return [write_atomic(out_dir / "verify.md", md),
+            write_atomic(out_dir / "verify.csv", csv_text(VERIFY_COLUMNS, verify_rows(v))),
+            write_atomic(out_dir / "verify.json", json.dumps(doc, indent=1, allow_nan=False) + "\n")]
+
+
+def read_verification(out_dir: Path) -> Any:
+    """The Verification in ``out_dir/verify.json`` (None when there is none); InputError naming
+    the file when it is not one."""
+    from planner.planning.verify import Verification
+
+    path = Path(out_dir) / "verify.json"
+    try:
+        raw = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        return None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(f"{path}: cannot read: {exc}; delete it or run `planner verify` again") from None
+    try:
+        return Verification.from_json(json.loads(raw))
+    except (ValueError, RecursionError) as exc:
+        raise InputError(f"{path}: not a verification written by planner ({str(exc)[:200]}); "
+                         "delete it or run `planner verify` again") from None
+
+
 def write_plots(pngs: dict[str, bytes], out_dir: Path) -> list[Path]:
     """``plots/<name>.png`` for each rendered plot (see :func:`planner.reports.plots.render_all`)."""
     pdir = ensure_dir(Path(out_dir) / PLOTS_DIR)
@@ -278,11 +358,14 @@ def lambda_today_model(answers: Any) -> Interval | None:
     return unc.intervals.get("lambda_today") if unc is not None else None
 
 
-def write_all(answers: Any, *, out_dir: Path, target: Target) -> list[Path]:
+def write_all(answers: Any, *, out_dir: Path, target: Target, verification: Any = None) -> list[Path]:
     """Every report file for one set of answers; returns the paths written.
 
     Parts that do not exist are skipped (no roadmap section: no roadmap files; no model: only
-    fits.json, the rate plot and the page, which says why).
+    fits.json, the rate plot and the page, which says why). ``verification``: a fresh result of
+    ``planner verify`` (its files are written too); without it, report.html takes its
+    verification section from ``verify.json`` when that exists, and says so instead of showing
+    numbers when it was made against an earlier fit.
     """
     from planner.reports import html, plots
 
@@ -300,6 +383,19 @@ def write_all(answers: Any, *, out_dir: Path, target: Target) -> list[Path]:
     written += write_fits(answers, out_dir, target=target)
     pngs = plots.render_all(answers, target=target)
     written += write_plots(pngs, out_dir)
-    page = html.report_html(answers, target=target, pngs=pngs, out_dir=out_dir)
+    if verification is not None:
+        written += write_verification(verification, out_dir)
+        verify_note = ""
+    else:
+        try:
+            verification = read_verification(out_dir)
+        except InputError as exc:  # a broken verify.json must not cost the rest of the report
+            verification, verify_note = None, str(exc)
+        else:
+            verify_note = ""
+            if verification is not None and not verification.is_current(answers):
+                verification, verify_note = None, text.VERIFY_STALE
+    page = html.report_html(answers, target=target, pngs=pngs, out_dir=out_dir,
+                            verification=verification, verification_note=verify_note)
     written.append(write_atomic(out_dir / "report.html", page))
     return written

@@ -76,8 +76,8 @@ def table_html(t: text.TextTable, *, level: int = 3) -> str:
     out.append("<table><thead><tr>" + "".join(f"<th>{esc(h)}</th>" for h in t.headers) + "</tr></thead><tbody>")
     out += ["<tr>" + "".join(f"<td>{esc(c)}</td>" for c in r) + "</tr>" for r in t.rows]
     out.append("</tbody></table>")
-    if t.notes:
-        out.append("<ul>" + "".join(f"<li>{esc(n)}</li>" for n in t.notes) + "</ul>")
+    if t.all_notes:
+        out.append("<ul>" + "".join(f"<li>{esc(n)}</li>" for n in t.all_notes) + "</ul>")
     out.append(f'<p class="caveat">{esc(t.caveat)}</p>')
     return "\n".join(out)
 
@@ -174,9 +174,12 @@ def figure_html(name: str, data: bytes) -> str:
 
 
 def report_html(answers: Any, *, target: Target, pngs: Mapping[str, bytes],
-                out_dir: Path | None = None) -> str:
+                out_dir: Path | None = None, verification: Any = None,
+                verification_note: str = "") -> str:
     """The page as text (``pngs``: PNG bytes by plot name, from plots.render_all). Order: the
-    caveats, device and goal, sampling, then each stage's tables with its plots under them."""
+    caveats, device and goal, sampling, then each stage's tables with its plots under them.
+    ``verification``: the result of ``planner verify`` (a section after the requirements);
+    ``verification_note``: said in that section instead (e.g. the result is out of date)."""
     goal = target.goal
     plots_of = lambda section: [figure_html(n, d) for n, d in pngs.items()  # noqa: E731
                                 if PLOT_SECTIONS.get(n, "other") == section]
@@ -196,6 +199,12 @@ def report_html(answers: Any, *, target: Target, pngs: Mapping[str, bytes],
         body.append("<h2>Requirements</h2>")
         body += [table_html(t) for t in text.requirements_tables(
             answers.requirements, uncertainty=answers.uncertainty)]
+    if verification is not None or verification_note:
+        body.append("<h2>Verification on the simulator</h2>")
+        if verification_note:
+            body.append(f"<p>{esc(verification_note)}</p>")
+        if verification is not None:
+            body += [table_html(t) for t in text.verify_tables(verification)]
     if answers.roadmap is not None:
         body.append("<h2>Roadmap</h2>")
         body += [table_html(t) for t in text.roadmap_tables(answers.roadmap)]

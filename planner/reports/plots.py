@@ -36,7 +36,72 @@ def _figure(width: float, height: float, *, ncols: int = 1, nrows: int = 1, **kw
     return fig, axes
 
 
+def wrap(text: str, *, width_in: float, fontsize: float = 12.0) -> str:
+    """``text`` broken into lines that fit ``width_in`` inches at ``fontsize`` points (a
+    conservative 0.62 em per character), so no title is cut at the figure's edge.
+
+    >>> t = wrap("Error budget: Lambda today 2.111 [2.081, 2.15] (error bars: 95% bootstrap)", width_in=4.0, fontsize=10)
+    >>> print(t)
+    Error budget: Lambda today
+    2.111 [2.081, 2.15] (error bars: 95%
+    bootstrap)
+    """
+    # a value and its interval "best [low, high]" are never split over two lines
+    return _wrap_chars(text, max(int(0.92 * width_in * 72 / (0.62 * fontsize)), 20))
+
+
+def _title(ax: Any, text: str, *, fontsize: float = 12.0) -> None:
+    """A title wrapped to its column's share of the figure (:func:`fit_titles` makes sure)."""
+    fig = ax.get_figure()
+    ncols = ax.get_subplotspec().get_gridspec().ncols if ax.get_subplotspec() is not None else 1
+    ax.set_title(wrap(text, width_in=fig.get_figwidth() / ncols, fontsize=fontsize), fontsize=fontsize)
+
+
+def fit_titles(fig: Any, *, tries: int = 4) -> Any:
+    """Wrap the titles (and the figure's suptitle) until each lies inside the figure once laid
+    out: a title is centred over its axes, which long tick labels push aside, so only the drawn
+    extent tells whether it is cut at the edge."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    canvas = FigureCanvasAgg(fig)
+    titles = [ax.title for ax in fig.axes] + ([fig._suptitle] if getattr(fig, "_suptitle", None) else [])
+    for _ in range(tries):
+        canvas.draw()
+        renderer = canvas.get_renderer()
+        width = fig.bbox.width
+        changed = False
+        for t in titles:
+            text = t.get_text()
+            if not text:
+                continue
+            bb = t.get_window_extent(renderer)
+            if bb.x0 >= 0 and bb.x1 <= width:
+                continue
+            # room on the narrower side of the title's centre, doubled
+            room = 2 * min((bb.x0 + bb.x1) / 2, width - (bb.x0 + bb.x1) / 2)
+            chars = max(int(max(map(len, text.split("\n"))) * 0.95 * room / bb.width), 12)
+            new = _wrap_chars(text, chars)
+            if new != text:
+                t.set_text(new)
+                changed = True
+        if not changed:
+            break
+    return fig
+
+
+def _wrap_chars(text: str, chars: int) -> str:
+    """``text`` (already wrapped or not) re-wrapped to at most ``chars`` characters a line."""
+    import re
+    import textwrap
+
+    flat = " ".join(text.split())
+    glued = re.sub(r"\S+ \[[^\]]*\]", lambda m: m.group().replace(" ", "\x00"), flat)
+    lines = textwrap.wrap(glued, chars, break_long_words=False, break_on_hyphens=False)
+    return "\n".join(lines).replace("\x00", " ") or text
+
+
 def png_bytes(fig: Any) -> bytes:
+    fit_titles(fig)
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=DPI)
     return buf.getvalue()
@@ -149,12 +214,13 @@ def rates_figure(report: FitReport, *, goal: float) -> Any:
         ax.set_yscale("log")
         ax.set_xlim(dmin - 1, d_end + 2)
         ax.set_xlabel("code distance d")
-        ax.set_title("joint axis (all components x factor)" if names == ["joint"]
-                     else "one component x factor, others today")
+        _title(ax, "joint axis (all components x factor)" if names == ["joint"]
+               else "one component x factor, others today", fontsize=11)
         ax.grid(True, which="major", alpha=0.3)
         ax.legend(fontsize=7, ncol=2 if len(ax.get_legend_handles_labels()[0]) > 8 else 1)
     axs[0][0].set_ylabel("logical error per cycle")
-    fig.suptitle(f"Logical error per cycle ({CL} intervals); dashed: fitted line extrapolated")
+    fig.suptitle(wrap(f"Logical error per cycle ({CL} intervals); dashed: fitted line extrapolated",
+                      width_in=fig.get_figwidth(), fontsize=12), fontsize=12)
     return fig
 
 
@@ -184,15 +250,15 @@ def lambda_joint_figure(report: FitReport, model: Any = None) -> Any:
         left = th.factor.low if th.factor.low > 0 else lo
         right = th.factor.high if math.isfinite(th.factor.high) else hi
         ax.axvspan(left, right, color=THRESHOLD_COLOUR, alpha=0.08)
-    else:
-        ax.text(0.02, 0.03, th.note, transform=ax.transAxes, fontsize=7, wrap=True)
+    elif th.note:  # in the legend box, which finds its own room (as text it sat on the Lambda = 1 line)
+        ax.plot([], [], " ", label=wrap(th.note, width_in=2.6, fontsize=8))
     ax.axvline(1.0, color="#999999", linewidth=0.8)
     ax.set_xscale("log")
     ax.set_yscale("log")
     ax.set_xlim(lo, hi)
     ax.set_xlabel("joint scale factor (x today's error on every component)")
     ax.set_ylabel("suppression factor Lambda (eps_d / eps_d+2)")
-    ax.set_title(f"Lambda against the joint scale ({CL} intervals)")
+    _title(ax, f"Lambda against the joint scale ({CL} intervals)")
     _plain_log(ax)
     ax.grid(True, which="both", alpha=0.25)
     ax.legend(fontsize=8)
@@ -224,7 +290,7 @@ def lambda_components_figure(report: FitReport) -> Any:
     ax.set_xlim(factors[0] / 1.15, factors[-1] * 1.15)
     ax.set_xlabel("component scale factor (x today's error, others today; ticks: sampled)")
     ax.set_ylabel("suppression factor Lambda (eps_d / eps_d+2)")
-    ax.set_title(f"Lambda against each component ({CL} intervals)")
+    _title(ax, f"Lambda against each component ({CL} intervals)")
     _fixed_ticks(ax.xaxis, factors)
     ax.grid(True, which="both", alpha=0.25)
     ax.legend(fontsize=8)
@@ -256,11 +322,12 @@ def budget_figure(sens: Any, *, lumped: tuple[str, ...] = ()) -> Any:
     for y, (r, iv, top) in enumerate(zip(rows, ivs, shares + hi)):
         label = estimate(r.share, iv, scale=100) if iv else f"{100 * r.share:.3g}"
         ax.text(top, y, f"  {label} %", va="center", fontsize=8)
-    ax.set_xlim(0, max(list(shares + hi) + [1.0]) * 1.35)
+    # room right of the longest bar for its "best [low, high] %" label
+    ax.set_xlim(0, max(list(shares + hi) + [1.0]) * 1.7)
     ax.set_xlabel("share of 1/Lambda at today's point (%)")
     lam = estimate(sens.suppression_today, sens.suppression_today_interval)
     how = f"error bars: {CL} bootstrap" if has_iv else "best values, no bootstrap"
-    ax.set_title(f"Error budget: Lambda today {lam} ({how})", fontsize=10)
+    _title(ax, f"Error budget: Lambda today {lam} ({how})", fontsize=10)
     ax.grid(True, axis="x", alpha=0.3)
     return fig
 
@@ -286,7 +353,7 @@ def roadmap_figure(rm: Any, model: Any, target: Target, *, models: Any = ()) -> 
     from planner.planning.roadmap import STEPS_PER_YEAR, RateSet, years_to_date
 
     horizon = target.roadmap.horizon_years
-    rates = RateSet.from_rates(target.roadmap.rates)
+    rates = RateSet.from_rates(target.roadmap.rates, target=target)  # with the T1/T2 growth, as the steps
     t = np.linspace(0.0, horizon, int(horizon * 12) + 1)
     scales = rates.scales(t)
     dates = [years_to_date(rm.start, float(y)) for y in t]
@@ -314,7 +381,7 @@ def roadmap_figure(rm: Any, model: Any, target: Target, *, models: Any = ()) -> 
             ax.axvspan(g.low, g.high or dates[-1], color=GOAL_COLOUR, alpha=0.08)
     top.set_yscale("log")
     top.set_ylabel("logical error per cycle")
-    top.set_title("Roadmap at the central rates" + (f": goal met {g.date}" if g.date else ": goal not met"))
+    _title(top, "Roadmap at the central rates" + (f": goal met {g.date}" if g.date else ": goal not met"))
     top.grid(True, which="major", alpha=0.3)
     top.legend(fontsize=8, ncol=2)
     per = STEPS_PER_YEAR[rm.step]

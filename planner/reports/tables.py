@@ -23,6 +23,7 @@ from rich.table import Table
 from rich.text import Text
 
 from planner.fits import CONFIDENCE, FitReport, Interval
+from planner.reports.text import BEYOND, TINY, UNDERFLOW, overflow_notes
 
 CL = f"{CONFIDENCE:.0%} intervals"
 EXTRAPOLATED = "†"
@@ -32,31 +33,49 @@ GAP = 2
 
 
 def g(x: float | None, digits: int = 3) -> str:
-    """Short number: '—' for None, 'inf' for infinity; no '-0'.
+    """Short number: '—' for None, nan or -infinity, 'beyond any reachable' for infinity; no '-0'.
 
-    >>> g(0.000123456), g(None), g(float("inf")), g(-0.0), g(2449.0, 6)
-    ('0.000123', '—', 'inf', '0', '2449')
+    >>> g(0.000123456), g(None), g(float("inf")), g(-0.0), g(-1e-9, 0), g(2449.0, 6)
+    ('0.000123', '—', 'beyond any reachable', '0', '0', '2449')
     """
-    if x is None or (isinstance(x, float) and math.isnan(x)):
+    if x is None or (isinstance(x, float) and math.isnan(x)) or x == -math.inf:
         return "—"
     if isinstance(x, float) and math.isinf(x):
-        return "inf" if x > 0 else "-inf"
-    return f"{(x if x != 0 else 0.0):.{digits}g}"
+        return BEYOND
+    text = f"{x + 0.0:.{max(digits, 1)}g}" if digits else f"{x + 0.0:.0f}"
+    return "0" if text in ("-0", "0") else text
 
 
-def iv(i: Interval | None, digits: int = 3, *, scale: float = 1.0) -> str:
-    """``best [low, high]`` (each divided by ``scale``); '—' for None.
+def _degenerate(*cells: str) -> bool:
+    return len(set(cells)) == 1 and cells[0] in ("0", "—", BEYOND, UNDERFLOW)
 
-    >>> iv(Interval(0.000593, 0.000557, 0.000631), scale=1e-3)
-    '0.593 [0.557, 0.631]'
+
+def iv(i: Interval | None, digits: int = 3, *, scale: float = 1.0, is_rate: bool = False) -> str:
+    """``best [low, high]`` (each divided by ``scale``); '—' for None; one cell, never
+    '0 [0, 0]', when the interval is degenerate; ``is_rate``: values below
+    :data:`~planner.reports.text.TINY` are an underflow.
+
+    >>> iv(Interval(0.000593, 0.000557, 0.000631), scale=1e-3), iv(Interval(0.0, 0.0, 0.0), is_rate=True)
+    ('0.593 [0.557, 0.631]', '< 1e-300')
     """
     if i is None:
         return "—"
-    return f"{g(i.best / scale, digits)} [{g(i.low / scale, digits)}, {g(i.high / scale, digits)}]"
+    cells = tuple(rate_g(x, scale=scale, digits=digits) if is_rate else g(x / scale, digits)
+                  for x in (i.best, i.low, i.high))
+    return cells[0] if _degenerate(*cells) else f"{cells[0]} [{cells[1]}, {cells[2]}]"
 
 
-def num_or_iv(best: float | None, i: Interval | None, digits: int = 3) -> str:
-    return iv(i, digits) if i is not None else g(best, digits)
+def rate_g(x: float | None, *, scale: float = 1.0, digits: int = 3) -> str:
+    """A logical error rate (divided by ``scale``): below TINY it is an underflow, not zero."""
+    if x is not None and math.isfinite(x) and 0 <= x < TINY:
+        return UNDERFLOW
+    return g(None if x is None else x / scale, digits)
+
+
+def num_or_iv(best: float | None, i: Interval | None, digits: int = 3, *, is_rate: bool = False) -> str:
+    if i is not None:
+        return iv(i, digits, is_rate=is_rate)
+    return rate_g(best, digits=digits) if is_rate else g(best, digits)
 
 
 def unit_of(values: Iterable[float | None]) -> float:
@@ -87,9 +106,10 @@ def _pct(i: Interval | None, best: float, digits: int = 3) -> str:
 # layout
 
 
-def say(console: Console, *pieces: str, indent: int = 2, style: str = "") -> None:
+def say(console: Console, *pieces: str, indent: int = 2, style: str = "", notes: bool = True) -> None:
     """Print ``pieces`` (each never split) joined by spaces, packed into lines of the console's
-    width; continuation lines are indented."""
+    width; continuation lines are indented. With ``notes``, a line showing an overflow or an
+    underflow is followed by the note that explains it."""
     width = max(console.width, 20)
     lines: list[str] = []
     cur = ""
@@ -104,6 +124,9 @@ def say(console: Console, *pieces: str, indent: int = 2, style: str = "") -> Non
         lines.append(cur)
     for line in lines:
         console.print(Text(line, style=style), soft_wrap=True)
+    if notes:
+        for n in overflow_notes(pieces):
+            say(console, *_words(n), indent=4, notes=False)
 
 
 def emit(console: Console, title: str, headers: Sequence[str], rows: Sequence[Sequence[str]], *,
@@ -127,11 +150,14 @@ def emit(console: Console, title: str, headers: Sequence[str], rows: Sequence[Se
             cur = []
         cur.append(j)
     groups.append(cur)
+    notes = overflow_notes([*rows, caption or ""])
+    if notes:  # say what "beyond any reachable" / "< 1e-300" mean under the table
+        caption = "; ".join([*([caption] if caption else []), *notes])
     for gi, cols in enumerate(groups):
         idx = [*range(key), *cols]
         console.print()
         sub = fold_titles[gi - 1] if 0 < gi <= len(fold_titles) else f"{title} (continued)"
-        say(console, *_words(title if gi == 0 else sub), style="bold")
+        say(console, *_words(title if gi == 0 else sub), style="bold", notes=False)
         t = Table(box=box.SIMPLE_HEAD, show_edge=False, pad_edge=False, collapse_padding=True)
         for j in idx:
             t.add_column(Text(headers[j]), justify="left" if j in left else "right", no_wrap=True,
@@ -140,7 +166,7 @@ def emit(console: Console, title: str, headers: Sequence[str], rows: Sequence[Se
             t.add_row(*(Text(r[j]) for j in idx))
         console.print(t)
     if caption:
-        say(console, *_words(caption))
+        say(console, *_words(caption), notes=False)
 
 
 def footnotes(console: Console, notes: Iterable[str]) -> None:
@@ -246,7 +272,7 @@ def render_requirements(answer: Any, console: Console) -> None:
                   + ("," if budget is not None else "."), *([*where.split(" "), f"{budget}."] if budget else [])]
     say(console, *today)
     say(console, "eps per cycle today at", f"d = {r.distance}:",
-        num_or_iv(td.logical_error_per_cycle, td.logical_error_per_cycle_interval) + ".")
+        num_or_iv(td.logical_error_per_cycle, td.logical_error_per_cycle_interval, is_rate=True) + ".")
     say(console, "Model:", f"{r.model_form} form;", "fit quality:", *r.model_quality.split(" "))
     for n in r.notes:
         say(console, "note:", *_words(n))
@@ -275,18 +301,18 @@ def _render_mix(r: Any, console: Console) -> None:
          caption="minimises the sum over components of cost x halvings (log2 of 1/factor) while meeting "
          "the goal; the others stay as today")
     say(console, "Mix total:", num_or_iv(m.cost, m.cost_interval), "cost-weighted halvings;", "reaches",
-        "Lambda", num_or_iv(m.suppression, m.suppression_interval), "(eps per cycle", g(m.logical_error_per_cycle),
+        "Lambda", num_or_iv(m.suppression, m.suppression_interval), "(eps per cycle", rate_g(m.logical_error_per_cycle),
         "at", f"d = {r.distance}).")
     footnotes(console, [*(["mix: " + m.note] if m.note else []), *_extra_notes("mix", m.extrapolation)])
 
 
 def render_calculator(a: Any, console: Console) -> None:
-    rows = [["Lambda", g(a.suppression)], [f"eps per cycle at d={a.measured_distance}", g(a.eps_measured)],
-            ["target eps per cycle", g(a.eps_target)], ["prefactor A", g(a.prefactor)],
+    rows = [["Lambda", g(a.suppression)], [f"eps per cycle at d={a.measured_distance}", rate_g(a.eps_measured)],
+            ["target eps per cycle", rate_g(a.eps_target)], ["prefactor A", g(a.prefactor)],
             [f"required Lambda at d={a.measured_distance}", g(a.required_suppression)],
             ["smallest distance", g(a.distance) if a.reachable else "not reachable"],
             ["physical qubits (2d^2-1)", g(a.physical_qubits, 6)],
-            ["eps per cycle at that distance", g(a.logical_error_per_cycle)]]
+            ["eps per cycle at that distance", rate_g(a.logical_error_per_cycle)]]
     emit(console, "From measured numbers (no sampling)", ["quantity", "value"], rows,
          caption="ansatz eps_d = A Lambda^-(d+1)/2; inputs are taken as exact (no interval)")
     if a.note:
@@ -309,7 +335,7 @@ def render_roadmap(rm: Any, console: Console) -> None:
             notes = _extra_notes(str(s.date), s.extrapolation)
         e = s.eps_intervals.get(d)
         rows.append([str(s.date), num_or_iv(s.suppression, s.suppression_interval) + mark,
-                     iv(e, scale=unit) if e else g(s.eps[d] / unit),
+                     iv(e, scale=unit, is_rate=True) if e else rate_g(s.eps[d], scale=unit),
                      f"{s.distance} ({s.physical_qubits})" if s.distance else "—"])
     fit_cl = f"{CL} from the fit" if rm.num_replicas else "best values"
     emit(console, f"Roadmap from {rm.start}, per {rm.step}, at the central rates ({fit_cl})",
@@ -370,7 +396,7 @@ def render_verify(v: Any, console: Console) -> None:
     for r in v.rows:
         q = "eps/cycle" if r.quantity == "logical_error_per_cycle" else "Lambda"
         sampled = iv(r.sampled) + (ZERO_ERRORS if r.zero_errors else "")
-        rows.append([r.label, q, g(r.distance), iv(r.predicted), sampled,
+        rows.append([r.label, q, g(r.distance), iv(r.predicted, is_rate=q == "eps/cycle"), sampled,
                      {True: "holds", False: "DIFFERS", None: "—"}[r.holds]])
     emit(console, f"Verification: predicted vs sampled ({CL})", ["point", "quantity", "d", "predicted",
                                                                    "sampled", "holds"], rows, left=(0, 1), key=3,

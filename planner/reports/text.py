@@ -6,8 +6,15 @@ Builders take the planning result objects and return :class:`TextTable` values; 
 :func:`num` (4 significant digits); intervals read ``best [low, high]`` at
 :data:`~planner.fits.CONFIDENCE`, stated once per document (:data:`INTERVAL_NOTE`).
 
->>> num(0.000123456), num(None), num(float("inf")), span(1.5, 1.25, 1.75)
-('0.0001235', '—', 'inf', '1.5 [1.25, 1.75]')
+Values no float can show are never printed as ``inf``, ``nan``, ``-0`` or a zero interval
+``0 [0, 0]``: infinity reads :data:`BEYOND`, nan reads '—', a rate below :data:`TINY` (an
+underflow: the model's rates are never exactly zero) reads :data:`UNDERFLOW`; the renderers add
+:func:`overflow_notes` under a table that shows either.
+
+>>> num(0.000123456), num(None), num(float("inf")), num(-0.0), span(1.5, 1.25, 1.75)
+('0.0001235', '—', 'beyond any reachable', '0', '1.5 [1.25, 1.75]')
+>>> span(0.0, 0.0, 0.0), rate(0.0), rate(1e-320, Interval(1e-320, 0.0, 2e-320)), rate(2e-3)
+('0', '< 1e-300', '< 1e-300', '0.002')
 """
 
 from __future__ import annotations
@@ -28,23 +35,72 @@ EXTRAPOLATED = "†"
 EXTRAPOLATED_NOTE = f"{EXTRAPOLATED} extrapolated: outside the sampled scale range (the note says how far)."
 
 
+#: printed for an infinite value (an overflow: e.g. a Lambda with a component perfect, a factor
+#: or a distance no finite improvement reaches)
+BEYOND = "beyond any reachable"
+#: rates (logical error per cycle) below this are an underflow of the model's formula
+TINY = 1e-300
+UNDERFLOW = f"< {TINY:g}"
+OVERFLOW_NOTES = {
+    BEYOND: f"{BEYOND}: the model's value lies outside what a floating-point number holds (an "
+            "overflow, or a rate too small to show), so no figure is printed; the other columns say "
+            "what is reachable.",
+    UNDERFLOW: f"{UNDERFLOW}: the model's logical error per cycle is below {TINY:g}, smaller than a "
+               "floating-point number holds (an underflow, not zero).",
+}
+
+
 def num(x: float | None, digits: int = 4) -> str:
-    """A number for people: ``digits`` significant digits, '—' for missing, 'inf' for infinite."""
+    """A number for people: ``digits`` significant digits (integers in full), '—' for missing or
+    nan, :data:`BEYOND` for +infinity; never '-0'."""
     if x is None:
         return "—"
+    if isinstance(x, int) and not isinstance(x, bool):
+        return str(x)
     x = float(x)
-    if math.isnan(x):
+    if math.isnan(x) or x == -math.inf:
         return "—"
     if math.isinf(x):
-        return "inf" if x > 0 else "-inf"
-    return f"{x:.{digits}g}"
+        return BEYOND
+    text = f"{x + 0.0:.{digits}g}"  # + 0.0 turns -0.0 into 0.0
+    return "0" if text in ("-0", "0") else text
+
+
+def _degenerate(*cells: str) -> bool:
+    """An interval whose ends and best say nothing more than the best alone (all '0', all
+    missing, all overflowing or all underflowing)."""
+    return len(set(cells)) == 1 and cells[0] in ("0", "—", BEYOND, UNDERFLOW)
 
 
 def span(best: float | None, low: float | None, high: float | None) -> str:
-    """``best [low, high]`` (only ``best`` when both ends are missing)."""
+    """``best [low, high]`` (only ``best`` when both ends are missing, or when the interval is
+    degenerate: never '0 [0, 0]')."""
     if low is None and high is None:
         return num(best)
-    return f"{num(best)} [{num(low)}, {num(high)}]"
+    cells = (num(best), num(low), num(high))
+    return cells[0] if _degenerate(*cells) else f"{cells[0]} [{cells[1]}, {cells[2]}]"
+
+
+def _rate_cell(x: float | None, digits: int = 4) -> str:
+    if x is not None and math.isfinite(float(x)) and 0 <= float(x) < TINY:
+        return UNDERFLOW
+    return num(x, digits)
+
+
+def rate(best: float | None, iv: Interval | None = None) -> str:
+    """A logical error rate, ``best [low, high]``: values below :data:`TINY` (zero included) are an
+    underflow and read :data:`UNDERFLOW`, never '0 [0, 0]'."""
+    if iv is None:
+        return _rate_cell(best)
+    cells = (_rate_cell(iv.best), _rate_cell(iv.low), _rate_cell(iv.high))
+    return cells[0] if _degenerate(*cells) else f"{cells[0]} [{cells[1]}, {cells[2]}]"
+
+
+def overflow_notes(cells: Any) -> list[str]:
+    """The notes explaining :data:`BEYOND` / :data:`UNDERFLOW` for those that occur in ``cells``
+    (strings, or rows of strings)."""
+    flat = " ".join(c if isinstance(c, str) else " ".join(map(str, c)) for c in cells)
+    return [note for marker, note in OVERFLOW_NOTES.items() if marker in flat]
 
 
 def interval(iv: Interval | None) -> str:
@@ -95,6 +151,12 @@ class TextTable:
         if bad:
             raise ValueError(f"table {self.key}: row {bad[0]!r} does not have {len(self.headers)} cells")
 
+    @property
+    def all_notes(self) -> tuple[str, ...]:
+        """``notes`` and, where a cell or lead line shows an overflow or underflow, its note."""
+        extra = [n for n in overflow_notes([*self.rows, *self.lead]) if n not in self.notes]
+        return (*self.notes, *extra)
+
 
 def _join(*parts: str) -> str:
     return "; ".join(p for p in parts if p)
@@ -104,7 +166,9 @@ def _join(*parts: str) -> str:
 # requirements
 
 
-def _with_point_note(best: float | None, iv: Interval | None) -> str:
+def _with_point_note(best: float | None, iv: Interval | None, *, is_rate: bool = False) -> str:
+    if is_rate:
+        return rate(best, iv) if iv is not None else f"{rate(best)} ({POINT_VALUE})"
     return estimate(best, iv) if iv is not None else f"{num(best)} ({POINT_VALUE})"
 
 
@@ -147,7 +211,7 @@ def requirements_tables(req: Any, *, lambda_today_model: Interval | None = None,
         f"Lambda today: {interval(td.suppression_fitted)} fitted at joint factor 1; "
         f"{_with_point_note(td.suppression_model, model_lam)} from the response model.",
         f"Logical error per cycle today at distance {req.distance} (response model): "
-        f"{_with_point_note(td.logical_error_per_cycle, td.logical_error_per_cycle_interval)}.",
+        f"{_with_point_note(td.logical_error_per_cycle, td.logical_error_per_cycle_interval, is_rate=True)}.",
         "Smallest distance meeting the goal with today's device: "
         + (f"{estimate(td.distance, td.distance_interval)} ({td.physical_qubits} physical qubits)"
            if td.distance else "none")
@@ -168,7 +232,7 @@ def requirements_tables(req: Any, *, lambda_today_model: Interval | None = None,
     mix_lam = estimate(mix.suppression, mix.suppression_interval)
     notes = [f"Cheapest mix ({'reachable' if mix.reachable else 'not reachable'}): cost {total} "
              f"cost-weighted halvings of error (sum over components of cost x log2(1/factor)), Lambda "
-             f"{mix_lam}; logical error per cycle {num(mix.logical_error_per_cycle)} at distance "
+             f"{mix_lam}; logical error per cycle {rate(mix.logical_error_per_cycle)} at distance "
              f"{req.distance}, the goal it is solved to meet" + (f"; {mix.note}" if mix.note else "") + ".",
              "Lambda reached: at the factor needed; 'max': with the component perfect, the most it "
              "gives alone. Cost share: the component's part of the mix's cost.",
@@ -239,7 +303,7 @@ def roadmap_tables(rm: Any) -> list[TextTable]:
         mark = f" {EXTRAPOLATED}" if s.extrapolation else ""
         rows.append((s.date.isoformat(), *(num(s.scales[c]) for c in moving),
                      estimate(s.suppression, s.suppression_interval) + mark,
-                     estimate(s.eps[dg], s.eps_intervals.get(dg)),
+                     rate(s.eps[dg], s.eps_intervals.get(dg)),
                      f"{s.distance} ({s.physical_qubits})" if s.distance else "—"))
     lead = (f"From {rm.start.isoformat()} per {rm.step} at the central rates; goal: logical error per "
             f"cycle <= {num(rm.eps_target)} within {rm.max_qubits} physical qubits, judged at distance "
@@ -254,7 +318,7 @@ def roadmap_tables(rm: Any) -> list[TextTable]:
                       rows=tuple(rows), lead=lead, notes=tuple(notes))
     eps = TextTable(key="roadmap_eps", title="Logical error per cycle at the candidate distances",
                     headers=("date", *(f"eps d={d} (per cycle)" for d in rm.candidate_distances)),
-                    rows=tuple((s.date.isoformat(), *(estimate(s.eps[d], s.eps_intervals.get(d))
+                    rows=tuple((s.date.isoformat(), *(rate(s.eps[d], s.eps_intervals.get(d))
                                                       for d in rm.candidate_distances)) for s in rm.steps),
                     lead=(f"The same steps; {_fit_source(rm.num_replicas)}.",))
     ev_rows = []
@@ -324,6 +388,51 @@ def fits_tables(report: FitReport) -> list[TextTable]:
 
 
 # ---------------------------------------------------------------------------------------------
+# verify
+
+#: the report's section when verify.json was made against an earlier fit
+VERIFY_STALE = ("verify.json was made against an earlier fit (more samples, or other operating "
+                "points since): its numbers no longer match these answers; run `planner verify DIR` again.")
+
+
+def _scales_text(scales: dict[str, float]) -> str:
+    """The scale factors of an operating point, briefly.
+
+    >>> _scales_text({"gate_1q": 0.5, "gate_2q": 0.5}), _scales_text({"gate_2q": 0.4, "readout": 1.0})
+    ('every component ×0.5', 'gate_2q ×0.4, others ×1')
+    """
+    values = set(scales.values())
+    if len(values) == 1:
+        return f"every component ×{num(values.pop())}"
+    changed = [f"{c} ×{num(x)}" for c, x in scales.items() if x != 1.0]
+    return ", ".join(changed) + (", others ×1" if len(changed) < len(scales) else "")
+
+
+def verify_tables(v: Any) -> list[TextTable]:
+    """Predicted (response model, bootstrap) vs sampled (fits of the verify samples) at the
+    proposed operating points (``v``: :class:`planner.planning.verify.Verification`)."""
+    rows = []
+    for r in v.rows:
+        is_eps = r.quantity == "logical_error_per_cycle"
+        pred = rate(r.predicted.best, r.predicted) if is_eps else interval(r.predicted)
+        sampled = interval(r.sampled) + (" *" if r.zero_errors else "")
+        rows.append((r.label, "eps per cycle" if is_eps else "Lambda (ratio)",
+                     "—" if r.distance is None else str(r.distance), pred, sampled,
+                     {True: "holds", False: "DIFFERS", None: "not sampled"}[r.holds]))
+    points = "; ".join(f"{p.label}: {_scales_text(p.scales)}" for p in v.points)
+    lead = (f"Operating points sampled on the simulator (scale on today's error): {points or 'none'}.",
+            f"Distances: {', '.join(map(str, v.distances))}. Overall: "
+            + ("every prediction holds." if v.holds else "some predictions DIFFER from the samples."))
+    notes = ["holds: the predicted and sampled intervals overlap; DIFFERS: they do not.",
+             *(["* no errors sampled: the sampled interval is a bound."] if any(r.zero_errors for r in v.rows)
+               else []), *([v.note] if v.note else [])]
+    return [TextTable(key="verify", title="Verification: predicted vs sampled at the proposed operating points",
+                      headers=("point", "quantity", "distance", "predicted (model, bootstrap)",
+                               "sampled (fit of the samples)", "holds"),
+                      rows=tuple(rows), lead=lead, notes=tuple(notes))]
+
+
+# ---------------------------------------------------------------------------------------------
 # Markdown
 
 
@@ -347,7 +456,7 @@ def to_markdown(tables: Sequence[TextTable], *, heading: str) -> str:
         out.append("|" + "|".join("---" for _ in t.headers) + "|")
         out += ["| " + " | ".join(_md_cell(c) for c in r) + " |" for r in t.rows]
         out.append("")
-        out += [*(f"- {_md_line(n)}" for n in t.notes), ""] if t.notes else []
+        out += [*(f"- {_md_line(n)}" for n in t.all_notes), ""] if t.all_notes else []
         out += [f"_{t.caveat}_", ""]
     return "\n".join(out)
 
@@ -360,6 +469,8 @@ def json_safe(x: Any) -> Any:
     """
     if isinstance(x, float) and not math.isfinite(x):
         return None
+    if isinstance(x, float) and x == 0:
+        return 0.0  # never -0.0
     if isinstance(x, dict):
         return {str(k): json_safe(v) for k, v in x.items()}
     if isinstance(x, list | tuple):
