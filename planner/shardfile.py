@@ -44,6 +44,7 @@ MAX_LINE_BYTES = 1 << 20
 _STEM = re.compile(r"[A-Za-z0-9][A-Za-z0-9_-]*\Z")
 # where a whole row may start inside a damaged line: shots, errors, discards, seconds
 _ROW_START = re.compile(r"(?<! )(?= *\d+, *\d+, *\d+, *[0-9.]+,)")
+_TORN_START = re.compile(r" *\d")
 _INTS = ("shots", "errors", "discards")
 
 
@@ -193,6 +194,8 @@ def looks_damaged(raw: bytes, header: list[str]) -> bool:
     if len(raw) > MAX_LINE_BYTES:
         return False
     text = raw.decode("utf-8", errors="replace")
+    if not _TORN_START.match(text):  # a torn row starts as every row does: padded shots
+        return False
     for m in _ROW_START.finditer(text):
         if m.start() > 0 and not isinstance(parse_line(text[m.start():].encode(), header), str):
             return True

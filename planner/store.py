@@ -130,7 +130,11 @@ class ShardWriter:
         self._fd = fd
         self._size = os.fstat(fd).st_size
         if self._size == 0:
-            self._write(HEADER_LINE)
+            try:
+                self._write(HEADER_LINE)
+            except BaseException:
+                self.close(raise_errors=False)
+                raise
         self._last_sync = time.monotonic()
         self.rows_written = 0
 

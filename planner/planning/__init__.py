@@ -137,7 +137,7 @@ def load_out_dir(directory: str | Path, *, notify: Any = "stderr") -> OutDirSamp
                          f"(samples without planner's manifest cannot be fitted; run `planner sweep "
                          f"{tpath} --out {root}`)")
     target = load_target(tpath)
-    store = SampleStore(root, notify=print_notice if notify == "stderr" else notify)
+    store = SampleStore(root, notify=None)  # said below, once the answer is not an error
     try:
         store.repair()
     except InputError as exc:  # e.g. a full disk: reading still works, the rows are skipped
@@ -147,5 +147,8 @@ def load_out_dir(directory: str | Path, *, notify: Any = "stderr") -> OutDirSamp
     if not stats:
         other = f" ({read.ignored_rows} rows of other tasks ignored)" if read.ignored_rows else ""
         raise InputError(f"{root / 'samples'}: no samples yet{other} (run `planner sweep {tpath}` first)")
+    say = print_notice if notify == "stderr" else notify
+    for message in store.notices if say is not None else ():
+        say(message)
     return OutDirSamples(target=target, stats=stats, ignored_rows=read.ignored_rows,
                          damaged_rows=read.damaged_rows, notices=tuple(store.notices))
