@@ -459,7 +459,31 @@ def test_sweep_leaves_a_foreign_csv_in_samples_alone(swept, tmp_path: Path) -> N
 # 8. out directories planner must not write into
 
 
+def _guard_root(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Make any file or directory planner would create in / (or /samples) fail, so this test
+    cannot litter the machine even when the refusal it checks is missing."""
+    real_open, real_mkdir = os.open, os.mkdir
+
+    def forbidden(path) -> bool:
+        parent = os.path.dirname(os.path.abspath(os.fsdecode(path)))
+        return parent in ("/", "/samples", "/verify", "/plots")
+
+    def guarded_open(path, flags, *args, **kwargs):
+        if flags & (os.O_WRONLY | os.O_RDWR | os.O_CREAT) and forbidden(path):
+            raise PermissionError(13, "test guard: no writes in /", os.fsdecode(path))
+        return real_open(path, flags, *args, **kwargs)
+
+    def guarded_mkdir(path, *args, **kwargs):
+        if forbidden(path):
+            raise PermissionError(13, "test guard: no writes in /", os.fsdecode(path))
+        return real_mkdir(path, *args, **kwargs)
+
+    monkeypatch.setattr(os, "open", guarded_open)
+    monkeypatch.setattr(os, "mkdir", guarded_mkdir)
+
+
 def test_out_dir_root_empty_cwd_and_foreign_are_refused(swept, tmp_path: Path, monkeypatch) -> None:
+    _guard_root(monkeypatch)
     work = tmp_path / "work"
     work.mkdir()
     monkeypatch.chdir(work)
@@ -481,7 +505,9 @@ def test_out_dir_root_empty_cwd_and_foreign_are_refused(swept, tmp_path: Path, m
         (["merge", str(swept["mine"]), "--out", str(busy)], "already holds files planner did not write"),
     ]
     for args, needle in cases:
-        assert needle in _one_line_error(runner.invoke(app, args)), args
+        res = runner.invoke(app, args)
+        assert res.exit_code == 2, args
+        assert needle in _one_line_error(res), args
     assert sorted(p.name for p in work.iterdir()) == ["...toml", "tiny.toml"]  # nothing written here
     assert sorted(p.name for p in busy.iterdir()) == ["thesis.tex"]
 
