@@ -262,8 +262,8 @@ def identity_difference(old: Manifest, new: Manifest) -> str | None:
     return None
 
 
-#: what planner writes into an out directory (besides dot-files: its temporary files and locks);
-#: an existing directory holding anything else is not taken as an out directory
+#: what planner writes into an out directory (besides dot-files and ``*.lock``: its temporary
+#: files and locks); an existing directory holding anything else, and no manifest, is refused
 PLANNER_ENTRIES = frozenset({
     MANIFEST, TARGET_COPY, "samples", "verify", "plots", "report.html", "fits.json",
     "requirements.md", "requirements.csv", "roadmap.md", "roadmap.csv", "roadmap_dates.csv",
@@ -292,7 +292,8 @@ def check_out_dir(path: Path, *, option: str = "--out") -> None:
             names = sorted(os.listdir(path))
         except OSError as exc:
             raise InputError(f"{path}: cannot list the {option} directory ({exc.strerror or exc})") from None
-        foreign = [n for n in names if n not in PLANNER_ENTRIES and not n.startswith(".")]
+        foreign = [n for n in names
+                   if n not in PLANNER_ENTRIES and not n.startswith(".") and not n.endswith(".lock")]
         if foreign:
             more = f" and {len(foreign) - 1} more" if len(foreign) > 1 else ""
             raise InputError(f"{path}: {option} already holds files planner did not write "

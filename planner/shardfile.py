@@ -331,6 +331,13 @@ def repair_locked(fd: int, path: Path) -> Repair:
     """Repair a shard whose lock the caller holds (``fd`` open on ``path``): cut a torn last line
     off, and move damaged rows to ``<shard>.rejected``. A file that is not a store shard (see
     :func:`file_kind`) is never touched; unreadable rows are left for the reader to refuse."""
+    try:
+        return _repair_locked(fd, path)
+    except OSError as exc:
+        raise write_error(path, exc, what="the shard was not repaired") from None
+
+
+def _repair_locked(fd: int, path: Path) -> Repair:
     data = _read_fd(fd)
     if not data:
         return Repair()

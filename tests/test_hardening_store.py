@@ -253,6 +253,7 @@ HAND_EDITS = {
     "deep-json": lambda row: row.replace(b'"{', b'"' + b"[" * 50_000 + b"]" * 50_000 + b'{', 1),
     "missing-field": lambda row: row.replace(b",pymatching", b"", 1),
     "negative-shots": lambda row: row.replace(b"       100,", b"      -100,", 1),
+    "extra-field": lambda row: row.replace(b"\n", b",surplus\n", 1),
 }
 
 
@@ -441,6 +442,16 @@ def test_a_hand_edited_manifest_is_one_line_naming_file_and_line(swept, tmp_path
         args = [command, str(out)] if command != "sweep" else [command, str(swept["mine_target"]), "--out", str(out)]
         line = _one_line_error(runner.invoke(app, args))
         assert pytest.importorskip("re").search(needle, line), (command, line)
+
+
+def test_a_huge_manifest_is_refused_before_it_is_read(swept, tmp_path: Path, monkeypatch) -> None:
+    import planner.manifest
+
+    out = _copy(swept, tmp_path)
+    size = (out / "manifest.json").stat().st_size
+    monkeypatch.setattr(planner.manifest, "MAX_MANIFEST_BYTES", size - 1)  # as if it were huge
+    with pytest.raises(InputError, match=r"manifest\.json: .* bytes is too large for a planner manifest"):
+        read_manifest(out)
 
 
 def test_sweep_leaves_a_foreign_csv_in_samples_alone(swept, tmp_path: Path) -> None:
