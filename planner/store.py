@@ -413,15 +413,14 @@ def merge_into(dest: SampleStore, sources: list[SampleStore]) -> MergeResult:
             new.append(row)
     if not new:
         return MergeResult(copied_rows=0, copied_shots=0, skipped_rows=skipped, shard=None)
-    shard = None
+    name = "merged-" + default_shard_name()
+    shard = dest.samples_dir / (name + SHARD_SUFFIX)  # a fresh name: nobody else's file
     try:
-        with dest.writer("merged-" + default_shard_name()) as w:
-            shard = w.path
+        with dest.writer(name) as w:
             for row in new:
                 w.append(row.stats, chunk_id=row.chunk_id)
     except BaseException:
-        if shard is not None:  # a half copy is no use: the next merge copies everything again
-            remove_quietly(shard)
+        remove_quietly(shard)  # a half copy is no use: the next merge copies everything again
         raise
     return MergeResult(copied_rows=len(new), copied_shots=sum(r.stats.shots for r in new),
                        skipped_rows=skipped, shard=shard)
