@@ -64,10 +64,13 @@ def rejected_path(shard: Path) -> Path:
 
 def file_kind(path: Path) -> str:
     """``"shard"`` (created by the store: name and header), ``"sinter"`` (another CSV with
-    sinter's columns: read, never modified) or ``"foreign"`` (neither: ignored, never modified)."""
+    sinter's columns: read, never modified), ``"foreign"`` (neither: ignored, never modified) or
+    ``"missing"`` (gone since it was listed)."""
     try:
         with open(path, "rb") as fh:
             head = fh.read(64 * 1024)
+    except FileNotFoundError:
+        return "missing"  # removed since it was listed
     except OSError:
         return "foreign"
     nl = head.find(b"\n")

@@ -282,9 +282,10 @@ class SampleStore:
         """The sample files: the store's shards and plain sinter CSVs (not other CSV files)."""
         files = []
         for path in self._csv_files():
-            if file_kind(path) == "foreign":
+            kind = file_kind(path)
+            if kind == "foreign":
                 self.note(f"{path}: not a sample file (no sinter CSV header); ignored and left untouched")
-            else:
+            elif kind != "missing":
                 files.append(path)
         return files
 
@@ -318,7 +319,7 @@ class SampleStore:
         if ignored:
             self.note(f"{self.samples_dir}: ignored {ignored} row(s) of tasks that "
                       f"{self.manifest_path} does not list (samples of another target or sweep)")
-        foreign = tuple(p for p in files if p not in sample_files)
+        foreign = tuple(p for p in files if p not in sample_files and p.exists())
         return StoreRead(rows=tuple(rows), ignored_rows=ignored, damaged_rows=damaged,
                          duplicate_rows=duplicates, foreign_files=foreign)
 

@@ -30,7 +30,7 @@ def merge_command(
 ) -> None:
     from planner.errors import InputError
     from planner.manifest import TARGET_COPY, check_out_dir, combine_manifests, read_manifest
-    from planner.store import SampleStore
+    from planner.store import SampleStore, print_notice
 
     err = stderr_console(quiet=quiet)
     named = []
@@ -42,7 +42,7 @@ def merge_command(
         m = read_manifest(src)
         if m is None:
             raise InputError(f"{src}: not a planner out directory (no manifest.json)")
-        store = SampleStore(src)
+        store = SampleStore(src, notify=None)  # notices are said once the merge worked
         if not store.shard_files():
             raise InputError(f"{src}: holds no samples ({store.samples_dir} has no .csv shards)")
         if target_bytes is None and (src / TARGET_COPY).is_file():
@@ -60,6 +60,8 @@ def merge_command(
         result = _merge_into_dir(out, combined, target_bytes, stores)
     else:
         result = _merge_into_new_dir(out, combined, target_bytes, stores)
+    for message in dict.fromkeys(m for store in stores for m in store.notices):
+        print_notice(message)
     where = f" -> {out / 'samples' / result.shard.name}" if result.shard else ""
     err.print(f"merged {len(stores)} directories into {out}: {result.copied_rows} new chunks "
               f"({result.copied_shots:,} shots), {result.skipped_rows} already present{where}")
