@@ -10,6 +10,7 @@ from __future__ import annotations
 import errno
 import json
 import os
+import re
 import shutil
 from collections.abc import Callable
 from pathlib import Path
@@ -441,7 +442,7 @@ def test_a_hand_edited_manifest_is_one_line_naming_file_and_line(swept, tmp_path
     for command in ("fit", "status", "sweep"):
         args = [command, str(out)] if command != "sweep" else [command, str(swept["mine_target"]), "--out", str(out)]
         line = _one_line_error(runner.invoke(app, args))
-        assert pytest.importorskip("re").search(needle, line), (command, line)
+        assert re.search(needle, line), (command, line)
 
 
 def test_a_huge_manifest_is_refused_before_it_is_read(swept, tmp_path: Path, monkeypatch) -> None:
