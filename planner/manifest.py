@@ -10,7 +10,6 @@ from __future__ import annotations
 import dataclasses
 import json
 import os
-import tempfile
 from collections.abc import Iterable, Mapping
 from pathlib import Path
 from typing import Any
@@ -19,6 +18,7 @@ import sinter
 import stim
 
 from planner.errors import InputError
+from planner.fileio import atomic_write
 
 MANIFEST = "manifest.json"
 TARGET_COPY = "target.toml"
@@ -110,47 +110,132 @@ class Manifest:
         }
 
     @classmethod
-    def from_json(cls, doc: Mapping[str, Any], *, source: str) -> Manifest:
-        try:
-            budget = doc.get("budget") or {}
-            return cls(target_sha256=str(doc["target_sha256"]), target_name=str(doc.get("target_name", "")),
-                       versions={k: str(v) for k, v in doc["versions"].items()},
-                       tasks=tuple(TaskEntry(strong_id=str(e["strong_id"]), decoder=str(e["decoder"]),
-                                             json_metadata=e["json_metadata"]) for e in doc["tasks"]),
-                       budget=budget.get("name"), max_errors=budget.get("max_errors"),
-                       max_shots=budget.get("max_shots"),
-                       sample_sha256=str(doc.get("sample_sha256", "")))
-        except (KeyError, TypeError, AttributeError) as exc:
-            raise InputError(f"{source}: not a planner manifest (missing or bad field {exc})") from None
+    def from_json(cls, doc: Mapping[str, Any], *, source: str, text: str = "") -> Manifest:
+        """The manifest in ``doc`` (parsed JSON); InputError naming ``source`` (and, given the
+        file's ``text``, the line) for a missing field or one of the wrong type."""
+
+        def bad(key: str, allowed: str) -> InputError:
+            line = f":{_line_of(text, chr(34) + key + chr(34))}" if text else ""
+            return InputError(f"{source}{line}: {key}: {allowed} (not a planner manifest, or edited)")
+
+        def string(d: Mapping[str, Any], key: str, default: str | None = None) -> str:
+            value = d.get(key, default)
+            if not isinstance(value, str):
+                raise bad(key, "must be a string" if key in d else "missing")
+            return value
+
+        def count(d: Mapping[str, Any], key: str) -> int | None:
+            value = d.get(key)
+            if value is not None and (isinstance(value, bool) or not isinstance(value, int) or value < 0):
+                raise bad(key, "must be a whole number >= 0 or null")
+            return value
+
+        if not isinstance(doc, Mapping):
+            raise InputError(f"{source}: not a planner manifest (a JSON object is expected)")
+        versions = doc.get("versions")
+        if not isinstance(versions, Mapping) or not all(isinstance(v, str) for v in versions.values()):
+            raise bad("versions", "must be an object of version strings")
+        budget = doc.get("budget") or {}
+        if not isinstance(budget, Mapping):
+            raise bad("budget", "must be an object or null")
+        name = budget.get("name")
+        if name is not None and not isinstance(name, str):
+            raise bad("name", "must be a string or null")
+        tasks = doc.get("tasks")
+        if not isinstance(tasks, list):
+            raise bad("tasks", "must be a list" if "tasks" in doc else "missing")
+        entries = []
+        for e in tasks:
+            if not isinstance(e, Mapping) or "json_metadata" not in e:
+                raise bad("tasks", "each task must be an object with strong_id, decoder, json_metadata")
+            entries.append(TaskEntry(strong_id=string(e, "strong_id"), decoder=string(e, "decoder"),
+                                     json_metadata=e["json_metadata"]))
+        return cls(target_sha256=string(doc, "target_sha256"), target_name=string(doc, "target_name", ""),
+                   versions={str(k): v for k, v in versions.items()}, tasks=tuple(entries),
+                   budget=name, max_errors=count(budget, "max_errors"),
+                   max_shots=count(budget, "max_shots"),
+                   sample_sha256=string(doc, "sample_sha256", ""))
 
     @property
     def strong_ids(self) -> set[str]:
         return {e.strong_id for e in self.tasks}
 
 
+#: a manifest lists a few hundred tasks; anything far larger was not written by planner
+MAX_MANIFEST_BYTES = 64 * 1024 * 1024
+_MAX_DEPTH = 64
+
+
+def _line_of(text: str, needle: str) -> int:
+    """1-based line of the first ``needle`` in ``text`` (1 when absent)."""
+    at = text.find(needle)
+    return text.count("\n", 0, at) + 1 if at >= 0 else 1
+
+
+def _too_deep_line(text: str, limit: int = _MAX_DEPTH) -> int | None:
+    """Line where JSON brackets (outside strings) nest deeper than ``limit``, if anywhere.
+
+    >>> _too_deep_line('{"a": [[1]]}', limit=2), _too_deep_line('{"a": [1]}', limit=2)
+    (1, None)
+    """
+    depth, in_str, esc, line = 0, False, False, 1
+    for ch in text:
+        if ch == "\n":
+            line += 1
+        if in_str:
+            if esc:
+                esc = False
+            elif ch == "\\":
+                esc = True
+            elif ch == '"':
+                in_str = False
+        elif ch == '"':
+            in_str = True
+        elif ch in "[{":
+            depth += 1
+            if depth > limit:
+                return line
+        elif ch in "]}":
+            depth -= 1
+    return None
+
+
 def read_manifest(out_dir: Path) -> Manifest | None:
-    """The manifest of ``out_dir``, or None when there is none yet."""
+    """The manifest of ``out_dir``, or None when there is none yet. A manifest that is not
+    planner's (not UTF-8, not JSON, nested too deeply, a field of the wrong type) is an
+    InputError naming the file and the line."""
     path = Path(out_dir) / MANIFEST
     try:
-        text = path.read_text()
+        size = path.stat().st_size
     except FileNotFoundError:
         return None
+    if size > MAX_MANIFEST_BYTES:
+        raise InputError(f"{path}: {size:,} bytes is too large for a planner manifest "
+                         f"(at most {MAX_MANIFEST_BYTES:,})")
+    data = path.read_bytes()
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        line = data.count(b"\n", 0, exc.start) + 1
+        raise InputError(f"{path}:{line}: not UTF-8 text "
+                         "(a planner manifest is JSON)") from None
+    deep = _too_deep_line(text)
+    if deep is not None:
+        raise InputError(f"{path}:{deep}: JSON nested more than {_MAX_DEPTH} levels deep "
+                         "(not a planner manifest)")
     try:
         doc = json.loads(text)
     except json.JSONDecodeError as exc:
-        raise InputError(f"{path}: not valid JSON ({exc})") from None
-    return Manifest.from_json(doc, source=str(path))
+        raise InputError(f"{path}:{exc.lineno}: not valid JSON ({exc.msg})") from None
+    except RecursionError:
+        raise InputError(f"{path}: JSON nested too deeply (not a planner manifest)") from None
+    return Manifest.from_json(doc, source=str(path), text=text)
 
 
 def _atomic_write(path: Path, data: bytes) -> None:
-    # temp file + rename: concurrent shard jobs may write the same file, readers never see half
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}-", suffix=".tmp")
-    umask = os.umask(0o022)
-    os.umask(umask)
-    os.fchmod(fd, 0o666 & ~umask)  # mkstemp makes 0600; other jobs and users read these files
-    with os.fdopen(fd, "wb") as fh:
-        fh.write(data)
-    os.replace(tmp, path)
+    # temp file + rename: concurrent shard jobs may write the same file, readers never see half;
+    # a full disk is one InputError (exit 2) and leaves no temporary file behind
+    atomic_write(path, data)
 
 
 def write_manifest(out_dir: Path, manifest: Manifest) -> Path:
@@ -177,11 +262,54 @@ def identity_difference(old: Manifest, new: Manifest) -> str | None:
     return None
 
 
+#: what planner writes into an out directory (besides dot-files and ``*.lock``: its temporary
+#: files and locks); an existing directory holding anything else, and no manifest, is refused
+PLANNER_ENTRIES = frozenset({
+    MANIFEST, TARGET_COPY, "samples", "verify", "plots", "report.html", "fits.json",
+    "requirements.md", "requirements.csv", "roadmap.md", "roadmap.csv", "roadmap_dates.csv",
+    "sensitivity.md", "sensitivity.csv",
+})
+
+
+def check_out_dir(path: Path, *, option: str = "--out") -> None:
+    """Refuse an out directory planner must not write into (InputError, one line): a file-system
+    root, the current directory (an empty ``--out``, or a target file named like ``...toml``),
+    or an existing directory holding files planner did not write. A planner out directory
+    (one with ``manifest.json``), an empty one, or one holding only planner's own files is fine.
+    """
+    path = Path(path)
+    if (path / MANIFEST).is_file():
+        return  # a planner out directory: resuming or adding to it is what it is for
+    resolved = path.resolve()
+    if resolved == Path(resolved.anchor):
+        raise InputError(f"{path}: {option} is a file-system root; give a directory of its own "
+                         "(e.g. out/NAME)")
+    if resolved == Path.cwd().resolve() or str(path) in ("", "."):
+        raise InputError(f"{path}: {option} is the current directory (an empty --out, or a target "
+                         "file named like '...toml'?); give a directory of its own (e.g. out/NAME)")
+    if path.is_dir():
+        try:
+            names = sorted(os.listdir(path))
+        except OSError as exc:
+            raise InputError(f"{path}: cannot list the {option} directory ({exc.strerror or exc})") from None
+        foreign = [n for n in names
+                   if n not in PLANNER_ENTRIES and not n.startswith(".") and not n.endswith(".lock")]
+        if foreign:
+            more = f" and {len(foreign) - 1} more" if len(foreign) > 1 else ""
+            raise InputError(f"{path}: {option} already holds files planner did not write "
+                             f"({foreign[0]!r}{more}); give a new or empty directory, or a planner "
+                             "out directory")
+
+
 def writable_dir(path: Path, *, option: str = "--out") -> Path:
     """Create ``path`` if needed and check it can be written (InputError naming it otherwise).
-    Commands call it before any work or chatter, so a refusal is one line."""
+    Commands call it before any work or chatter, so a refusal is one line. An out directory
+    that is not planner's to write (see :func:`check_out_dir`) is refused; a directory inside a
+    planner out directory (``DIR/verify``) only has to be writable."""
     if path.exists() and not path.is_dir():
         raise InputError(f"{path}: {option} exists and is not a directory")
+    if not (path.parent / MANIFEST).is_file():
+        check_out_dir(path, option=option)
     try:
         path.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
