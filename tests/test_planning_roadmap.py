@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import datetime as dt
 import math
-import time
 
 import pytest
 from hypothesis import given, settings
@@ -118,14 +117,13 @@ def test_a_perfect_component_has_zero_share(comp, rest):
     assert row.suppression_perfect == pytest.approx(m.suppression(None))
 
 
-def test_answer_all_bootstrap_intervals_and_speed():
+def test_answer_all_bootstrap_intervals():
+    # demo-sized grid (15 points x 3 d x 2 bases), 200 replicas; its speed goal is in
+    # bench/roadmap_speed.py, not here
     stats = synthetic_stats(weights=W, prefactor=0.1, distances=(3, 5, 7), joint_scales=(0.5, 0.7, 1.0),
                             component_scales=(0.3, 0.6), shots=100_000, seed=2)
     extra = ROADMAP.replace("gate_2q = {per_year = 0.2}", "gate_2q = {per_year = 0.2, spread = 0.05}")
-    t0 = time.perf_counter()
     a = answer_all(target_with(extra), stats, seed=1)
-    elapsed = time.perf_counter() - t0
-    assert elapsed < 2.0  # demo-sized grid (15 points x 3 d x 2 bases), 200 replicas (measured 0.55 s)
     req = a.requirements
     iv = req.joint.factor_interval
     true = (1e-5 ** (1 / 11)) / 0.47  # synthetic truth at d = 21, prefactor 0.1
@@ -136,9 +134,13 @@ def test_answer_all_bootstrap_intervals_and_speed():
     # seeded: the same call gives the same intervals
     b = answer_all(target_with(extra), stats, seed=1)
     assert b.uncertainty.intervals == a.uncertainty.intervals
+    # serialised as fits.json is written: strict JSON (no NaN/Infinity), answers present
     import json
 
-    json.dumps(a.to_json(), allow_nan=True)
+    from planner.reports.files import fits_document
+
+    doc = json.loads(json.dumps(fits_document(a), allow_nan=False))
+    assert doc["uncertainty"]["intervals"]["lambda_today"]["low"] == pytest.approx(lam.low)
 
 
 def test_coherence_growth_lowers_the_idle_errors_and_brings_the_goal_forward():
