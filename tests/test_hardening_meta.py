@@ -137,3 +137,32 @@ def test_cluster_check_totals(tmp_path: Path, planner_says: dict, agree: bool,
     else:
         with pytest.raises(SystemExit):
             mod.totals(args)
+
+
+# ---------------------------------------------------------------------------------------------
+# the README states what the code does
+
+
+def _readme() -> str:
+    return (ROOT / "README.md").read_text()
+
+
+def test_the_readme_defines_every_budget_as_the_code_does() -> None:
+    from planner.sweep import BUDGETS
+
+    rows = {m[1]: (int(m[2].replace(",", "")), int(m[3].replace(",", "")))
+            for m in re.finditer(r"^\s*\| `(\w+)` \| ([\d,]+) \| ([\d,]+) \|", _readme(), re.M)}
+    assert rows == {name: (rule.max_errors, rule.max_shots) for name, rule in BUDGETS.items()}
+
+
+@pytest.mark.parametrize("command", ["planner run", "planner sweep"])
+def test_the_command_table_lists_the_sampling_options(command: str) -> None:
+    row = next(line for line in _readme().splitlines()
+               if line.startswith("|") and f"`{command} " in line)
+    for option in ("--workers N", "--budget", "--precision REL"):
+        assert option in row, (option, row)
+
+
+def test_the_readme_names_no_setting_a_user_cannot_set() -> None:
+    # the per-task CPU cap of a targeted sweep is a library argument, not a target key or option
+    assert "max_cpu_seconds_per_task" not in _readme()
