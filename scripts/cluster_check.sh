@@ -18,7 +18,8 @@ PLANNER=$REPO/.venv/bin/planner
 
 running() { local n; for n in "$@"; do pgrep -x "$n" || true; done; }  # pids of processes so named
 say() { printf 'cluster-check: %s\n' "$*"; }
-die() { printf 'cluster-check: FAILED: %s\n' "$*" >&2; exit 1; }
+die() { printf 'cluster-check: FAILED: %s\n' "$*" >&2; REPORTED=1; exit 1; }
+REPORTED=""
 
 [[ $(id -u) == 0 ]] || die "run as root (it installs packages and starts the Slurm daemons)"
 [[ -f /etc/debian_version ]] || die "needs a Debian machine (apt-get, slurm-wlm, munge)"
@@ -32,7 +33,9 @@ POLICY_MADE=""
 STATUS=1
 
 cleanup() {
+    local rc=$?
     set +e
+    [[ $STATUS == 0 || -n $REPORTED ]] || printf 'cluster-check: FAILED (exit %s; see above)\n' "$rc" >&2
     if [[ -n $DRIVER_PID ]] && kill -0 "$DRIVER_PID" 2>/dev/null; then
         echo 2>/dev/null >&3  # the recipe's "press Enter to stop the cluster"
         for _ in $(seq 30); do kill -0 "$DRIVER_PID" 2>/dev/null || break; sleep 1; done
@@ -126,6 +129,17 @@ EOF
 export SLURM_CONF=$WORK/slurm.conf
 say "slurm.conf: node $HOST, CPUs=2, RealMemory=${MEM_MB}M, partition cpu ($SLURM_CONF)"
 
+# ---------------------------------------------------------------- the README's driver script (before
+# anything starts: a recipe this check cannot adapt fails here)
+IFACE=$(ip -o -4 route show default 2>/dev/null | awk '{print $5; exit}')
+IFACE=${IFACE:-lo}
+PORT=$("$PY" -c 'import socket; s = socket.socket(); s.bind(("", 0)); print(s.getsockname()[1])')
+"$PY" scripts/cluster_check_recipe.py driver README.md "$WORK/slurm_cluster.py" \
+    --interface "$IFACE" --port "$PORT" --venv "$REPO/.venv" --partition cpu \
+    --account planner-check --memory "${JOB_MEM_MB}MiB" --jobs 2 >/dev/null \
+    || die "could not take the driver script from README.md (message above)"
+say "driver: README's recipe with interface=$IFACE, port $PORT, 2 jobs x 1 core, ${JOB_MEM_MB}MiB per job"
+
 # ---------------------------------------------------------------- start slurmctld, slurmd
 /usr/sbin/slurmctld -D -f "$SLURM_CONF" >"$WORK/slurmctld.out" 2>&1 &
 PIDS+=($!)
@@ -139,14 +153,7 @@ done
 [[ $state == idle ]] || die "the node did not become idle (state '${state:-none}'; see $WORK/slurm*.log)"
 say "slurmctld (pid ${PIDS[-2]}) and slurmd (pid ${PIDS[-1]}) up: $(sinfo -h -o '%P %a %D %T %c CPUs %m MB')"
 
-# ---------------------------------------------------------------- the README's driver script
-IFACE=$(ip -o -4 route show default 2>/dev/null | awk '{print $5; exit}')
-IFACE=${IFACE:-lo}
-PORT=$("$PY" -c 'import socket; s = socket.socket(); s.bind(("", 0)); print(s.getsockname()[1])')
-"$PY" scripts/cluster_check_recipe.py driver README.md "$WORK/slurm_cluster.py" \
-    --interface "$IFACE" --port "$PORT" --venv "$REPO/.venv" --partition cpu \
-    --account planner-check --memory "${JOB_MEM_MB}MiB" --jobs 2 >/dev/null
-say "driver: README's recipe with interface=$IFACE, port $PORT, 2 jobs x 1 core, ${JOB_MEM_MB}MiB per job"
+# ---------------------------------------------------------------- run the driver
 mkfifo "$WORK/enter"
 (cd "$WORK" && exec "$PY" slurm_cluster.py <"$WORK/enter" >"$WORK/driver.out" 2>"$WORK/driver.err") &
 DRIVER_PID=$!
