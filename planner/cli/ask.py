@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 
-from planner.cli._common import one_line_errors, stderr_console, stdout_console
+from planner.cli._common import one_line_errors, plain, stderr_console, stdout_console
 from planner.cli.options import JsonOpt
 
 P_GOAL, P_CALC = "Goal", "Calculator (measured numbers, no DIR)"
@@ -75,7 +75,7 @@ def ask_command(
 
     written = write_requirements(answers.requirements, directory, uncertainty=answers.uncertainty,
                                  lambda_today_model=lambda_today_model(answers))
-    stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {directory}")
+    stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {plain(directory)}")
     if json:
         doc = answers.requirements.to_json()
         doc["confidence"] = answers.fits.to_json()["confidence"]

@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 
-from planner.cli._common import one_line_errors, stderr_console
+from planner.cli._common import one_line_errors, plain, stderr_console
 from planner.cli.options import QuietOpt
 
 
@@ -64,5 +64,5 @@ def merge_command(
     result = merge_into(SampleStore(out / "samples"), stores)
     write_manifest(out, combined)
     where = f" -> {result.shard}" if result.shard else ""
-    err.print(f"merged {len(stores)} directories into {out}: {result.copied_rows} new chunks "
+    err.print(f"merged {len(stores)} directories into {plain(out)}: {result.copied_rows} new chunks "
               f"({result.copied_shots:,} shots), {result.skipped_rows} already present{where}")
