@@ -442,7 +442,8 @@ def _describe(exc: ValidationError, doc: dict[str, Any], source: str) -> str:
     if loc and loc[-1] == "[key]":
         # a key of a table keyed by component ([costs], [roadmap.rates]) is not a component
         loc, kind = loc[:-1], "extra_forbidden"
-    path = ".".join(loc)
+    # a list element as key[i] (pydantic gives the index as one more path part)
+    path = "".join(p if not i else (f"[{p}]" if p.isdigit() else f".{p}") for i, p in enumerate(loc))
     if kind == "extra_forbidden":
         section, key = ".".join(loc[:-1]), loc[-1]
         valid = _valid_keys(section)

@@ -244,7 +244,7 @@ def run_sweep(tasks: Sequence[sinter.Task], *, store: SampleStore, rule: Stoppin
     complete = all(remaining(after.get(sid), rule) == (0, 0) for sid in ids)
     wall = time.monotonic() - t0
     console.print(f"sampled {counts['shots']:,} shots ({counts['errors']:,} errors) in "
-                  f"{counts['chunks']} chunks, {wall:.1f} s -> {shard_file}"
+                  f"{counts['chunks']} chunks, {wall:.1f} s -> {rich.markup.escape(str(shard_file))}"
                   + ("" if complete else "; some tasks are not yet complete: run again to top up"))
     return SweepSummary(tasks=len(ids), already_done=len(ids) - len(items), sampled_tasks=len(items),
                         new_shots=counts["shots"], new_errors=counts["errors"],
