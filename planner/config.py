@@ -88,6 +88,8 @@ MIN_START = _dt.date(1950, 1, 1)
 MAX_START = _dt.date(2200, 12, 31)
 #: Longest device name (it is printed in every report title).
 MAX_NAME_LENGTH = 200
+#: Largest target file: a real one is a few kilobytes.
+MAX_TARGET_BYTES = 2**20
 
 
 def memory_circuit_size(*, code: str, distance: int, rounds: int) -> tuple[int, int]:
@@ -314,13 +316,17 @@ def load_target(path: str | Path) -> Target:
     """Read and validate a target file. Raises :class:`InputError` naming file and field."""
     path = Path(path)
     try:
-        raw = path.read_bytes()
+        with path.open("rb") as f:
+            raw = f.read(MAX_TARGET_BYTES + 1)
     except FileNotFoundError:
         raise InputError(f"{path}: no such target file") from None
     except IsADirectoryError:
         raise InputError(f"{path}: is a directory, expected a target .toml file") from None
     except PermissionError:
         raise InputError(f"{path}: cannot be read (permission denied)") from None
+    if len(raw) > MAX_TARGET_BYTES:
+        raise InputError(f"{path}: larger than {MAX_TARGET_BYTES // 2**20} MiB: a target file is a "
+                         "few kilobytes of TOML (is this the right file?)")
     return parse_target(raw, source=str(path))
 
 

@@ -125,6 +125,15 @@ def test_bad_target_on_the_command_line(case: str, command: str, tmp_path: Path)
     assert not out.exists()
 
 
+def test_a_huge_target_file_is_refused_unread(tmp_path: Path) -> None:
+    path = tmp_path / "huge.toml"
+    path.write_text(EXAMPLE_TOML + "# " + "x" * 2**21 + "\n")
+    with pytest.raises(InputError, match=r"huge.toml: larger than 1 MiB"):
+        load_target(path)
+    with pytest.raises(InputError, match="unknown key"):  # just below the limit: read and validated
+        load_target(path.write_text(EXAMPLE_TOML + "\nfiller = '" + "x" * 10**6 + "'\n") and path)
+
+
 def test_the_largest_realistic_grid_is_accepted() -> None:
     # d = 51 with a few hundred rounds is what a hardware team may ask for: within the limits
     t = parse_target(edited("distances = [3, 5]", "distances = [3, 51]\nrounds = 300"))
