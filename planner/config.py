@@ -17,6 +17,7 @@ import difflib
 import hashlib
 import json
 import tomllib
+import unicodedata
 from pathlib import Path
 from typing import Annotated, Any, Literal
 
@@ -72,7 +73,7 @@ joint_scales = [0.5, 1.0]
 MAX_DISTANCE = 101
 #: Most detectors in one memory circuit (2**20). Sampling a circuit holds its detector error model
 #: and its matching graph in each worker: about 1.4 kB per detector (measured with stim 1.16 and
-#: pymatching 2: d = 51 with 301 rounds, 0.78 million detectors, 0.9 GB and 10 s to set up; d = 101
+#: pymatching 2.4: d = 51 with 301 rounds, 0.78 million detectors, 0.9 GB and 10 s to set up; d = 101
 #: with 101 rounds, 1.03 million detectors, 1.4 GB and 30 s). So about 1.5 GB per worker at the limit.
 MAX_DETECTORS = 2**20
 #: Most distances, and most entries in each scale list, of one sweep.
@@ -131,7 +132,9 @@ def _plain_text(value: str) -> str:
         raise ValueError("must not be empty")
     if len(value) > MAX_NAME_LENGTH:
         raise ValueError(f"is {len(value):,} characters long: at most {MAX_NAME_LENGTH} are allowed")
-    bad = next((ch for ch in value if ord(ch) < 32 or 127 <= ord(ch) < 160), None)
+    # control characters (a terminal escape, a newline) and invisible format characters (a
+    # right-to-left override) would change what a terminal or a report shows
+    bad = next((ch for ch in value if unicodedata.category(ch) in ("Cc", "Cf")), None)
     if bad is not None:
         raise ValueError(f"contains the control character {bad!r}: use printable text only")
     return value

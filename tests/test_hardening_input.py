@@ -90,6 +90,8 @@ BAD_TARGETS = {
                                            "device.name", "control character"),
     "newline in the device name": (edited('name = "example"', 'name = "Chip\\nB"'),
                                    "device.name", "control character"),
+    "right-to-left override in the device name": (edited('name = "example"', 'name = "Chip \u202eB"'),
+                                                  "device.name", "control character"),
     "1 MB device name": (edited('name = "example"', 'name = "' + "x" * 10**6 + '"'),
                          "device.name", "at most 200"),
     "empty device name": (edited('name = "example"', 'name = " "'), "device.name", "empty"),
