@@ -38,6 +38,7 @@ from collections.abc import Iterable, Sequence
 
 import stim
 
+from planner.config import size_problem
 from planner.noise import NoiseModel
 
 CODES: tuple[str, ...] = ("surface", "repetition")
@@ -70,6 +71,10 @@ def noiseless_memory_circuit(*, code: str, distance: int, rounds: int, basis: st
         raise ValueError(f"distance must be an odd integer >= 3, got {distance!r}")
     if isinstance(rounds, bool) or not isinstance(rounds, int) or rounds < 1:
         raise ValueError(f"rounds must be an integer >= 1, got {rounds!r}")
+    # estimate the size before stim builds anything: a huge circuit would take minutes and gigabytes
+    problem = size_problem(code=code, distance=distance, rounds=rounds)
+    if problem is not None:
+        raise ValueError(problem)
     if code == "surface":
         if basis not in ("z", "x"):
             raise ValueError(f"basis must be 'z' or 'x' for the surface code, got {basis!r}")

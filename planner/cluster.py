@@ -21,6 +21,7 @@ from contextlib import contextmanager
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
+import rich.markup
 import sinter
 import stim
 
@@ -197,7 +198,7 @@ def connect(spec: ClusterSpec, console: Console) -> Iterator[Any]:
         raise InputError(f"--cluster: cannot reach a dask scheduler at {spec.address} ({exc})") from None
     try:
         if not client.scheduler_info().get("workers"):
-            console.print(f"waiting for dask workers to join {spec.address} ...")
+            console.print(f"waiting for dask workers to join {rich.markup.escape(spec.address)} ...")
             client.wait_for_workers(1)
         yield client
     finally:

@@ -17,10 +17,11 @@ import difflib
 import hashlib
 import json
 import tomllib
+import unicodedata
 from pathlib import Path
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
+from pydantic import BaseModel, ConfigDict, Field, Strict, ValidationError, field_validator
 
 from planner.errors import InputError
 
@@ -65,12 +66,89 @@ joint_scales = [0.5, 1.0]
 """
 
 
+# ---------------------------------------------------------------------------------------------
+# limits: what one machine can build and sample (see the README's "Limits" section)
+
+#: Largest code distance: a distance-101 rotated surface code has 20,401 qubits.
+MAX_DISTANCE = 101
+#: Most detectors in one memory circuit (2**20). Sampling a circuit holds its detector error model
+#: and its matching graph in each worker: about 1.4 kB per detector (measured with stim 1.16 and
+#: pymatching 2.4: d = 51 with 301 rounds, 0.78 million detectors, 0.9 GB and 10 s to set up; d = 101
+#: with 101 rounds, 1.03 million detectors, 1.4 GB and 30 s). So about 1.5 GB per worker at the limit.
+MAX_DETECTORS = 2**20
+#: Most distances, and most entries in each scale list, of one sweep.
+MAX_DISTANCES = 25
+MAX_SCALES = 64
+#: Most tasks (scale points x distances x bases) in one sweep: planning builds every circuit
+#: up front and the manifest lists every task. A thorough grid has a few hundred.
+MAX_TASKS = 4000
+#: Largest qubit budget: 100x the largest machines on published roadmaps (about 10**6).
+MAX_QUBITS = 10**8
+#: Roadmap start dates (the horizon adds up to 50 years on top).
+MIN_START = _dt.date(1950, 1, 1)
+MAX_START = _dt.date(2200, 12, 31)
+#: Longest device name (it is printed in every report title).
+MAX_NAME_LENGTH = 200
+#: Largest target file: a real one is a few kilobytes.
+MAX_TARGET_BYTES = 2**20
+
+
+def memory_circuit_size(*, code: str, distance: int, rounds: int) -> tuple[int, int]:
+    """(qubits, detectors) of a memory experiment, computed without building it: a rotated
+    surface code of distance d has d**2 data and d**2 - 1 measure qubits and checks (d**2 - 1)
+    detectors per round; a repetition code d data and d - 1 measure qubits, (d - 1) per round,
+    plus one last layer from the data readout.
+
+    >>> memory_circuit_size(code="surface", distance=3, rounds=3), memory_circuit_size(code="repetition", distance=3, rounds=1)
+    ((17, 24), (5, 4))
+    """
+    if code == "repetition":
+        return 2 * distance - 1, (distance - 1) * (rounds + 1)
+    return 2 * distance**2 - 1, (distance**2 - 1) * rounds
+
+
+def size_problem(*, code: str, distance: int, rounds: int) -> str | None:
+    """Why a memory circuit is too large for one machine to build and sample, or None.
+
+    >>> size_problem(code="surface", distance=51, rounds=300) is None
+    True
+    >>> print(size_problem(code="surface", distance=3, rounds=10**6))
+    d=3 with 1000000 rounds has 8,000,000 detectors; at most 1,048,576 are allowed (about 1.5 GB per sampling worker): at d=3 use rounds <= 131072
+    """
+    if distance > MAX_DISTANCE:
+        return f"distance {distance} is too large: odd distances from 3 to {MAX_DISTANCE} are allowed"
+    _, detectors = memory_circuit_size(code=code, distance=distance, rounds=rounds)
+    if detectors <= MAX_DETECTORS:
+        return None
+    per_round = distance - 1 if code == "repetition" else distance**2 - 1
+    most = MAX_DETECTORS // per_round - (1 if code == "repetition" else 0)
+    return (f"d={distance} with {rounds} rounds has {detectors:,} detectors; at most {MAX_DETECTORS:,} "
+            f"are allowed (about 1.5 GB per sampling worker): at d={distance} use rounds <= {most}")
+
+
+def _plain_text(value: str) -> str:
+    """User text that ends up in terminals and reports: bounded, no control characters."""
+    if not value.strip():
+        raise ValueError("must not be empty")
+    if len(value) > MAX_NAME_LENGTH:
+        raise ValueError(f"is {len(value):,} characters long: at most {MAX_NAME_LENGTH} are allowed")
+    # control characters (a terminal escape, a newline) and invisible format characters (a
+    # right-to-left override) would change what a terminal or a report shows
+    bad = next((ch for ch in value if unicodedata.category(ch) in ("Cc", "Cf")), None)
+    if bad is not None:
+        raise ValueError(f"contains the control character {bad!r}: use printable text only")
+    return value
+
+
 class _Frozen(BaseModel):
     model_config = ConfigDict(frozen=True, extra="forbid", strict=False)
 
 
-Probability = Annotated[float, Field(ge=0.0, le=1.0)]
-Positive = Annotated[float, Field(gt=0.0)]
+# numbers are TOML numbers: a quoted "4.5e-3" or a boolean is refused, never converted
+Number = Annotated[float, Strict(), Field(allow_inf_nan=False)]
+Integer = Annotated[int, Strict()]
+Probability = Annotated[Number, Field(ge=0.0, le=1.0)]
+Positive = Annotated[Number, Field(gt=0.0)]
 
 
 class Preset(_Frozen):
@@ -81,7 +159,7 @@ class Preset(_Frozen):
     """
 
     model: Literal["sd6", "si1000"]
-    p: Annotated[float, Field(gt=0.0, le=0.1)]
+    p: Annotated[Number, Field(gt=0.0, le=0.1)]
 
 
 class Errors(_Frozen):
@@ -105,10 +183,10 @@ class Coherence(_Frozen):
 
 
 class Durations(_Frozen):
-    gate_1q_ns: Annotated[float, Field(ge=0.0)]
-    gate_2q_ns: Annotated[float, Field(ge=0.0)]
-    measure_ns: Annotated[float, Field(ge=0.0)]
-    reset_ns: Annotated[float, Field(ge=0.0)]
+    gate_1q_ns: Annotated[Number, Field(ge=0.0)]
+    gate_2q_ns: Annotated[Number, Field(ge=0.0)]
+    measure_ns: Annotated[Number, Field(ge=0.0)]
+    reset_ns: Annotated[Number, Field(ge=0.0)]
 
 
 class Device(_Frozen):
@@ -119,17 +197,22 @@ class Device(_Frozen):
     coherence: Coherence | None = None
     durations: Durations | None = None
 
+    @field_validator("name")
+    @classmethod
+    def _name(cls, v: str) -> str:
+        return _plain_text(v)
+
 
 class Goal(_Frozen):
-    logical_error_per_cycle: Annotated[float, Field(gt=0.0, lt=0.5)]
-    max_qubits: Annotated[int, Field(ge=5)] = 10_000
+    logical_error_per_cycle: Annotated[Number, Field(gt=0.0, lt=0.5)]
+    max_qubits: Annotated[Integer, Field(ge=5, le=MAX_QUBITS)] = 10_000
 
 
 class Sweep(_Frozen):
     code: Literal["surface", "repetition"] = "surface"
-    distances: tuple[int, ...]
+    distances: tuple[Integer, ...]
     bases: tuple[Literal["z", "x"], ...] = ("z", "x")
-    rounds: Annotated[int, Field(ge=1)] | None = None
+    rounds: Annotated[Integer, Field(ge=1)] | None = None
     joint_scales: tuple[Positive, ...] = (1.0,)
     component_scales: tuple[Positive, ...] = ()
     components: tuple[Literal[COMPONENTS], ...] | None = None  # type: ignore[valid-type]
@@ -143,7 +226,13 @@ class Sweep(_Frozen):
         for d in v:
             if d < 3 or d % 2 == 0:
                 raise ValueError(f"distance {d} is not allowed: distances are odd integers >= 3")
-        return tuple(sorted(set(v)))
+            if d > MAX_DISTANCE:
+                raise ValueError(f"distance {d} is too large: odd distances from 3 to {MAX_DISTANCE} "
+                                 "are allowed")
+        v = tuple(sorted(set(v)))
+        if len(v) > MAX_DISTANCES:
+            raise ValueError(f"{len(v)} distances: at most {MAX_DISTANCES} are allowed")
+        return v
 
     @field_validator("bases")
     @classmethod
@@ -155,7 +244,18 @@ class Sweep(_Frozen):
     @field_validator("joint_scales", "component_scales")
     @classmethod
     def _sorted_scales(cls, v: tuple[float, ...]) -> tuple[float, ...]:
-        return tuple(sorted(set(v)))
+        v = tuple(sorted(set(v)))
+        if len(v) > MAX_SCALES:
+            raise ValueError(f"{len(v):,} scale factors: at most {MAX_SCALES} are allowed")
+        return v
+
+    @field_validator("components")
+    @classmethod
+    def _components(cls, v: tuple[str, ...] | None) -> tuple[str, ...] | None:
+        if v is not None and not v:
+            raise ValueError("is empty: list the components that get their own scale axis "
+                             f"({', '.join(COMPONENTS)}), or leave the key out for all of them")
+        return v
 
 
 class Rate(_Frozen):
@@ -163,28 +263,28 @@ class Rate(_Frozen):
     the time for its error to halve. ``spread`` is the one-sigma uncertainty of ``per_year``
     (or of ``halving_years``)."""
 
-    per_year: Annotated[float, Field(ge=0.0, lt=1.0)] | None = None
+    per_year: Annotated[Number, Field(ge=0.0, lt=1.0)] | None = None
     halving_years: Positive | None = None
-    spread: Annotated[float, Field(ge=0.0)] = 0.0
+    spread: Annotated[Number, Field(ge=0.0)] = 0.0
 
 
 class Roadmap(_Frozen):
-    start: _dt.date
-    horizon_years: Annotated[float, Field(gt=0.0, le=50.0)] = 15.0
+    start: Annotated[_dt.date, Field(ge=MIN_START, le=MAX_START)]
+    horizon_years: Annotated[Number, Field(gt=0.0, le=50.0)] = 15.0
     step: Literal["quarter", "year"] = "quarter"
     rates: dict[Literal[COMPONENTS], Rate] = {}  # type: ignore[valid-type]
     milestones: tuple[Positive, ...] = (2.0, 4.0)
     #: T1 and T2 both grow by this fraction per year (0.2 = +20%/yr); it lowers the twirled part
     #: of the idle and idle_measure errors, on top of their own rates
-    coherence_growth_per_year: Annotated[float, Field(ge=0.0, le=10.0)] = 0.0
-    coherence_growth_spread: Annotated[float, Field(ge=0.0)] = 0.0
+    coherence_growth_per_year: Annotated[Number, Field(ge=0.0, le=10.0)] = 0.0
+    coherence_growth_spread: Annotated[Number, Field(ge=0.0)] = 0.0
 
 
 class Target(_Frozen):
     device: Device
     goal: Goal
     sweep: Sweep
-    costs: dict[Literal[COMPONENTS], Annotated[float, Field(gt=0.0)]] = {}  # type: ignore[valid-type]
+    costs: dict[Literal[COMPONENTS], Positive] = {}  # type: ignore[valid-type]
     roadmap: Roadmap | None = None
 
     #: where the target was read from and a hash of its bytes (set by the loader)
@@ -219,13 +319,17 @@ def load_target(path: str | Path) -> Target:
     """Read and validate a target file. Raises :class:`InputError` naming file and field."""
     path = Path(path)
     try:
-        raw = path.read_bytes()
+        with path.open("rb") as f:
+            raw = f.read(MAX_TARGET_BYTES + 1)
     except FileNotFoundError:
         raise InputError(f"{path}: no such target file") from None
     except IsADirectoryError:
         raise InputError(f"{path}: is a directory, expected a target .toml file") from None
     except PermissionError:
         raise InputError(f"{path}: cannot be read (permission denied)") from None
+    if len(raw) > MAX_TARGET_BYTES:
+        raise InputError(f"{path}: larger than {MAX_TARGET_BYTES // 2**20} MiB: a target file is a "
+                         "few kilobytes of TOML (is this the right file?)")
     return parse_target(raw, source=str(path))
 
 
@@ -291,6 +395,23 @@ def _check_consistency(t: Target, source: str) -> None:
             if (rate.per_year is None) == (rate.halving_years is None):
                 raise bad(f"roadmap.rates.{comp}", "give exactly one of per_year (fraction of the "
                           "error removed per year, 0 <= f < 1) or halving_years (> 0)")
+    sw = t.sweep
+    if sw.code == "repetition" and "bases" in sw.model_fields_set and sw.bases != ("z",):
+        raise bad("sweep.bases", "the repetition-code memory exists in basis 'z' only: set bases = "
+                  "[\"z\"] or leave the key out")
+    for d in sw.distances:
+        problem = size_problem(code=sw.code, distance=d,
+                               rounds=sw.rounds if sw.rounds is not None else d)
+        if problem is not None:
+            key = "sweep.rounds" if sw.rounds is not None else "sweep.distances"
+            raise bad(key, problem + ("" if sw.rounds is not None else " (rounds default to the distance)"))
+    num_points = len(set(sw.joint_scales) | {1.0}) + len(t.components) * sum(
+        1 for s in sw.component_scales if s != 1.0)
+    num_tasks = num_points * len(sw.distances) * (1 if sw.code == "repetition" else len(sw.bases))
+    if num_tasks > MAX_TASKS:
+        raise bad("sweep", f"the grid has {num_tasks:,} tasks ({num_points} scale points x "
+                  f"{len(sw.distances)} distances x bases): at most {MAX_TASKS:,} are allowed; use "
+                  "fewer scale factors, components or distances")
     if 2 * min(t.sweep.distances) ** 2 - 1 > t.goal.max_qubits and t.sweep.code == "surface":
         raise bad("goal.max_qubits", f"{t.goal.max_qubits} is smaller than the smallest swept code "
                   f"(d={min(t.sweep.distances)} needs {2 * min(t.sweep.distances) ** 2 - 1} qubits)")
@@ -320,13 +441,18 @@ def _valid_keys(section: str) -> list[str]:
 def _describe(exc: ValidationError, doc: dict[str, Any], source: str) -> str:
     errors = exc.errors()
     # a typo in a key name explains the rest (a "missing" twin, usually): report it first
-    err = next((e for e in errors if e["type"] == "extra_forbidden"), errors[0])
+    err = next((e for e in errors if e["type"] == "extra_forbidden" or e["loc"][-1:] == ("[key]",)),
+               errors[0])
     loc = [str(p) for p in err["loc"]]
     # pydantic adds the union/literal branch name to locations ("int", "literal['z','x']", ...)
     loc = [p for p in loc if not p.startswith(("literal[", "function-", "constrained-"))
            and p not in ("int", "float", "str", "bool", "none", "date")]
     kind = err["type"]
-    path = ".".join(loc)
+    if loc and loc[-1] == "[key]":
+        # a key of a table keyed by component ([costs], [roadmap.rates]) is not a component
+        loc, kind = loc[:-1], "extra_forbidden"
+    # a list element as key[i] (pydantic gives the index as one more path part)
+    path = "".join(p if not i else (f"[{p}]" if p.isdigit() else f".{p}") for i, p in enumerate(loc))
     if kind == "extra_forbidden":
         section, key = ".".join(loc[:-1]), loc[-1]
         valid = _valid_keys(section)
@@ -337,17 +463,20 @@ def _describe(exc: ValidationError, doc: dict[str, Any], source: str) -> str:
     if kind == "missing":
         return f"{source}: {path}: missing (required)"
     got = _lookup(doc, err["loc"])
-    got_txt = f" (got {got!r})" if got is not _MISSING else ""
-    msg = err["msg"]
-    if kind in ("literal_error", "enum"):
-        msg = msg.replace("Input should be", "must be")
-    elif kind.startswith(("greater", "less")):
-        msg = msg.replace("Input should be", "must be")
-    elif kind.endswith("_type") or kind.endswith("_parsing"):
-        msg = msg.replace("Input should be", "must be")
-    elif kind == "value_error":
+    got_txt = f" (got {_short_repr(got)})" if got is not _MISSING else ""
+    msg = err["msg"].replace("Input should be", "must be")
+    if kind == "value_error":
         msg = msg.removeprefix("Value error, ")
     return f"{source}: {path}: {msg}{got_txt}"
+
+
+def _short_repr(value: Any, limit: int = 60) -> str:
+    """The offending value as TOML-ish text, cut to ``limit`` characters (a huge list or a long
+    string is named, not echoed)."""
+    if isinstance(value, _dt.date | _dt.datetime | _dt.time):
+        return value.isoformat()
+    text = repr(value)
+    return text if len(text) <= limit else text[: limit - 3] + "..."
 
 
 _MISSING = object()

@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING
 
 import sinter
 from rich.console import Console
+import rich.markup
 from rich.progress import BarColumn, Progress, TaskProgressColumn, TextColumn, TimeRemainingColumn
 
 from planner.errors import InputError
@@ -220,7 +221,7 @@ def run_sweep(tasks: Sequence[sinter.Task], *, store: SampleStore, rule: Stoppin
                             complete=True, shard_file=None, totals=_totals(have, ids))
     console.print(f"sampling {len(items)} of {len(ids)} tasks{where} until {rule.max_errors:,} "
                   f"errors or {rule.max_shots:,} shots each ({len(ids) - len(items)} already "
-                  f"there) -> {out_dir_of(store)}")
+                  f"there) -> {rich.markup.escape(str(out_dir_of(store)))}")
     counts = {"shots": 0, "errors": 0, "chunks": 0}
     shard_name = sharded_name(index=shard[0], count=shard[1]) if shard else None
     with store.writer(shard_name) as writer, SweepProgress(items, rule, console) as bar:
@@ -243,7 +244,7 @@ def run_sweep(tasks: Sequence[sinter.Task], *, store: SampleStore, rule: Stoppin
     complete = all(remaining(after.get(sid), rule) == (0, 0) for sid in ids)
     wall = time.monotonic() - t0
     console.print(f"sampled {counts['shots']:,} shots ({counts['errors']:,} errors) in "
-                  f"{counts['chunks']} chunks, {wall:.1f} s -> {shard_file}"
+                  f"{counts['chunks']} chunks, {wall:.1f} s -> {rich.markup.escape(str(shard_file))}"
                   + ("" if complete else "; some tasks are not yet complete: run again to top up"))
     return SweepSummary(tasks=len(ids), already_done=len(ids) - len(items), sampled_tasks=len(items),
                         new_shots=counts["shots"], new_errors=counts["errors"],

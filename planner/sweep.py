@@ -117,10 +117,43 @@ def tasks_for_scales(target: Target, scales: Mapping[str, float], *, distances: 
     return tasks
 
 
+def check_scale_points(target: Target) -> None:
+    """Raise :class:`InputError` naming ``sweep.joint_scales`` or ``sweep.component_scales`` if a
+    scale point pushes a component past its meaningful range (fully mixing), with the largest
+    factor that component allows. Builds no circuit."""
+    today = NoiseModel.from_target(target)
+    for point in scale_points(target):
+        try:
+            today.with_scales(point.scales())
+        except ValueError as exc:
+            key = "sweep.joint_scales" if point.axis == JOINT else "sweep.component_scales"
+            axis = "every component" if point.axis == JOINT else point.axis
+            most = _largest_valid_factor(today, point)
+            raise InputError(f"{target.source}: {key}: {point.factor:g} (on {axis}) is not allowed: "
+                             f"{exc}; factors up to {most:.4g} are allowed here") from None
+
+
+def _largest_valid_factor(model: NoiseModel, point: ScalePoint) -> float:
+    """Largest factor on ``point``'s axis that keeps the model valid (bisection; 0 always is)."""
+    def ok(f: float) -> bool:
+        try:
+            model.with_scales(ScalePoint(axis=point.axis, factor=f).scales())
+        except ValueError:
+            return False
+        return True
+
+    low, high = 0.0, point.factor
+    for _ in range(60):
+        mid = (low + high) / 2
+        low, high = (mid, high) if ok(mid) else (low, mid)
+    return low
+
+
 def plan_sweep(target: Target, budget: str = "quick") -> SweepPlan:
     """Every task of the target's grid, largest circuits first, and the budget's stopping rule."""
     if budget not in BUDGETS:
         raise InputError(f"--budget: {budget!r} is not a budget; allowed: {', '.join(BUDGETS)}")
+    check_scale_points(target)
     points = scale_points(target)
     tasks: list[sinter.Task] = []
     for point in points:

@@ -24,14 +24,14 @@ from rich.console import Console
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.config import COMPONENTS, EXAMPLE_TOML, parse_target
+from planner.config import EXAMPLE_TOML, parse_target
 from planner.errors import InputError
 from planner.fits import Interval
 from planner.planning import answer_all
 from planner.planning.calculator import CalculatorAnswer
 from planner.planning.roadmap import build_roadmap, years_to_date
 from planner.planning.synthetic import shot_rate, synthetic_stats
-from planner.planning.verify import Verification, compare, operating_points, verify_distances
+from planner.planning.verify import compare, operating_points, verify_distances
 from planner.reports import files, html, plots, tables, text
 
 W = {"gate_1q": 0.02, "gate_2q": 0.2, "readout": 0.08, "reset": 0.02, "idle": 0.1, "idle_measure": 0.05}

@@ -5,6 +5,7 @@ Commands parse, call the library, render. No planning logic lives here.
 
 from __future__ import annotations
 
+import contextlib
 import sys
 from typing import Any
 
@@ -19,6 +20,7 @@ except ImportError:  # pragma: no cover - older typer on top of click
     class NoArgsIsHelpError(UsageError):  # type: ignore[no-redef]
         pass
 
+from planner.cli._common import printable
 from planner.cli import (
     ask,
     circuit,
@@ -41,21 +43,40 @@ class _OneLineErrors(TyperGroup):
     def main(self, *args: Any, standalone_mode: bool = True, **kwargs: Any) -> Any:
         if not standalone_mode:
             return super().main(*args, standalone_mode=False, **kwargs)
+        argv = list(args[0] if args else kwargs.get("args") or sys.argv[1:])
+        if len(argv) == 1 and self._needs_arguments(argv[0]):
+            self._help_to_stderr(argv[0], prog_name=kwargs.get("prog_name") or self.name or "planner")
+            sys.exit(2)
         try:
             rv = super().main(*args, standalone_mode=False, **kwargs)
-        except NoArgsIsHelpError:  # the help screen is already printed
+        except NoArgsIsHelpError:  # plain `planner`: the overview, already printed on stdout
             sys.exit(0)
         except UsageError as exc:
             where = exc.ctx.command_path if exc.ctx is not None else "planner"
-            print(f"planner: error: {where}: {exc.format_message()}", file=sys.stderr)
+            print(f"planner: error: {where}: {printable(exc.format_message())}", file=sys.stderr)
             sys.exit(exc.exit_code)
         except ClickException as exc:
-            print(f"planner: error: {exc.format_message()}", file=sys.stderr)
+            print(f"planner: error: {printable(exc.format_message())}", file=sys.stderr)
             sys.exit(exc.exit_code)
         except typer.Abort:
             print("planner: aborted", file=sys.stderr)
             sys.exit(1)
         sys.exit(rv if isinstance(rv, int) else 0)
+
+    def _needs_arguments(self, name: str) -> bool:
+        command = self.commands.get(name)
+        return command is not None and bool(getattr(command, "no_args_is_help", False))
+
+    def _help_to_stderr(self, name: str, *, prog_name: str) -> None:
+        """A command called with nothing is a usage error (exit 2), not a request for help: its
+        help goes to stderr so that scripts and pipes see the failure."""
+        command = self.commands[name]
+        with self.make_context(prog_name, [name], resilient_parsing=True) as parent:
+            ctx = command.make_context(name, [], parent=parent, resilient_parsing=True)
+            with contextlib.redirect_stdout(sys.stderr):
+                text = ctx.get_help()  # rich prints it (to the redirected stdout) and returns ""
+            if text:
+                print(text, file=sys.stderr)
 
 
 app = typer.Typer(

@@ -5,9 +5,11 @@ from __future__ import annotations
 import functools
 import os
 import sys
+import unicodedata
 from collections.abc import Callable
 from typing import Any, TypeVar
 
+import rich.markup
 import typer
 from rich.console import Console
 
@@ -32,9 +34,37 @@ def stdout_console() -> Console:
     return console
 
 
+def printable(text: object) -> str:
+    r"""``text`` with control and format characters (a terminal escape sequence, a newline, a
+    right-to-left override) written as Python escapes, so printing it cannot steer the terminal
+    or break a one-line message.
+
+    >>> printable("Chip\x1b[31m red\nline")
+    'Chip\\x1b[31m red\\nline'
+    """
+    out = []
+    for ch in str(text):
+        if unicodedata.category(ch) in ("Cc", "Cf"):
+            out.append(ch.encode("unicode_escape").decode("ascii"))
+        else:
+            out.append(ch)
+    return "".join(out)
+
+
+def plain(text: object) -> str:
+    r"""User text (a device name, a path, an address) for a rich ``print`` that uses markup: it
+    prints as written, never as markup (``"Chip [/]"`` would crash rich, ``"[red]x"`` colour it),
+    and never as control characters.
+
+    >>> plain("Chip [red]x[/]")
+    'Chip \\[red]x\\[/]'
+    """
+    return rich.markup.escape(printable(text))
+
+
 def fail(message: str) -> typer.Exit:
     """Print one line on stderr and return the Exit to raise (code 2)."""
-    print(f"planner: error: {message}", file=sys.stderr)
+    print(f"planner: error: {printable(message)}", file=sys.stderr)
     return typer.Exit(code=EXIT_BAD_INPUT)
 
 

@@ -10,6 +10,7 @@ from typing import Annotated
 import typer
 
 from planner.cli._common import one_line_errors
+from planner.config import MAX_DISTANCE
 from planner.errors import InputError
 
 
@@ -36,7 +37,7 @@ def circuit_command(
         "e.g. --scale gate_2q=0.5; 1 is today, 0 is perfect.", rich_help_panel="Noise")] = None,
 ) -> None:
     from planner.circuits import build_memory_circuit
-    from planner.config import load_target
+    from planner.config import load_target, size_problem
     from planner.noise import NoiseModel
     from planner.sweep import bases_for, rounds_for
 
@@ -44,11 +45,16 @@ def circuit_command(
     d = _parse_int(distance, option="--distance", allowed="an odd integer >= 3", missing_ok=False)
     if d is None or d < 3 or d % 2 == 0:
         raise InputError(f"--distance: {distance} is not allowed: give an odd integer >= 3")
+    if d > MAX_DISTANCE:
+        raise InputError(f"--distance: {d} is too large: odd distances from 3 to {MAX_DISTANCE} are allowed")
     r = _parse_int(rounds, option="--rounds", allowed="an integer >= 1", missing_ok=True)
     if r is None:
         r = rounds_for(spec, d)
     elif r < 1:
         raise InputError(f"--rounds: {rounds} is not allowed: give an integer >= 1")
+    problem = size_problem(code=spec.sweep.code, distance=d, rounds=r)
+    if problem is not None:
+        raise InputError(f"{'--rounds' if rounds is not None else '--distance'}: {problem}")
     allowed_bases = bases_for(spec)
     b = allowed_bases[0] if basis is None else basis.strip().lower()
     if b not in allowed_bases:

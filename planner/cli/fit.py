@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 
-from planner.cli._common import one_line_errors, stderr_console, stdout_console
+from planner.cli._common import one_line_errors, plain, stderr_console, stdout_console
 from planner.cli.options import JsonOpt
 
 DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep (holds target.toml and samples/).")]
@@ -34,7 +34,7 @@ def fit_command(directory: DirArg, json: JsonOpt = False) -> None:
 
     # fits.json holds every fitted figure, the model's and the answers' too, as `planner run` writes it
     written = write_fits(answer_all(spec, stats), directory, target=spec)
-    stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {directory}")
+    stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {plain(directory)}")
     if json:
         doc = report.to_json()
         doc["model"] = model.to_json() if model else None

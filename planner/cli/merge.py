@@ -8,7 +8,7 @@ from typing import Annotated, Any
 
 import typer
 
-from planner.cli._common import one_line_errors, stderr_console
+from planner.cli._common import one_line_errors, plain, stderr_console
 from planner.cli.options import QuietOpt
 
 
@@ -63,7 +63,7 @@ def merge_command(
     for message in dict.fromkeys(m for store in stores for m in store.notices):
         print_notice(message)
     where = f" -> {out / 'samples' / result.shard.name}" if result.shard else ""
-    err.print(f"merged {len(stores)} directories into {out}: {result.copied_rows} new chunks "
+    err.print(f"merged {len(stores)} directories into {plain(out)}: {result.copied_rows} new chunks "
               f"({result.copied_shots:,} shots), {result.skipped_rows} already present{where}")
 
 

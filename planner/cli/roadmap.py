@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 
-from planner.cli._common import one_line_errors, stderr_console, stdout_console
+from planner.cli._common import one_line_errors, plain, stderr_console, stdout_console
 from planner.cli.options import JsonOpt
 
 DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep (its target.toml needs a roadmap section).")]
@@ -36,7 +36,7 @@ def roadmap_command(directory: DirArg, json: JsonOpt = False) -> None:
     from planner.reports.files import write_roadmap
 
     written = write_roadmap(answers.roadmap, directory)
-    stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {directory}")
+    stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {plain(directory)}")
     if json:
         typer.echo(json_text(answers.roadmap.to_json()))
         return

@@ -9,7 +9,7 @@ from typing import Annotated
 
 import typer
 
-from planner.cli._common import one_line_errors, stderr_console, stdout_console
+from planner.cli._common import one_line_errors, plain, stderr_console, stdout_console
 from planner.cli.options import (BudgetOpt, OutOpt, PrecisionOpt, QuietOpt, WorkersOpt, check_precision,
                                  default_out_dir)
 
@@ -48,8 +48,8 @@ def run_command(
     rule = f"{plan.rule.max_errors} errors or {plan.rule.max_shots:,} shots per task"
     how = (f"precision {precision:g}" + (f", each task capped at {rule}" if budget else "")
            if precision is not None else f"budget '{plan.budget}' ({rule})")
-    err.print(f"[bold]{spec.device.name}[/]: {len(plan.tasks)} tasks over {len(plan.points)} scale "
-              f"points, {how} -> {out_dir}")
+    err.print(f"[bold]{plain(spec.device.name)}[/]: {len(plan.tasks)} tasks over {len(plan.points)} scale "
+              f"points, {how} -> {plain(out_dir)}")
     sample(plan, target=spec, out_dir=out_dir, budget_given=budget is not None, precision=precision,
            workers=workers, cluster=None, shard=None, console=err)
     store = SampleStore(out_dir)
@@ -64,6 +64,6 @@ def run_command(
     for note in answers.notes:
         con.print(f"note: {note}")
     written = write_all(answers, out_dir=out_dir, target=spec)
-    err.print(f"wrote {len(written)} files under {out_dir} (report.html has it all on one page)")
+    err.print(f"wrote {len(written)} files under {plain(out_dir)} (report.html has it all on one page)")
     err.print(f"done in {time.monotonic() - started:.0f} s. Projections are model-based: check them "
               "against the device before relying on them.")

@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 
-from planner.cli._common import one_line_errors, stderr_console, stdout_console
+from planner.cli._common import one_line_errors, plain, stderr_console, stdout_console
 from planner.cli.options import JsonOpt
 
 DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep.")]
@@ -34,7 +34,7 @@ def sensitivity_command(directory: DirArg, json: JsonOpt = False) -> None:
 
     written = write_sensitivity(answers.sensitivity, directory,
                                 lumped=answers.model.unsampled if answers.model is not None else ())
-    stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {directory}")
+    stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {plain(directory)}")
     if json:
         typer.echo(json_text(answers.sensitivity.to_json()))
         return

@@ -8,7 +8,7 @@ from typing import Annotated, Any
 
 import typer
 
-from planner.cli._common import one_line_errors, stdout_console
+from planner.cli._common import one_line_errors, plain, stdout_console
 from planner.cli.options import JsonOpt, check_precision
 
 
@@ -136,7 +136,7 @@ def status_command(
 
     from rich.table import Table
 
-    title = f"{directory}: {totals['done']}/{totals['tasks']} tasks done"
+    title = f"{plain(directory)}: {totals['done']}/{totals['tasks']} tasks done"
     if budget is not None:
         title += (f" (budget '{budget['name']}': {budget['max_errors']} errors or "
                   f"{budget['max_shots']:,} shots per task)")
@@ -165,7 +165,7 @@ def status_command(
 def _precision_table(rows: Any, targeted: dict[str, Any], precision: float, directory: Path) -> None:
     from rich.table import Table
 
-    table = Table(title=f"{directory}: tasks against a precision target of +-{precision:.0%}",
+    table = Table(title=f"{plain(directory)}: tasks against a precision target of +-{precision:.0%}",
                   caption="width: relative 95% half-width of the task's error rate now, and after the "
                   "plan that brings the tracked answers to the target; CPU: estimated core time of that plan")
     for col in ("task", "shots", "errors", "width now", "planned", "extra shots", "CPU", "state"):
