@@ -127,7 +127,7 @@ MATRIX = [
     case("ask", SAMPLED, "--distance", "4", needle="--distance: 4"),
     case("ask", SAMPLED, "--distance", "5", "--qubits", "100", needle="--qubits"),
     case("ask", "--lambda", "2", "--eps", "1e-3", "--target", "1e-6", needle="--distance"),
-    case("ask", "--lambda", "-1", "--eps", "1e-3", "--distance", "5", "--target", "1e-6", needle="--lambda -1"),
+    case("ask", "--lambda", "-1", "--eps", "1e-3", "--distance", "5", "--target", "1e-6", needle="--lambda: -1"),
     # roadmap
     case("roadmap", MISS, needle="no such out directory"),
     case("roadmap", NOSAMP, needle="no samples"),

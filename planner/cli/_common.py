@@ -68,6 +68,15 @@ def fail(message: str) -> typer.Exit:
     return typer.Exit(code=EXIT_BAD_INPUT)
 
 
+#: Library parameter names (``InputError.field``) and the options that set them.
+OPTION_OF_FIELD: dict[str, str] = {
+    "budget": "--budget", "workers": "--workers", "precision": "--precision", "shard": "--shard",
+    "cluster": "--cluster", "out_dir": "--out", "distance": "--distance", "qubits": "--qubits",
+    "eps_target": "--target", "suppression": "--lambda", "eps": "--eps", "rounds": "--rounds",
+    "basis": "--basis", "scales": "--scale", "max_cpu": "--max-cpu",
+}
+
+
 def one_line_errors(func: F) -> F:
     """Turn :class:`InputError` (and file-system errors) into one line on stderr and exit 2."""
 
@@ -76,7 +85,7 @@ def one_line_errors(func: F) -> F:
         try:
             return func(*args, **kwargs)
         except InputError as exc:
-            raise fail(str(exc)) from None
+            raise fail(exc.describe(options=OPTION_OF_FIELD)) from None
         except (FileNotFoundError, IsADirectoryError, NotADirectoryError, PermissionError) as exc:
             where = getattr(exc, "filename", None) or ""
             raise fail(f"{where}: {exc.strerror or exc}") from None
