@@ -29,7 +29,9 @@ def run_command(
     quiet: QuietOpt = False,
 ) -> None:
     from planner.config import load_target
+    from planner.sampling import check_workers
 
+    check_workers(workers)
     spec = load_target(target)  # validate before anything heavy is imported
     check_precision(precision)
     from planner.planning import answer_all

@@ -41,10 +41,11 @@ def sweep_command(
 ) -> None:
     from planner.config import load_target
     from planner.errors import InputError
-    from planner.sampling import parse_shard
+    from planner.sampling import check_workers, parse_shard
 
     # check option syntax before anything slow happens
     shard_kn = parse_shard(shard) if shard is not None else None
+    check_workers(workers)
     if cluster is not None:
         from planner.cluster import parse_cluster
 
