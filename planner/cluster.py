@@ -251,8 +251,17 @@ def _probe_scheduler(address: str, timeout: float) -> None:
     scheduler answers. (distributed's own connect waits forever on a port that accepts a TCP
     connection and then says nothing.)"""
     import asyncio
+    import socket
 
     from distributed.comm import connect as comm_connect
+
+    m = _ADDRESS.match(address)
+    if m and (m["scheme"] or "tcp") in ("tcp", "tls", "ws", "wss"):
+        try:  # a plain TCP connection first: "nothing listens" and "wrong listener" differ
+            socket.create_connection((m["host"].strip("[]"), int(m["port"])), timeout=timeout).close()
+        except OSError as exc:
+            raise ClusterError(f"--cluster: cannot reach a dask scheduler at {address} "
+                               f"({exc.strerror or exc}); check that it runs and the address") from None
 
     async def ask() -> Any:
         comm = await comm_connect(address, timeout=timeout)
