@@ -353,7 +353,7 @@ class WorkerWatch:
         self.running = count.running
         if count.running:
             if self._since is not None:
-                self.console.print(f"dask workers are back: {count.running} running")
+                self.console.print(f"dask workers are back: {count.running} running", soft_wrap=True)
             self._since = None
             return count.running
         if self._since is None:
@@ -367,7 +367,7 @@ class WorkerWatch:
         if now - self._noted >= NOTE_EVERY_S:
             self._noted = now
             self.console.print(f"waiting for dask workers at {self.where}: {count.describe()} "
-                               f"(giving up in {self.timeout - waited:.0f} s)")
+                               f"(giving up in {self.timeout - waited:.0f} s)", soft_wrap=True)
         return 0
 
 
@@ -391,7 +391,7 @@ def connect(spec: ClusterSpec, console: Console) -> Iterator[Any]:
     try:
         if spec.local_workers is not None:
             console.print(f"starting a local dask cluster: {spec.local_workers} worker processes, "
-                          "1 thread each")
+                          "1 thread each", soft_wrap=True)
             # the worker processes load planner.orphans: they exit when this process dies
             with LocalCluster(n_workers=spec.local_workers, threads_per_worker=1, processes=True,
                               dashboard_address=None, silence_logs=level,

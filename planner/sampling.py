@@ -287,7 +287,7 @@ def run_sweep(tasks: Sequence[sinter.Task], *, store: SampleStore, rule: Stoppin
         where = f" (shard {shard[0]}/{shard[1]})" if shard else ""
         if not items:
             console.print(f"all {len(ids)} tasks{where} already meet the stopping rule "
-                          f"({rule.max_errors} errors or {rule.max_shots:,} shots): nothing to sample")
+                          f"({rule.max_errors} errors or {rule.max_shots:,} shots): nothing to sample", soft_wrap=True)
             return SweepSummary(tasks=len(ids), already_done=len(ids), sampled_tasks=0, new_shots=0,
                                 new_errors=0, new_chunks=0, wall_seconds=time.monotonic() - t0,
                                 complete=True, shard_file=None, totals=_totals(have, ids))
@@ -295,7 +295,7 @@ def run_sweep(tasks: Sequence[sinter.Task], *, store: SampleStore, rule: Stoppin
             client = stack.enter_context(_connect(spec, console))  # started only when needed
         console.print(f"sampling {len(items)} of {len(ids)} tasks{where} until {rule.max_errors:,} "
                       f"errors or {rule.max_shots:,} shots each ({len(ids) - len(items)} already "
-                      f"there) -> {out}")
+                      f"there) -> {out}", soft_wrap=True)
         counts = {"shots": 0, "errors": 0, "chunks": 0}
         shard_name = sharded_name(index=shard[0], count=shard[1]) if shard else None
         with store.writer(shard_name) as writer, SweepProgress(items, rule, console) as bar:
@@ -319,7 +319,7 @@ def run_sweep(tasks: Sequence[sinter.Task], *, store: SampleStore, rule: Stoppin
     wall = time.monotonic() - t0
     console.print(f"sampled {counts['shots']:,} shots ({counts['errors']:,} errors) in "
                   f"{counts['chunks']} chunks, {wall:.1f} s -> {shard_file}"
-                  + ("" if complete else "; some tasks are not yet complete: run again to top up"))
+                  + ("" if complete else "; some tasks are not yet complete: run again to top up"), soft_wrap=True)
     return SweepSummary(tasks=len(ids), already_done=len(ids) - len(items), sampled_tasks=len(items),
                         new_shots=counts["shots"], new_errors=counts["errors"],
                         new_chunks=counts["chunks"], wall_seconds=wall, complete=complete,

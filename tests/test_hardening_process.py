@@ -287,9 +287,17 @@ def _start_long_sweep(tmp_path: Path, *extra: str) -> tuple[subprocess.Popen, Pa
     proc = subprocess.Popen([*PLANNER, "sweep", str(target), "--out", str(out), "--budget",
                              "overnight", *extra], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
                             start_new_session=True)
-    assert _wait_for(lambda: _rows(out) >= 2 or proc.poll() is not None, limit_s=240), "no rows"
-    assert proc.poll() is None, proc.stderr.read().decode()
+    if not _wait_for(lambda: _rows(out) >= 2 or proc.poll() is not None, limit_s=240) \
+            or proc.poll() is not None:
+        _stop(proc)
+        pytest.fail(f"the sweep did not get going: {proc.communicate()[1].decode()}")
     return proc, out
+
+
+def _stop(proc: subprocess.Popen) -> None:
+    if proc.poll() is None:
+        os.killpg(proc.pid, signal.SIGKILL)
+        proc.wait()
 
 
 def _alive(procs: list[psutil.Process]) -> list[psutil.Process]:
@@ -315,27 +323,28 @@ def test_killing_the_sweep_leaves_no_worker_behind(tmp_path: Path, sig: int, eng
     eof = threading.Event()
     reader = threading.Thread(target=lambda: (proc.stdout.read(), eof.set()), daemon=True)
     reader.start()
-    try:
-        os.kill(proc.pid, sig)  # the main process only, as `kill` or the OOM killer would
-        proc.wait(timeout=60)
-        assert _wait_for(lambda: not _alive(workers), limit_s=60), _alive(workers)
-        assert eof.wait(timeout=60), "stdout still held open"
-    finally:
-        for p in _alive(workers):
-            p.kill()
-        os.killpg(proc.pid, signal.SIGKILL) if proc.poll() is None else None
+    with proc:
+        try:
+            os.kill(proc.pid, sig)  # the main process only, as `kill` or the OOM killer would
+            proc.wait(timeout=60)
+            assert _wait_for(lambda: not _alive(workers), limit_s=60), _alive(workers)
+            assert eof.wait(timeout=60), "stdout still held open"
+        finally:
+            for p in _alive(workers):
+                p.kill()
+            _stop(proc)
 
 
 @pytest.mark.slow
 def test_ctrl_c_on_a_cluster_sweep_prints_one_line_and_exits_130(tmp_path: Path) -> None:
     proc, out = _start_long_sweep(tmp_path, "--cluster", "local:2")
     workers = psutil.Process(proc.pid).children(recursive=True)
-    try:
-        os.killpg(proc.pid, signal.SIGINT)  # Ctrl-C reaches the whole foreground group
-        _, err = proc.communicate(timeout=120)
-    finally:
-        if proc.poll() is None:
-            os.killpg(proc.pid, signal.SIGKILL)
+    with proc:
+        try:
+            os.killpg(proc.pid, signal.SIGINT)  # Ctrl-C reaches the whole foreground group
+            _, err = proc.communicate(timeout=120)
+        finally:
+            _stop(proc)
     text = err.decode()
     assert proc.returncode == 130, text
     lines = text.strip().splitlines()
