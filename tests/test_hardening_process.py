@@ -414,3 +414,41 @@ def test_progress_in_a_log_is_whole_lines(monkeypatch: pytest.MonkeyPatch) -> No
     assert len(lines) == 4  # one per update and one at the end, none cut at 40 columns
     assert all(line.startswith("sampling: ") and line.endswith("tasks left") for line in lines)
     assert lines[-1].startswith("sampling: 50% of the budget, 1,500 shots, 3 errors")
+
+
+GUARDED_PARENT = """
+import multiprocessing, sys, time
+
+def busy(token, seconds):
+    time.sleep(seconds)  # a worker deep in a long batch: it would not notice its parent's death
+
+if __name__ == "__main__":
+    from planner.orphans import GuardToken
+    token = GuardToken() if sys.argv[1] == "guarded" else None
+    child = multiprocessing.get_context("spawn").Process(target=busy, args=(token, 600))
+    child.start()
+    print(child.pid, flush=True)
+    time.sleep(600)
+"""
+
+def test_a_busy_worker_exits_when_its_parent_is_killed(tmp_path: Path) -> None:
+    """The hook planner puts in sinter's spawned workers (a pickled token, as in
+    ``custom_decoders``): a worker busy for 10 minutes still exits once its parent is SIGKILLed.
+    Without the guard it sleeps on (checked by hand: alive 40 s later); the bound below only
+    stops a hang."""
+    script = GUARDED_PARENT
+    path = tmp_path / "parent.py"  # a file: spawned children import their target from it
+    path.write_text(script)
+    with subprocess.Popen([sys.executable, str(path), "guarded"], stdout=subprocess.PIPE,
+                          cwd=tmp_path, start_new_session=True) as parent:
+        try:
+            pids = [int(x) for x in parent.stdout.readline().split()]
+            assert pids
+            workers = [psutil.Process(pid) for pid in pids]
+            os.kill(parent.pid, signal.SIGKILL)
+            parent.wait()
+            assert _wait_for(lambda: not _alive(workers), limit_s=60), _alive(workers)
+        finally:
+            for p in _alive(workers):
+                p.kill()
+            _stop(parent)
