@@ -263,8 +263,12 @@ def _probe_scheduler(address: str, timeout: float) -> None:
             raise ClusterError(f"--cluster: cannot reach a dask scheduler at {address} "
                                f"({exc.strerror or exc}); check that it runs and the address") from None
 
+    from distributed.security import Security
+
+    args = Security().get_connection_args("client")  # TLS settings from the dask config, if any
+
     async def ask() -> Any:
-        comm = await comm_connect(address, timeout=timeout)
+        comm = await comm_connect(address, timeout=timeout, **args)
         try:
             await comm.write({"op": "identity", "reply": True})
             return await comm.read()
@@ -387,7 +391,7 @@ def connect(spec: ClusterSpec, console: Console) -> Iterator[Any]:
     loggers = [logging.getLogger(n) for n in ("distributed", "tornado", "asyncio")]
     before = [lg.level for lg in loggers]
     for lg in loggers:
-        lg.setLevel(max(level, lg.level) if lg.level else level)
+        lg.setLevel(level)
     try:
         if spec.local_workers is not None:
             console.print(f"starting a local dask cluster: {spec.local_workers} worker processes, "
@@ -452,8 +456,10 @@ def drive_chunks(client: Any, items: Sequence[WorkItem], sink: ChunkSink, *,
     futures: dict[str, tuple[Any, _Progress, int]] = {}  # chunk id -> (future, task, attempt)
     by_key: dict[str, str] = {}  # future key -> chunk id
     written: set[str] = set()
-    # bind to this client's loop: another Client may be the process default (tests, notebooks)
-    done = as_completed(loop=client.loop, with_results=False)
+    # bind to this client's loop: another Client may be the process default (tests, notebooks).
+    # Results are fetched as each chunk finishes (a few numbers each): fetching them later could
+    # wait forever when the worker holding one is gone and no worker is left to recompute it
+    done = as_completed(loop=client.loop, with_results=True, raise_errors=False)
 
     def submit(tp: _Progress, shots: int, chunk_id: str, attempt: int) -> None:
         fut = client.submit(sample_chunk, chunk_id=chunk_id, strong_id=tp.item.strong_id,
@@ -480,23 +486,21 @@ def drive_chunks(client: Any, items: Sequence[WorkItem], sink: ChunkSink, *,
             submit(tp, tp.next_chunk_shots(cap), new_chunk_id(), 0)
             slots -= 1
 
-    def finished(fut: Any) -> None:
+    def finished(fut: Any, res: Any) -> None:
         chunk_id = by_key.pop(fut.key, None)
         if chunk_id is None or chunk_id not in futures:  # cancelled and forgotten already
             return
         _, tp, attempt = futures.pop(chunk_id)
         shots = tp.in_flight.pop(chunk_id)
+        fut.release()
         if fut.status == "cancelled":
             return
-        try:
-            res: ChunkResult = fut.result()
-        except Exception as exc:  # noqa: BLE001 - lost workers surface here; anything else re-raises
-            if type(exc).__name__ in ("KilledWorker", "CommClosedError") and attempt < RESUBMITS:
+        if isinstance(res, BaseException):
+            # lost workers surface here: rerun the chunk (same id); anything else re-raises
+            if type(res).__name__ in ("KilledWorker", "CommClosedError") and attempt < RESUBMITS:
                 submit(tp, shots, chunk_id, attempt + 1)
                 return
-            raise
-        finally:
-            fut.release()
+            raise res
         if res.chunk_id not in written:  # a chunk that somehow came back twice counts once
             written.add(res.chunk_id)
             tp.shots += res.shots
@@ -523,8 +527,8 @@ def drive_chunks(client: Any, items: Sequence[WorkItem], sink: ChunkSink, *,
                 if not done.has_ready():
                     done.thread_condition.wait(timeout=0.25)
             batch = done.next_batch(block=False) if done.has_ready() else []
-            for fut in batch:
-                finished(fut)
+            for fut, res in batch:
+                finished(fut, res)
             watch.check()  # says "waiting for workers"; raises once it has waited too long
             if batch:
                 fill()

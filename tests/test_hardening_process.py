@@ -452,3 +452,18 @@ def test_a_busy_worker_exits_when_its_parent_is_killed(tmp_path: Path) -> None:
             for p in _alive(workers):
                 p.kill()
             _stop(parent)
+
+
+def test_local_cluster_workers_carry_the_guard() -> None:
+    """The worker processes of ``--cluster local:N`` load planner.orphans: they watch their
+    parent and leave Ctrl-C to the sweep (no traceback from each worker)."""
+    import threading as th
+
+    def probe() -> tuple[list[str], object]:
+        return ([t.name for t in th.enumerate() if t.name == "planner-parent-watch"],
+                signal.getsignal(signal.SIGINT))
+
+    with connect(parse_cluster("local:1"), quiet()) as client:
+        (threads, sigint), = client.run(probe).values()
+    assert threads == ["planner-parent-watch"]
+    assert sigint == signal.SIG_IGN
