@@ -287,7 +287,8 @@ def run_sweep(tasks: Sequence[sinter.Task], *, store: SampleStore, rule: Stoppin
         where = f" (shard {shard[0]}/{shard[1]})" if shard else ""
         if not items:
             console.print(f"all {len(ids)} tasks{where} already meet the stopping rule "
-                          f"({rule.max_errors} errors or {rule.max_shots:,} shots): nothing to sample", soft_wrap=True)
+                          f"({rule.max_errors} errors or {rule.max_shots:,} shots): nothing to sample",
+                          soft_wrap=True)
             return SweepSummary(tasks=len(ids), already_done=len(ids), sampled_tasks=0, new_shots=0,
                                 new_errors=0, new_chunks=0, wall_seconds=time.monotonic() - t0,
                                 complete=True, shard_file=None, totals=_totals(have, ids))
@@ -319,7 +320,8 @@ def run_sweep(tasks: Sequence[sinter.Task], *, store: SampleStore, rule: Stoppin
     wall = time.monotonic() - t0
     console.print(f"sampled {counts['shots']:,} shots ({counts['errors']:,} errors) in "
                   f"{counts['chunks']} chunks, {wall:.1f} s -> {shard_file}"
-                  + ("" if complete else "; some tasks are not yet complete: run again to top up"), soft_wrap=True)
+                  + ("" if complete else "; some tasks are not yet complete: run again to top up"),
+                  soft_wrap=True)
     return SweepSummary(tasks=len(ids), already_done=len(ids) - len(items), sampled_tasks=len(items),
                         new_shots=counts["shots"], new_errors=counts["errors"],
                         new_chunks=counts["chunks"], wall_seconds=wall, complete=complete,

@@ -14,7 +14,9 @@ from planner.cli.options import (BudgetOpt, OutOpt, PrecisionOpt, QuietOpt, Work
 
 ClusterOpt = Annotated[str | None, typer.Option(
     "--cluster", metavar="ADDRESS", help="Sample on dask: a scheduler address (tcp://host:8786) "
-    "or local:N for a local cluster of N single-threaded worker processes.",
+    "or local:N for a local cluster of N single-threaded worker processes. Waits: "
+    "PLANNER_CLUSTER_TIMEOUT (s, default 30), PLANNER_WORKER_TIMEOUT (s, default 300); dask's "
+    "own log lines: PLANNER_DASK_LOG_LEVEL (default critical).",
     rich_help_panel="Sampling")]
 ShardOpt = Annotated[str | None, typer.Option(
     "--shard", metavar="K/N", help="Take job K's share (1..N) of the tasks and write "
