@@ -467,3 +467,23 @@ def test_local_cluster_workers_carry_the_guard() -> None:
         (threads, sigint), = client.run(probe).values()
     assert threads == ["planner-parent-watch"]
     assert sigint == signal.SIG_IGN
+
+
+def test_a_worker_paused_by_its_memory_limit_is_named_and_not_waited_on_forever(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    import dask
+    from distributed import LocalCluster
+
+    monkeypatch.setenv("PLANNER_WORKER_TIMEOUT", "3")
+    console = Console(stderr=True, record=True, width=300)
+    # pause at 1% of a 1 GiB limit: a Python process with dask loaded is always above that
+    memory = {"distributed.worker.memory.pause": 0.01, "distributed.worker.memory.terminate": False,
+              "distributed.worker.memory.target": False, "distributed.worker.memory.spill": False}
+    with dask.config.set(memory), LocalCluster(n_workers=1, threads_per_worker=1, processes=True,
+                                               memory_limit="1GiB", dashboard_address=None,
+                                               silence_logs=logging.CRITICAL) as cluster:
+        with pytest.raises(ClusterError, match="1 worker\\(s\\) paused by their memory limit"):
+            run_sweep([rep_task(d=3)], store=SampleStore(tmp_path),
+                      rule=StoppingRule(max_errors=10**9, max_shots=10_000),
+                      cluster=cluster.scheduler_address, console=console)
+    assert "waiting for dask workers" in console.export_text()
