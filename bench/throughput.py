@@ -17,7 +17,7 @@ target (>= 0.95): "meets" when every round's ratio is at least the target, "belo
 round's is under it, else "undecided" (the spread straddles the target: run more rounds, or on a
 quieter machine).
 
-    .venv/bin/python bench/throughput.py                       # 5 rounds, ~4 minutes on 2 cores
+    .venv/bin/python bench/throughput.py                       # 5 rounds, ~7 minutes on 2 cores
     .venv/bin/python bench/throughput.py --rounds 2 --shots 200000 --engines sinter,dask-warm
 """
 
