@@ -8,14 +8,32 @@ inside the functions (it is slow to import and only reports need it).
 
 from __future__ import annotations
 
-import io
 import math
-from typing import Any
+from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from planner.config import COMPONENTS, Target
 from planner.fits import CONFIDENCE, FitReport
+from planner.reports.formats import estimate, percent
+from planner.reports.plotkit import (  # noqa: F401  (png_bytes, wrap, nice_log_ticks: re-exported)
+    errbar,
+    figure,
+    fit_titles,
+    fixed_ticks,
+    nice_log_ticks,
+    plain_log,
+    png_bytes,
+    shade,
+    title,
+    wrap,
+)
+
+if TYPE_CHECKING:
+    from matplotlib.figure import Figure
+
+    from planner.planning import Answers, ResponseModel, Roadmap, Sensitivity
 
 #: colours of the axes of the sweep (own choice: distinct in print and for common colour blindness)
 COLOURS = {"joint": "#1d3557", "gate_1q": "#e76f51", "gate_2q": "#2a9d8f", "readout": "#8338ec",
@@ -24,155 +42,13 @@ GOAL_COLOUR = "#b5179e"
 THRESHOLD_COLOUR = "#9d0208"
 #: fitted lines are extended towards the goal at most to this distance
 MAX_PLOT_DISTANCE = 101
-DPI = 110
 CL = f"{CONFIDENCE:.0%}"
-
-
-def _figure(width: float, height: float, *, ncols: int = 1, nrows: int = 1, **kw: Any) -> tuple[Any, Any]:
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=(width, height), dpi=DPI, layout="constrained")
-    axes = fig.subplots(nrows=nrows, ncols=ncols, squeeze=False, **kw)
-    return fig, axes
-
-
-def wrap(text: str, *, width_in: float, fontsize: float = 12.0) -> str:
-    """``text`` broken into lines that fit ``width_in`` inches at ``fontsize`` points (a
-    conservative 0.62 em per character), so no title is cut at the figure's edge.
-
-    >>> t = wrap("Error budget: Lambda today 2.111 [2.081, 2.15] (error bars: 95% bootstrap)", width_in=4.0, fontsize=10)
-    >>> print(t)
-    Error budget: Lambda today
-    2.111 [2.081, 2.15] (error bars: 95%
-    bootstrap)
-    """
-    # a value and its interval "best [low, high]" are never split over two lines
-    return _wrap_chars(text, max(int(0.92 * width_in * 72 / (0.62 * fontsize)), 20))
-
-
-def _title(ax: Any, text: str, *, fontsize: float = 12.0) -> None:
-    """A title wrapped to its column's share of the figure (:func:`fit_titles` makes sure)."""
-    fig = ax.get_figure()
-    ncols = ax.get_subplotspec().get_gridspec().ncols if ax.get_subplotspec() is not None else 1
-    ax.set_title(wrap(text, width_in=fig.get_figwidth() / ncols, fontsize=fontsize), fontsize=fontsize)
-
-
-def fit_titles(fig: Any, *, tries: int = 4) -> Any:
-    """Wrap the titles (and the figure's suptitle) until each lies inside the figure once laid
-    out: a title is centred over its axes, which long tick labels push aside, so only the drawn
-    extent tells whether it is cut at the edge."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-
-    canvas = FigureCanvasAgg(fig)
-    titles = [ax.title for ax in fig.axes] + ([fig._suptitle] if getattr(fig, "_suptitle", None) else [])
-    for _ in range(tries):
-        canvas.draw()
-        renderer = canvas.get_renderer()
-        width = fig.bbox.width
-        changed = False
-        for t in titles:
-            text = t.get_text()
-            if not text:
-                continue
-            bb = t.get_window_extent(renderer)
-            if bb.x0 >= 0 and bb.x1 <= width:
-                continue
-            # room on the narrower side of the title's centre, doubled
-            room = 2 * min((bb.x0 + bb.x1) / 2, width - (bb.x0 + bb.x1) / 2)
-            chars = max(int(max(map(len, text.split("\n"))) * 0.95 * room / bb.width), 12)
-            new = _wrap_chars(text, chars)
-            if new != text:
-                t.set_text(new)
-                changed = True
-        if not changed:
-            break
-    return fig
-
-
-def _wrap_chars(text: str, chars: int) -> str:
-    """``text`` (already wrapped or not) re-wrapped to at most ``chars`` characters a line."""
-    import re
-    import textwrap
-
-    flat = " ".join(text.split())
-    glued = re.sub(r"\S+ \[[^\]]*\]", lambda m: m.group().replace(" ", "\x00"), flat)
-    lines = textwrap.wrap(glued, chars, break_long_words=False, break_on_hyphens=False)
-    return "\n".join(lines).replace("\x00", " ") or text
-
-
-def png_bytes(fig: Any) -> bytes:
-    fit_titles(fig)
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=DPI)
-    return buf.getvalue()
-
-
-def nice_log_ticks(low: float, high: float) -> list[float]:
-    """Tick values for a log axis from ``low`` to ``high`` (both > 0) spanning less than two
-    decades, where matplotlib would label only the powers of ten: the finest of the
-    1..9, 1-1.5-2-3-4-5-7, 1-2-3-5 and 1-2-5 ladders that gives 2 to 8 ticks.
-
-    >>> nice_log_ticks(0.95, 4.5)
-    [1.0, 2.0, 3.0, 4.0]
-    >>> nice_log_ticks(0.25, 1.3)
-    [0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0]
-    """
-    ladders = ((1, 2, 3, 4, 5, 6, 7, 8, 9), (1, 1.5, 2, 3, 4, 5, 7), (1, 2, 3, 5), (1, 2, 5), (1,))
-    for subs in ladders:
-        ticks = [round(m * 10.0 ** k, 12) for k in range(math.floor(math.log10(low)) - 1,
-                                                           math.ceil(math.log10(high)) + 1)
-                 for m in subs if low <= m * 10.0 ** k <= high]
-        if 2 <= len(ticks) <= 8:
-            return ticks
-    return []
-
-
-def _plain_log(ax: Any, *, x: bool = True, y: bool = True) -> None:
-    """Log axes with plain tick labels (0.5, 2, 3) where the range spans less than two decades."""
-    from matplotlib.ticker import FixedLocator, FormatStrFormatter, NullFormatter, NullLocator
-
-    for on, axis, lim in ((x, ax.xaxis, ax.get_xlim()), (y, ax.yaxis, ax.get_ylim())):
-        lo, hi = sorted(lim)
-        if not on or lo <= 0 or hi / lo >= 100:
-            continue
-        ticks = nice_log_ticks(lo, hi)
-        if ticks:
-            axis.set_major_locator(FixedLocator(ticks))
-            axis.set_major_formatter(FormatStrFormatter("%g"))
-            axis.set_minor_locator(NullLocator())
-            axis.set_minor_formatter(NullFormatter())
-
-
-def _fixed_ticks(axis: Any, values: list[float]) -> None:
-    """Labelled ticks exactly at ``values`` (e.g. the sampled factors), no minor labels."""
-    from matplotlib.ticker import FixedLocator, FormatStrFormatter, NullFormatter, NullLocator
-
-    axis.set_major_locator(FixedLocator(sorted(set(values))))
-    axis.set_major_formatter(FormatStrFormatter("%g"))
-    axis.set_minor_locator(NullLocator())
-    axis.set_minor_formatter(NullFormatter())
-
-
-def _errbar(ax: Any, x: list[float], iv: list[Any], **kw: Any) -> None:
-    best = np.array([i.best for i in iv])
-    lo = np.clip(best - np.array([i.low for i in iv]), 0, None)
-    hi = np.clip(np.array([i.high for i in iv]) - best, 0, None)
-    ax.errorbar(x, best, yerr=[lo, hi], fmt="o", capsize=3, markersize=4, **kw)
-
-
-def _shade(base: str, k: int, n: int) -> str:
-    """``base`` colour lightened for the k-th of n factors (darkest = smallest factor)."""
-    from matplotlib.colors import to_rgb
-
-    r, g, b = to_rgb(base)
-    t = 0.0 if n <= 1 else 0.6 * k / (n - 1)
-    return "#%02x%02x%02x" % tuple(round(255 * (c + (1 - c) * t)) for c in (r, g, b))
 
 
 # ---------------------------------------------------------------------------------------------
 
 
-def rates_figure(report: FitReport, *, goal: float) -> Any:
+def rates_figure(report: FitReport, *, goal: float) -> Figure | None:
     """Logical error per cycle against distance for each scale point: points with error bars,
     fitted lines (solid over the sampled distances, dashed beyond, towards the goal)."""
     if not report.distances:
@@ -180,7 +56,7 @@ def rates_figure(report: FitReport, *, goal: float) -> Any:
     axes_names = ["joint"] + sorted({p.axis for p in report.distances} - {"joint"})
     panels = [["joint"], [a for a in axes_names if a != "joint"]]
     panels = [p for p in panels if any(d.axis in p for d in report.distances)]
-    fig, axs = _figure(6.0 * len(panels), 4.6, ncols=len(panels), sharey=True)
+    fig, axs = figure(6.0 * len(panels), 4.6, ncols=len(panels), sharey=True)
     sampled = report.sampled_distances
     dmin, dmax = min(sampled), max(sampled)
     for ax, names in zip(axs[0], panels):
@@ -188,11 +64,11 @@ def rates_figure(report: FitReport, *, goal: float) -> Any:
         for name in names:
             lfs = sorted((lf for lf in report.lambdas if lf.axis == name), key=lambda lf: lf.factor)
             for k, lf in enumerate(lfs):
-                colour = _shade(COLOURS.get(name, "#444444"), k, len(lfs))
+                colour = shade(COLOURS.get(name, "#444444"), k, len(lfs))
                 label = f"{name} x{lf.factor:g}"
                 pts = sorted((p for p in report.distances if p.axis == name and p.factor == lf.factor),
                              key=lambda p: p.distance)
-                _errbar(ax, [p.distance for p in pts], [p.per_cycle for p in pts], color=colour, label=label)
+                errbar(ax, [p.distance for p in pts], [p.per_cycle for p in pts], color=colour, label=label)
                 for p in pts:
                     if p.zero_errors:
                         ax.plot([p.distance], [p.per_cycle.high], marker="v", color=colour, markersize=7)
@@ -214,7 +90,7 @@ def rates_figure(report: FitReport, *, goal: float) -> Any:
         ax.set_yscale("log")
         ax.set_xlim(dmin - 1, d_end + 2)
         ax.set_xlabel("code distance d")
-        _title(ax, "joint axis (all components x factor)" if names == ["joint"]
+        title(ax, "joint axis (all components x factor)" if names == ["joint"]
                else "one component x factor, others today", fontsize=11)
         ax.grid(True, which="major", alpha=0.3)
         ax.legend(fontsize=7, ncol=2 if len(ax.get_legend_handles_labels()[0]) > 8 else 1)
@@ -224,19 +100,19 @@ def rates_figure(report: FitReport, *, goal: float) -> Any:
     return fig
 
 
-def lambda_joint_figure(report: FitReport, model: Any = None) -> Any:
+def lambda_joint_figure(report: FitReport, model: ResponseModel | None = None) -> Figure | None:
     """Lambda against the joint scale factor: points, interval band, Lambda = 1 and the threshold."""
     joint = sorted((lf for lf in report.lambdas if lf.axis == "joint" and lf.suppression), key=lambda lf: lf.factor)
     if not joint:
         return None
-    fig, axs = _figure(6.4, 4.6)
+    fig, axs = figure(6.4, 4.6)
     ax = axs[0][0]
     x = [lf.factor for lf in joint]
     ivs = [lf.suppression for lf in joint]
     if len(joint) > 1:
         ax.fill_between(x, [i.low for i in ivs], [i.high for i in ivs], color=COLOURS["joint"], alpha=0.18,
                         label=f"{CL} interval")
-    _errbar(ax, x, ivs, color=COLOURS["joint"], label="fitted Lambda")
+    errbar(ax, x, ivs, color=COLOURS["joint"], label="fitted Lambda")
     lo, hi = min(x) / 1.3, max(x) * 1.3
     th = report.threshold
     if model is not None:
@@ -258,21 +134,21 @@ def lambda_joint_figure(report: FitReport, model: Any = None) -> Any:
     ax.set_xlim(lo, hi)
     ax.set_xlabel("joint scale factor (x today's error on every component)")
     ax.set_ylabel("suppression factor Lambda (eps_d / eps_d+2)")
-    _title(ax, f"Lambda against the joint scale ({CL} intervals)")
-    _plain_log(ax)
+    title(ax, f"Lambda against the joint scale ({CL} intervals)")
+    plain_log(ax)
     ax.grid(True, which="both", alpha=0.25)
     ax.legend(fontsize=8)
     return fig
 
 
-def lambda_components_figure(report: FitReport) -> Any:
+def lambda_components_figure(report: FitReport) -> Figure | None:
     """Lambda against each component's own factor (others today); today's point is shared."""
     names = sorted({lf.axis for lf in report.lambdas if lf.axis != "joint" and lf.suppression},
                    key=lambda c: COMPONENTS.index(c) if c in COMPONENTS else 99)
     if not names:
         return None
     today = report.today()
-    fig, axs = _figure(6.4, 4.6)
+    fig, axs = figure(6.4, 4.6)
     ax = axs[0][0]
     for k, name in enumerate(names):
         pts = [lf for lf in report.lambdas if lf.axis == name and lf.suppression]
@@ -281,7 +157,7 @@ def lambda_components_figure(report: FitReport) -> Any:
         pts.sort(key=lambda lf: lf.factor)
         x = [lf.factor * (1 + 0.012 * (k - len(names) / 2)) for lf in pts]  # a small dodge
         colour = COLOURS.get(name, "#444444")
-        _errbar(ax, x, [lf.suppression for lf in pts], color=colour, label=name)
+        errbar(ax, x, [lf.suppression for lf in pts], color=colour, label=name)
         ax.plot(x, [lf.suppression.best for lf in pts], "-", color=colour, linewidth=1.2)
     ax.axhline(1.0, color=THRESHOLD_COLOUR, linewidth=1.2, label="Lambda = 1 (threshold)")
     ax.axvline(1.0, color="#999999", linewidth=0.8)
@@ -290,22 +166,20 @@ def lambda_components_figure(report: FitReport) -> Any:
     ax.set_xlim(factors[0] / 1.15, factors[-1] * 1.15)
     ax.set_xlabel("component scale factor (x today's error, others today; ticks: sampled)")
     ax.set_ylabel("suppression factor Lambda (eps_d / eps_d+2)")
-    _title(ax, f"Lambda against each component ({CL} intervals)")
-    _fixed_ticks(ax.xaxis, factors)
+    title(ax, f"Lambda against each component ({CL} intervals)")
+    fixed_ticks(ax.xaxis, factors)
     ax.grid(True, which="both", alpha=0.25)
     ax.legend(fontsize=8)
     return fig
 
 
-def budget_figure(sens: Any, *, lumped: tuple[str, ...] = ()) -> Any:
+def budget_figure(sens: Sensitivity | None, *, lumped: tuple[str, ...] = ()) -> Figure | None:
     """Each component's share of 1/Lambda at today's point (horizontal bars, most limiting on top),
     error bars from the bootstrap intervals of the shares when there are any."""
-    from planner.reports.text import estimate
-
     if sens is None or not sens.rows:
         return None
     rows = list(reversed(sens.rows))
-    fig, axs = _figure(6.4, 0.5 * len(rows) + 1.6)
+    fig, axs = figure(6.4, 0.5 * len(rows) + 1.6)
     ax = axs[0][0]
     labels = [r.component + (" (lumped)" if r.component in lumped else "") for r in rows]
     shares = np.array([100 * r.share for r in rows])
@@ -320,19 +194,20 @@ def budget_figure(sens: Any, *, lumped: tuple[str, ...] = ()) -> Any:
         if r.component in lumped:
             bar.set_hatch("//")
     for y, (r, iv, top) in enumerate(zip(rows, ivs, shares + hi)):
-        label = estimate(r.share, iv, scale=100) if iv else f"{100 * r.share:.3g}"
+        label = percent(r.share, iv)
         ax.text(top, y, f"  {label} %", va="center", fontsize=8)
     # room right of the longest bar for its "best [low, high] %" label
     ax.set_xlim(0, max(list(shares + hi) + [1.0]) * 1.7)
     ax.set_xlabel("share of 1/Lambda at today's point (%)")
     lam = estimate(sens.suppression_today, sens.suppression_today_interval)
     how = f"error bars: {CL} bootstrap" if has_iv else "best values, no bootstrap"
-    _title(ax, f"Error budget: Lambda today {lam} ({how})", fontsize=10)
+    title(ax, f"Error budget: Lambda today {lam} ({how})", fontsize=10)
     ax.grid(True, axis="x", alpha=0.3)
     return fig
 
 
-def eps_band(models: Any, scales: np.ndarray, distance: int, best: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def eps_band(models: Sequence[ResponseModel], scales: np.ndarray, distance: int,
+             best: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """The :data:`~planner.fits.CONFIDENCE` range of eps per cycle at ``distance`` over the replica
     ``models`` for each row of ``scales`` (shape (n, 6)), widened to hold ``best``: the same
     interval the roadmap's rows carry (:func:`planner.planning.uncertainty.replica_interval`)."""
@@ -342,7 +217,8 @@ def eps_band(models: Any, scales: np.ndarray, distance: int, best: np.ndarray) -
     return np.minimum(lo, best), np.maximum(hi, best)
 
 
-def roadmap_figure(rm: Any, model: Any, target: Target, *, models: Any = ()) -> Any:
+def roadmap_figure(rm: Roadmap | None, model: ResponseModel | None, target: Target, *,
+                   models: Sequence[ResponseModel] = ()) -> Figure | None:
     """eps at the candidate distances against date (log y) with the goal, and the physical qubits
     needed over time (lower panel), at the central rates. With the bootstrap replica ``models``,
     a band shows the interval of eps at the goal distance."""
@@ -357,11 +233,11 @@ def roadmap_figure(rm: Any, model: Any, target: Target, *, models: Any = ()) -> 
     t = np.linspace(0.0, horizon, int(horizon * 12) + 1)
     scales = rates.scales(t)
     dates = [years_to_date(rm.start, float(y)) for y in t]
-    fig, axs = _figure(7.2, 6.2, nrows=2, sharex=True, height_ratios=[3, 2])
+    fig, axs = figure(7.2, 6.2, nrows=2, sharex=True, height_ratios=[3, 2])
     top, bottom = axs[0][0], axs[1][0]
     n = len(rm.candidate_distances)
     for k, d in enumerate(rm.candidate_distances):
-        colour = _shade(COLOURS["joint"], n - 1 - k, n)
+        colour = shade(COLOURS["joint"], n - 1 - k, n)
         top.plot(dates, np.exp(model.ln_eps_array(scales, d)), "-", color=colour, label=f"d = {d}")
         top.plot([s.date for s in rm.steps], [s.eps[d] for s in rm.steps], "o", color=colour, markersize=3)
     dg = rm.goal_distance if rm.goal_distance in rm.candidate_distances else rm.candidate_distances[-1]
@@ -381,7 +257,7 @@ def roadmap_figure(rm: Any, model: Any, target: Target, *, models: Any = ()) -> 
             ax.axvspan(g.low, g.high or dates[-1], color=GOAL_COLOUR, alpha=0.08)
     top.set_yscale("log")
     top.set_ylabel("logical error per cycle")
-    _title(top, "Roadmap at the central rates" + (f": goal met {g.date}" if g.date else ": goal not met"))
+    title(top, "Roadmap at the central rates" + (f": goal met {g.date}" if g.date else ": goal not met"))
     top.grid(True, which="major", alpha=0.3)
     top.legend(fontsize=8, ncol=2)
     per = STEPS_PER_YEAR[rm.step]
@@ -396,7 +272,7 @@ def roadmap_figure(rm: Any, model: Any, target: Target, *, models: Any = ()) -> 
     bottom.axhline(rm.max_qubits, color="#333333", linestyle="--", linewidth=1.0,
                    label=f"goal.max_qubits {rm.max_qubits}")
     bottom.set_yscale("log")
-    _plain_log(bottom, x=False)  # 700, 1000, 2000 rather than 7x10^2
+    plain_log(bottom, x=False)  # 700, 1000, 2000 rather than 7x10^2
     bottom.set_ylabel("physical qubits")
     bottom.set_xlabel("date")
     bottom.grid(True, which="major", alpha=0.3)
@@ -404,7 +280,7 @@ def roadmap_figure(rm: Any, model: Any, target: Target, *, models: Any = ()) -> 
     return fig
 
 
-def figures(answers: Any, *, target: Target) -> dict[str, Any]:
+def figures(answers: Answers, *, target: Target) -> dict[str, Figure]:
     """All figures that have data, by file stem."""
     report = answers.fits
     lumped = answers.model.unsampled if answers.model is not None else ()
@@ -419,6 +295,6 @@ def figures(answers: Any, *, target: Target) -> dict[str, Any]:
     return {k: v for k, v in figs.items() if v is not None}
 
 
-def render_all(answers: Any, *, target: Target) -> dict[str, bytes]:
+def render_all(answers: Answers, *, target: Target) -> dict[str, bytes]:
     """PNG bytes of every figure with data, by file stem."""
     return {name: png_bytes(fig) for name, fig in figures(answers, target=target).items()}
