@@ -175,3 +175,16 @@ def verify_rows(v: Verification) -> list[Row]:
 
 def verify_csv(v: Verification) -> Table:
     return Table(key="verify_csv", title="verify", headers=VERIFY_COLUMNS, rows=verify_rows(v))
+
+
+def csv_files(result: Requirements | Roadmap | Sensitivity, *, lambda_today_model: Interval | None = None,
+              lumped: Sequence[str] = ()) -> list[tuple[str, Table]]:
+    """The CSV files of one stage's result, as (file name, table)."""
+    from planner.planning import Requirements, Roadmap
+
+    if isinstance(result, Requirements):
+        return [("requirements.csv", requirements_csv(result, lambda_today_model=lambda_today_model))]
+    if isinstance(result, Roadmap):
+        steps, dates = roadmap_csv(result)
+        return [("roadmap.csv", steps), ("roadmap_dates.csv", dates)]
+    return [("sensitivity.csv", sensitivity_csv(result, lumped=lumped))]

@@ -30,6 +30,7 @@ from planner.reports.csvtables import (  # noqa: F401  (re-exported: the CSV col
     SENSITIVITY_COLUMNS,
     SENSITIVITY_FIGURES,
     VERIFY_COLUMNS,
+    csv_files,
     requirements_csv,
     requirements_rows,
     roadmap_columns,
@@ -42,6 +43,7 @@ from planner.reports.csvtables import (  # noqa: F401  (re-exported: the CSV col
     verify_rows,
 )
 from planner.reports.jsondoc import json_file_text, json_safe
+from planner.reports.text import lambda_today_model, lumped_components  # noqa: F401  (cli ask uses files.lambda_today_model)
 from planner.reports.table import INTEGER_COLUMNS, Table, csv_text, to_csv, to_markdown  # noqa: F401
 from planner.reports.table import csv_cell as _cell  # noqa: F401  (the name tests use)
 
@@ -104,28 +106,29 @@ def write_tables(out_dir: Path, markdown: tuple[str, str] | None, csvs: Sequence
     return written + [write_atomic(out_dir / name, to_csv(t)) for name, t in csvs]
 
 
+def write_stage(stage: str, tables: Sequence[Table], csvs: Sequence[tuple[str, Table]], out_dir: Path) -> list[Path]:
+    """One stage's Markdown file (:data:`planner.reports.text.MARKDOWN_FILES`) and CSV files."""
+    name, heading = text.MARKDOWN_FILES[stage]
+    return write_tables(out_dir, (name, to_markdown(tables, heading=heading)), csvs)
+
+
 def write_requirements(req: Requirements, out_dir: Path, *, lambda_today_model: Interval | None = None,
                        uncertainty: Uncertainty | None = None) -> list[Path]:
     """``requirements.md`` and ``requirements.csv`` (``uncertainty``: the bootstrap behind the
     intervals, for the replica count)."""
-    md = to_markdown(text.requirements_tables(req, lambda_today_model=lambda_today_model, uncertainty=uncertainty),
-                     heading="Requirements for the goal")
-    return write_tables(out_dir, ("requirements.md", md),
-                        [("requirements.csv", requirements_csv(req, lambda_today_model=lambda_today_model))])
+    tables = text.requirements_tables(req, lambda_today_model=lambda_today_model, uncertainty=uncertainty)
+    return write_stage("requirements", tables, csv_files(req, lambda_today_model=lambda_today_model), out_dir)
 
 
 def write_roadmap(rm: Roadmap, out_dir: Path) -> list[Path]:
     """``roadmap.md``, ``roadmap.csv`` (steps) and ``roadmap_dates.csv`` (goal and milestones)."""
-    steps, dates = roadmap_csv(rm)
-    return write_tables(out_dir, ("roadmap.md", to_markdown(text.roadmap_tables(rm), heading="Roadmap")),
-                        [("roadmap.csv", steps), ("roadmap_dates.csv", dates)])
+    return write_stage("roadmap", text.roadmap_tables(rm), csv_files(rm), out_dir)
 
 
 def write_sensitivity(sens: Sensitivity, out_dir: Path, *, lumped: Sequence[str] = ()) -> list[Path]:
     """``sensitivity.md`` and ``sensitivity.csv``; ``lumped``: components without their own axis."""
-    md = to_markdown(text.sensitivity_tables(sens, lumped=lumped), heading="Sensitivity")
-    return write_tables(out_dir, ("sensitivity.md", md),
-                        [("sensitivity.csv", sensitivity_csv(sens, lumped=lumped))])
+    return write_stage("sensitivity", text.sensitivity_tables(sens, lumped=lumped),
+                       csv_files(sens, lumped=lumped), out_dir)
 
 
 def fits_document(answers_or_report: Answers | FitReport, *, target: Target | None = None) -> dict[str, Any]:
@@ -180,12 +183,6 @@ def write_plots(pngs: dict[str, bytes], out_dir: Path) -> list[Path]:
     return [write_atomic(pdir / f"{name}.png", data) for name, data in pngs.items()]
 
 
-def lambda_today_model(answers: Answers) -> Interval | None:
-    """The bootstrap interval of the model's Lambda today (None without replicas)."""
-    unc = answers.uncertainty
-    return unc.intervals.get("lambda_today") if unc is not None else None
-
-
 def _saved_verification(answers: Answers, out_dir: Path) -> tuple[Verification | None, str]:
     """The verification in ``out_dir/verify.json`` for the page, or what the page says instead
     (it is broken, or it was made against an earlier fit)."""
@@ -211,16 +208,13 @@ def write_all(answers: Answers, *, out_dir: Path, target: Target,
     from planner.reports import html, plots
 
     out_dir = ensure_dir(out_dir)
+    tables = text.report_tables(answers)
+    parts = {"requirements": answers.requirements, "roadmap": answers.roadmap, "sensitivity": answers.sensitivity}
     written: list[Path] = []
-    lam_model = lambda_today_model(answers)
-    if answers.requirements is not None:
-        written += write_requirements(answers.requirements, out_dir, lambda_today_model=lam_model,
-                                      uncertainty=answers.uncertainty)
-    if answers.roadmap is not None:
-        written += write_roadmap(answers.roadmap, out_dir)
-    if answers.sensitivity is not None:
-        lumped = answers.model.unsampled if answers.model is not None else ()
-        written += write_sensitivity(answers.sensitivity, out_dir, lumped=lumped)
+    for stage, result in parts.items():
+        if result is not None:
+            csvs = csv_files(result, lambda_today_model=lambda_today_model(answers), lumped=lumped_components(answers))
+            written += write_stage(stage, tables[stage], csvs, out_dir)
     written += write_fits(answers, out_dir, target=target)
     pngs = plots.render_all(answers, target=target)
     written += write_plots(pngs, out_dir)
@@ -229,7 +223,7 @@ def write_all(answers: Answers, *, out_dir: Path, target: Target,
         verify_note = ""
     else:
         verification, verify_note = _saved_verification(answers, out_dir)
-    page = html.report_html(answers, target=target, pngs=pngs, out_dir=out_dir,
+    page = html.report_html(answers, target=target, pngs=pngs, out_dir=out_dir, tables=tables,
                             verification=verification, verification_note=verify_note)
     written.append(write_atomic(out_dir / "report.html", page))
     return written

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import base64
 import html
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -182,14 +182,34 @@ def figure_html(name: str, data: bytes) -> str:
             f"({esc(f'{CONFIDENCE:.0%}')} intervals)</figcaption></figure>")
 
 
+def _stage_sections(tables: Mapping[str, Sequence[Table]], plots_of: Callable[[str], list[str]],
+                    verification: Verification | None, verification_note: str) -> list[str]:
+    """Each stage's heading, tables and plots, in the order of the flow."""
+    body = [table_html(t) for t in tables.get("fits", ())] + plots_of("fits")
+    if "requirements" in tables:
+        body += ["<h2>Requirements</h2>", *(table_html(t) for t in tables["requirements"])]
+    if verification is not None or verification_note:
+        body.append("<h2>Verification on the simulator</h2>")
+        body += [f"<p>{esc(verification_note)}</p>"] if verification_note else []
+        body += [table_html(t) for t in text.verify_tables(verification)] if verification is not None else []
+    for key, heading in (("roadmap", "Roadmap"), ("sensitivity", "Sensitivity")):
+        if key in tables:
+            body += [f"<h2>{heading}</h2>", *(table_html(t) for t in tables[key]), *plots_of(key)]
+    others = plots_of("other")
+    return body + (["<h2>Other plots</h2>", *others] if others else [])
+
+
 def report_html(answers: Answers, *, target: Target, pngs: Mapping[str, bytes],
                 out_dir: Path | None = None, verification: Verification | None = None,
-                verification_note: str = "") -> str:
+                verification_note: str = "", tables: Mapping[str, Sequence[Table]] | None = None) -> str:
     """The page as text (``pngs``: PNG bytes by plot name, from plots.render_all). Order: the
     caveats, device and goal, sampling, then each stage's tables with its plots under them.
     ``verification``: the result of ``planner verify`` (a section after the requirements);
-    ``verification_note``: said in that section instead (e.g. the result is out of date)."""
+    ``verification_note``: said in that section instead (e.g. the result is out of date);
+    ``tables``: the report's tables by stage (:func:`planner.reports.text.report_tables`, the ones
+    the Markdown files hold; built here when not given)."""
     goal = target.goal
+    tables = text.report_tables(answers) if tables is None else tables
     plots_of = lambda section: [figure_html(n, d) for n, d in pngs.items()  # noqa: E731
                                 if PLOT_SECTIONS.get(n, "other") == section]
     body = [f"<h1>Error-budget report: {esc(target.device.name)}</h1>",
@@ -201,31 +221,8 @@ def report_html(answers: Answers, *, target: Target, pngs: Mapping[str, bytes],
             _pairs([("goal: logical error per cycle", num(goal.logical_error_per_cycle)),
                     ("goal: largest code (physical qubits)", goal.max_qubits)]),
             "<h2>Sampling</h2>", _pairs(sampling_rows(answers, target, out_dir)),
-            "<h2>Fits and model</h2>", _pairs(model_rows(answers))]
-    body += [table_html(t) for t in text.fits_tables(answers.fits)]
-    body += plots_of("fits")
-    if answers.requirements is not None:
-        body.append("<h2>Requirements</h2>")
-        body += [table_html(t) for t in text.requirements_tables(
-            answers.requirements, uncertainty=answers.uncertainty)]
-    if verification is not None or verification_note:
-        body.append("<h2>Verification on the simulator</h2>")
-        if verification_note:
-            body.append(f"<p>{esc(verification_note)}</p>")
-        if verification is not None:
-            body += [table_html(t) for t in text.verify_tables(verification)]
-    if answers.roadmap is not None:
-        body.append("<h2>Roadmap</h2>")
-        body += [table_html(t) for t in text.roadmap_tables(answers.roadmap)]
-        body += plots_of("roadmap")
-    if answers.sensitivity is not None:
-        lumped = answers.model.unsampled if answers.model is not None else ()
-        body.append("<h2>Sensitivity</h2>")
-        body += [table_html(t) for t in text.sensitivity_tables(answers.sensitivity, lumped=lumped)]
-        body += plots_of("sensitivity")
-    others = plots_of("other")
-    if others:
-        body += ["<h2>Other plots</h2>", *others]
+            "<h2>Fits and model</h2>", _pairs(model_rows(answers)),
+            *_stage_sections(tables, plots_of, verification, verification_note)]
     if answers.notes:
         body.append("<h2>Notes</h2><ul>" + "".join(f"<li>{esc(n)}</li>" for n in answers.notes) + "</ul>")
     return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"

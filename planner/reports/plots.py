@@ -8,6 +8,7 @@ inside the functions (it is slow to import and only reports need it).
 
 from __future__ import annotations
 
+import datetime as dt
 import math
 from collections.abc import Sequence
 from typing import TYPE_CHECKING
@@ -17,6 +18,7 @@ import numpy as np
 from planner.config import COMPONENTS, Target
 from planner.fits import CONFIDENCE, FitReport
 from planner.reports.formats import estimate, percent
+from planner.reports.text import goal_distance
 from planner.reports.plotkit import (  # noqa: F401  (png_bytes, wrap, nice_log_ticks: re-exported)
     errbar,
     figure,
@@ -31,8 +33,12 @@ from planner.reports.plotkit import (  # noqa: F401  (png_bytes, wrap, nice_log_
 )
 
 if TYPE_CHECKING:
+    from matplotlib.axes import Axes
     from matplotlib.figure import Figure
 
+    from planner.fits import LambdaFit
+    from planner.planning.roadmap import DatedEvent, RateSet
+    from planner.planning.sensitivity import ComponentSensitivity
     from planner.planning import Answers, ResponseModel, Roadmap, Sensitivity
 
 #: colours of the axes of the sweep (own choice: distinct in print and for common colour blindness)
@@ -48,6 +54,33 @@ CL = f"{CONFIDENCE:.0%}"
 # ---------------------------------------------------------------------------------------------
 
 
+def _scale_point(ax: Axes, report: FitReport, lf: LambdaFit, colour: str, *, goal: float) -> float:
+    """One scale point on the rate plot: its points with error bars (a zero-error point also as
+    a down triangle at its upper end) and its fitted line, solid over the sampled distances and
+    dashed towards the goal. Returns the distance the line reaches."""
+    sampled = report.sampled_distances
+    dmin, dmax = min(sampled), max(sampled)
+    pts = sorted((p for p in report.distances if p.axis == lf.axis and p.factor == lf.factor),
+                 key=lambda p: p.distance)
+    errbar(ax, [p.distance for p in pts], [p.per_cycle for p in pts], color=colour,
+           label=f"{lf.axis} x{lf.factor:g}")
+    for p in (p for p in pts if p.zero_errors):
+        ax.plot([p.distance], [p.per_cycle.high], marker="v", color=colour, markersize=7)
+    if lf.suppression is None or lf.ln_prefactor is None:
+        return dmax
+    ln_a, ln_lam = lf.ln_prefactor.best, math.log(lf.suppression.best)
+    stop = dmax
+    if ln_lam > 0:
+        stop = min(max(2 * (ln_a - math.log(goal)) / ln_lam - 1, dmax), MAX_PLOT_DISTANCE)
+    line = lambda d: np.exp(ln_a - (d + 1) / 2 * ln_lam)  # noqa: E731
+    inside = np.linspace(dmin, dmax, 20)
+    ax.plot(inside, line(inside), "-", color=colour, linewidth=1.4)
+    if stop > dmax:
+        beyond = np.linspace(dmax, stop, 60)
+        ax.plot(beyond, line(beyond), "--", color=colour, linewidth=1.1)
+    return stop
+
+
 def rates_figure(report: FitReport, *, goal: float) -> Figure | None:
     """Logical error per cycle against distance for each scale point: points with error bars,
     fitted lines (solid over the sampled distances, dashed beyond, towards the goal)."""
@@ -58,40 +91,19 @@ def rates_figure(report: FitReport, *, goal: float) -> Figure | None:
     panels = [p for p in panels if any(d.axis in p for d in report.distances)]
     fig, axs = figure(6.0 * len(panels), 4.6, ncols=len(panels), sharey=True)
     sampled = report.sampled_distances
-    dmin, dmax = min(sampled), max(sampled)
     for ax, names in zip(axs[0], panels):
-        d_end = dmax
+        d_end = max(sampled)
         for name in names:
             lfs = sorted((lf for lf in report.lambdas if lf.axis == name), key=lambda lf: lf.factor)
             for k, lf in enumerate(lfs):
                 colour = shade(COLOURS.get(name, "#444444"), k, len(lfs))
-                label = f"{name} x{lf.factor:g}"
-                pts = sorted((p for p in report.distances if p.axis == name and p.factor == lf.factor),
-                             key=lambda p: p.distance)
-                errbar(ax, [p.distance for p in pts], [p.per_cycle for p in pts], color=colour, label=label)
-                for p in pts:
-                    if p.zero_errors:
-                        ax.plot([p.distance], [p.per_cycle.high], marker="v", color=colour, markersize=7)
-                if lf.suppression is None or lf.ln_prefactor is None:
-                    continue
-                ln_a, ln_lam = lf.ln_prefactor.best, math.log(lf.suppression.best)
-                stop = dmax
-                if ln_lam > 0:
-                    d_goal = 2 * (ln_a - math.log(goal)) / ln_lam - 1
-                    stop = min(max(d_goal, dmax), MAX_PLOT_DISTANCE)
-                d_end = max(d_end, stop)
-                inside = np.linspace(dmin, dmax, 20)
-                beyond = np.linspace(dmax, stop, 60)
-                line = lambda d: np.exp(ln_a - (d + 1) / 2 * ln_lam)  # noqa: E731
-                ax.plot(inside, line(inside), "-", color=colour, linewidth=1.4)
-                if stop > dmax:
-                    ax.plot(beyond, line(beyond), "--", color=colour, linewidth=1.1)
+                d_end = max(d_end, _scale_point(ax, report, lf, colour, goal=goal))
         ax.axhline(goal, color=GOAL_COLOUR, linewidth=1.5, linestyle=":", label=f"goal {goal:g}")
         ax.set_yscale("log")
-        ax.set_xlim(dmin - 1, d_end + 2)
+        ax.set_xlim(min(sampled) - 1, d_end + 2)
         ax.set_xlabel("code distance d")
         title(ax, "joint axis (all components x factor)" if names == ["joint"]
-               else "one component x factor, others today", fontsize=11)
+              else "one component x factor, others today", fontsize=11)
         ax.grid(True, which="major", alpha=0.3)
         ax.legend(fontsize=7, ncol=2 if len(ax.get_legend_handles_labels()[0]) > 8 else 1)
     axs[0][0].set_ylabel("logical error per cycle")
@@ -141,6 +153,17 @@ def lambda_joint_figure(report: FitReport, model: ResponseModel | None = None) -
     return fig
 
 
+def _component_line(ax: Axes, pts: list[LambdaFit], name: str, *, dodge: float) -> None:
+    """One component's Lambda points (moved sideways by the fraction ``dodge`` so the error bars
+    of the lines sharing today's point stay apart) joined by a line."""
+    pts = sorted(pts, key=lambda lf: lf.factor)
+    x = [lf.factor * (1 + dodge) for lf in pts]
+    colour = COLOURS.get(name, "#444444")
+    ivs = [lf.suppression for lf in pts if lf.suppression is not None]
+    errbar(ax, x, ivs, color=colour, label=name)
+    ax.plot(x, [iv.best for iv in ivs], "-", color=colour, linewidth=1.2)
+
+
 def lambda_components_figure(report: FitReport) -> Figure | None:
     """Lambda against each component's own factor (others today); today's point is shared."""
     names = sorted({lf.axis for lf in report.lambdas if lf.axis != "joint" and lf.suppression},
@@ -152,13 +175,8 @@ def lambda_components_figure(report: FitReport) -> Figure | None:
     ax = axs[0][0]
     for k, name in enumerate(names):
         pts = [lf for lf in report.lambdas if lf.axis == name and lf.suppression]
-        if today is not None and today.suppression is not None:
-            pts.append(today)
-        pts.sort(key=lambda lf: lf.factor)
-        x = [lf.factor * (1 + 0.012 * (k - len(names) / 2)) for lf in pts]  # a small dodge
-        colour = COLOURS.get(name, "#444444")
-        errbar(ax, x, [lf.suppression for lf in pts], color=colour, label=name)
-        ax.plot(x, [lf.suppression.best for lf in pts], "-", color=colour, linewidth=1.2)
+        _component_line(ax, pts + ([today] if today is not None and today.suppression is not None else []),
+                        name, dodge=0.012 * (k - len(names) / 2))
     ax.axhline(1.0, color=THRESHOLD_COLOUR, linewidth=1.2, label="Lambda = 1 (threshold)")
     ax.axvline(1.0, color="#999999", linewidth=0.8)
     ax.set_xscale("log")
@@ -173,14 +191,9 @@ def lambda_components_figure(report: FitReport) -> Figure | None:
     return fig
 
 
-def budget_figure(sens: Sensitivity | None, *, lumped: tuple[str, ...] = ()) -> Figure | None:
-    """Each component's share of 1/Lambda at today's point (horizontal bars, most limiting on top),
-    error bars from the bootstrap intervals of the shares when there are any."""
-    if sens is None or not sens.rows:
-        return None
-    rows = list(reversed(sens.rows))
-    fig, axs = figure(6.4, 0.5 * len(rows) + 1.6)
-    ax = axs[0][0]
+def _share_bars(ax: Axes, rows: list[ComponentSensitivity], lumped: tuple[str, ...]) -> bool:
+    """The bars of the budget plot, each labelled with its share and interval; whether any has
+    an interval (error bars)."""
     labels = [r.component + (" (lumped)" if r.component in lumped else "") for r in rows]
     shares = np.array([100 * r.share for r in rows])
     ivs = [r.intervals.get("share") for r in rows]
@@ -194,10 +207,21 @@ def budget_figure(sens: Sensitivity | None, *, lumped: tuple[str, ...] = ()) -> 
         if r.component in lumped:
             bar.set_hatch("//")
     for y, (r, iv, top) in enumerate(zip(rows, ivs, shares + hi)):
-        label = percent(r.share, iv)
-        ax.text(top, y, f"  {label} %", va="center", fontsize=8)
+        ax.text(top, y, f"  {percent(r.share, iv)} %", va="center", fontsize=8)
     # room right of the longest bar for its "best [low, high] %" label
     ax.set_xlim(0, max(list(shares + hi) + [1.0]) * 1.7)
+    return has_iv
+
+
+def budget_figure(sens: Sensitivity | None, *, lumped: tuple[str, ...] = ()) -> Figure | None:
+    """Each component's share of 1/Lambda at today's point (horizontal bars, most limiting on top),
+    error bars from the bootstrap intervals of the shares when there are any."""
+    if sens is None or not sens.rows:
+        return None
+    rows = list(reversed(sens.rows))
+    fig, axs = figure(6.4, 0.5 * len(rows) + 1.6)
+    ax = axs[0][0]
+    has_iv = _share_bars(ax, rows, lumped)
     ax.set_xlabel("share of 1/Lambda at today's point (%)")
     lam = estimate(sens.suppression_today, sens.suppression_today_interval)
     how = f"error bars: {CL} bootstrap" if has_iv else "best values, no bootstrap"
@@ -217,6 +241,35 @@ def eps_band(models: Sequence[ResponseModel], scales: np.ndarray, distance: int,
     return np.minimum(lo, best), np.maximum(hi, best)
 
 
+def _goal_marks(axes: Sequence[Axes], goal: DatedEvent, end: dt.date) -> None:
+    """The goal's date (a line) and its range (a band) on each of ``axes``."""
+    for ax in axes:
+        if goal.date is not None:
+            ax.axvline(goal.date, color=GOAL_COLOUR, linewidth=1.0)
+        if goal.low is not None:
+            ax.axvspan(goal.low, goal.high or end, color=GOAL_COLOUR, alpha=0.08)
+
+
+def _qubits_panel(ax: Axes, rm: Roadmap, model: ResponseModel, target: Target, rates: RateSet, *,
+                  horizon: float) -> None:
+    """The physical qubits needed to meet the goal at each roadmap step, and the budget."""
+    from planner.planning import physical_qubits, smallest_distance
+    from planner.planning.model import qubit_rule
+    from planner.planning.roadmap import STEPS_PER_YEAR, years_to_date
+
+    per = STEPS_PER_YEAR[rm.step]
+    ts = np.arange(0, int(horizon * per) + 1) / per
+    qdates, qubits = [], []
+    for y, row in zip(ts, rates.scales(ts)):
+        d = smallest_distance(model, dict(zip(COMPONENTS, row.tolist())), rm.eps_target)
+        qdates.append(years_to_date(rm.start, float(y)))
+        qubits.append(physical_qubits(d, target.sweep.code) if d is not None else np.nan)
+    ax.step(qdates, qubits, where="post", color=COLOURS["gate_2q"],
+            label=f"physical qubits needed ({qubit_rule(target.sweep.code)})")
+    ax.axhline(rm.max_qubits, color="#333333", linestyle="--", linewidth=1.0,
+               label=f"goal.max_qubits {rm.max_qubits}")
+
+
 def roadmap_figure(rm: Roadmap | None, model: ResponseModel | None, target: Target, *,
                    models: Sequence[ResponseModel] = ()) -> Figure | None:
     """eps at the candidate distances against date (log y) with the goal, and the physical qubits
@@ -224,9 +277,7 @@ def roadmap_figure(rm: Roadmap | None, model: ResponseModel | None, target: Targ
     a band shows the interval of eps at the goal distance."""
     if rm is None or model is None or target.roadmap is None:
         return None
-    from planner.planning.ask import smallest_distance
-    from planner.planning.model import physical_qubits, qubit_rule
-    from planner.planning.roadmap import STEPS_PER_YEAR, RateSet, years_to_date
+    from planner.planning.roadmap import RateSet, years_to_date
 
     horizon = target.roadmap.horizon_years
     rates = RateSet.from_rates(target.roadmap.rates, target=target)  # with the T1/T2 growth, as the steps
@@ -240,7 +291,7 @@ def roadmap_figure(rm: Roadmap | None, model: ResponseModel | None, target: Targ
         colour = shade(COLOURS["joint"], n - 1 - k, n)
         top.plot(dates, np.exp(model.ln_eps_array(scales, d)), "-", color=colour, label=f"d = {d}")
         top.plot([s.date for s in rm.steps], [s.eps[d] for s in rm.steps], "o", color=colour, markersize=3)
-    dg = rm.goal_distance if rm.goal_distance in rm.candidate_distances else rm.candidate_distances[-1]
+    dg = goal_distance(rm)
     if len(models):
         best = np.exp(model.ln_eps_array(scales, dg))
         lo, hi = eps_band(models, scales, dg, np.minimum(best, 0.5))
@@ -250,27 +301,13 @@ def roadmap_figure(rm: Roadmap | None, model: ResponseModel | None, target: Targ
     # the lines fall for decades after the goal: keep the view on the goal's neighbourhood
     top.set_ylim(bottom=max(top.get_ylim()[0], rm.eps_target * 1e-3))
     g = rm.goal
-    for ax in (top, bottom):
-        if g.date is not None:
-            ax.axvline(g.date, color=GOAL_COLOUR, linewidth=1.0)
-        if g.low is not None:
-            ax.axvspan(g.low, g.high or dates[-1], color=GOAL_COLOUR, alpha=0.08)
+    _goal_marks((top, bottom), g, dates[-1])
     top.set_yscale("log")
     top.set_ylabel("logical error per cycle")
     title(top, "Roadmap at the central rates" + (f": goal met {g.date}" if g.date else ": goal not met"))
     top.grid(True, which="major", alpha=0.3)
     top.legend(fontsize=8, ncol=2)
-    per = STEPS_PER_YEAR[rm.step]
-    ts = np.arange(0, int(horizon * per) + 1) / per
-    qdates, qubits = [], []
-    for y, row in zip(ts, rates.scales(ts)):
-        d = smallest_distance(model, dict(zip(COMPONENTS, row.tolist())), rm.eps_target)
-        qdates.append(years_to_date(rm.start, float(y)))
-        qubits.append(physical_qubits(d, target.sweep.code) if d is not None else np.nan)
-    bottom.step(qdates, qubits, where="post", color=COLOURS["gate_2q"],
-                label=f"physical qubits needed ({qubit_rule(target.sweep.code)})")
-    bottom.axhline(rm.max_qubits, color="#333333", linestyle="--", linewidth=1.0,
-                   label=f"goal.max_qubits {rm.max_qubits}")
+    _qubits_panel(bottom, rm, model, target, rates, horizon=horizon)
     bottom.set_yscale("log")
     plain_log(bottom, x=False)  # 700, 1000, 2000 rather than 7x10^2
     bottom.set_ylabel("physical qubits")

@@ -17,7 +17,7 @@ from planner.reports.formats import CL, EXTRAPOLATED, ZERO_ERRORS, estimate, hal
 from planner.reports.jsondoc import json_text
 from planner.reports.table import Table
 from planner.reports.terminal import footnotes, print_table, say, words
-from planner.reports.text import goal_distance, verify_tables
+from planner.reports.text import event_rows, goal_distance, verify_tables
 
 if TYPE_CHECKING:
     from rich.console import Console
@@ -221,14 +221,9 @@ def render_roadmap(rm: Roadmap, console: Console) -> None:
     table, notes = _steps_table(rm)
     print_table(console, table)
     footnotes(console, notes)
-    rows = []
-    for e in (rm.goal, *rm.milestones):
-        rng = f"[{e.low or 'before start'}, {e.high or 'beyond horizon'}]" if rm.num_scenarios else "—"
-        rows.append([e.what, str(e.date) if e.date else "not within horizon", rng,
-                     f"{e.fraction_reached:.0%}" if rm.num_scenarios else "—"])
     print_table(console, Table(
         title=f"Dates ({CL} over {rm.num_scenarios} scenarios of rates and fits)",
-        headers=("event", "date", "range", "reached"), rows=rows,
+        headers=("event", "date", "range", "reached"), rows=event_rows(rm),
         notes=("date at the central rates; reached: share of scenarios meeting it within the horizon",)))
     if rm.note:
         say(console, "note:", *words(rm.note))

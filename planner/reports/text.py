@@ -41,7 +41,7 @@ from planner.reports.jsondoc import json_safe
 from planner.reports.table import Table, TextTable, to_markdown
 
 if TYPE_CHECKING:
-    from planner.planning import FactorAnswer, MixAnswer, Requirements, Roadmap, Sensitivity, Uncertainty
+    from planner.planning import Answers, FactorAnswer, MixAnswer, Requirements, Roadmap, Sensitivity, Uncertainty
     from planner.planning.verify import Verification
 
 __all__ = ["BEYOND", "CAVEAT", "EXTRAPOLATED", "EXTRAPOLATED_NOTE", "INTERVAL_NOTE", "OVERFLOW_NOTES",
@@ -49,6 +49,37 @@ __all__ = ["BEYOND", "CAVEAT", "EXTRAPOLATED", "EXTRAPOLATED_NOTE", "INTERVAL_NO
            "goal_distance", "halvings", "interval", "json_safe", "lever_note", "moving_components", "num",
            "overflow_notes", "rate", "requirements_tables", "roadmap_tables", "sensitivity_tables", "span",
            "to_markdown", "verify_tables"]
+
+
+#: the Markdown file and heading of each stage's tables
+MARKDOWN_FILES = {"requirements": ("requirements.md", "Requirements for the goal"), "roadmap": ("roadmap.md", "Roadmap"),
+                  "sensitivity": ("sensitivity.md", "Sensitivity")}
+
+
+def lambda_today_model(answers: Answers) -> Interval | None:
+    """The bootstrap interval of the model's Lambda today (None without replicas)."""
+    unc = answers.uncertainty
+    return unc.intervals.get("lambda_today") if unc is not None else None
+
+
+def lumped_components(answers: Answers) -> tuple[str, ...]:
+    """Components without their own sweep axis (their weight is split evenly)."""
+    return tuple(answers.model.unsampled) if answers.model is not None else ()
+
+
+def report_tables(answers: Answers) -> dict[str, list[Table]]:
+    """Every report table of one set of answers by stage (``fits``, and ``requirements``,
+    ``roadmap``, ``sensitivity`` where the answers have them): built once, for the Markdown files
+    and the page alike."""
+    tables = {"fits": fits_tables(answers.fits)}
+    if answers.requirements is not None:
+        tables["requirements"] = requirements_tables(answers.requirements, uncertainty=answers.uncertainty,
+                                                     lambda_today_model=lambda_today_model(answers))
+    if answers.roadmap is not None:
+        tables["roadmap"] = roadmap_tables(answers.roadmap)
+    if answers.sensitivity is not None:
+        tables["sensitivity"] = sensitivity_tables(answers.sensitivity, lumped=lumped_components(answers))
+    return tables
 
 
 # ---------------------------------------------------------------------------------------------
@@ -179,9 +210,7 @@ def _fit_source(num_replicas: int) -> str:
             else POINT_VALUE)
 
 
-def roadmap_tables(rm: Roadmap) -> list[Table]:
-    """The roadmap steps (central rates), eps at every candidate distance, and the dated events
-    with their ranges."""
+def _roadmap_steps(rm: Roadmap) -> Table:
     moving = moving_components(rm)
     dg = goal_distance(rm)
     extra: list[str] = []
@@ -201,30 +230,41 @@ def roadmap_tables(rm: Roadmap) -> list[Table]:
             f"{_fit_source(rm.num_replicas)}, at the central rates.")
     notes = [*([f"{EXTRAPOLATED} extrapolated: outside the sampled scale range, first at {extra[0]}"]
                + extra[1:] if extra else []), *([rm.note] if rm.note else [])]
-    steps = Table(key="roadmap", title="Roadmap: model predictions at the expected rates",
-                      headers=("date", *(f"{c} scale (x today)" for c in moving), "Lambda (ratio)",
-                               f"eps d={dg} (per cycle)", "distance (physical qubits)"),
-                      rows=tuple(rows), lead=lead, notes=tuple(notes))
-    eps = Table(key="roadmap_eps", title="Logical error per cycle at the candidate distances",
-                    headers=("date", *(f"eps d={d} (per cycle)" for d in rm.candidate_distances)),
-                    rows=tuple((s.date.isoformat(), *(rate(s.eps[d], s.eps_intervals.get(d))
-                                                      for d in rm.candidate_distances)) for s in rm.steps),
-                    lead=(f"The same steps; {_fit_source(rm.num_replicas)}.",))
-    ev_rows = []
+    return Table(key="roadmap", title="Roadmap: model predictions at the expected rates",
+                 headers=("date", *(f"{c} scale (x today)" for c in moving), "Lambda (ratio)",
+                          f"eps d={dg} (per cycle)", "distance (physical qubits)"),
+                 rows=rows, lead=lead, notes=notes)
+
+
+def event_rows(rm: Roadmap) -> list[tuple[str, str, str, str]]:
+    """The goal and the Lambda milestones: event, date at the central rates, range over the
+    scenarios, share of scenarios reaching it ('—' without scenarios)."""
+    rows = []
     for e in (rm.goal, *rm.milestones):
         rng = (f"[{e.low.isoformat() if e.low else 'before start'}, "
                f"{e.high.isoformat() if e.high else 'beyond horizon'}]") if rm.num_scenarios else "—"
-        ev_rows.append((e.what, e.date.isoformat() if e.date else "not within horizon", rng,
-                        f"{e.fraction_reached:.0%}" if rm.num_scenarios else "—"))
+        rows.append((e.what, e.date.isoformat() if e.date else "not within horizon", rng,
+                     f"{e.fraction_reached:.0%}" if rm.num_scenarios else "—"))
+    return rows
+
+
+def roadmap_tables(rm: Roadmap) -> list[Table]:
+    """The roadmap steps (central rates), eps at every candidate distance, and the dated events
+    with their ranges."""
+    eps = Table(key="roadmap_eps", title="Logical error per cycle at the candidate distances",
+                headers=("date", *(f"eps d={d} (per cycle)" for d in rm.candidate_distances)),
+                rows=[(s.date.isoformat(), *(rate(s.eps[d], s.eps_intervals.get(d)) for d in rm.candidate_distances))
+                      for s in rm.steps],
+                lead=(f"The same steps; {_fit_source(rm.num_replicas)}.",))
     dates = Table(key="roadmap_dates", title="When the goal and the Lambda milestones are met",
-                      headers=("event", "date (central rates)", f"{CONFIDENCE:.0%} range (dates)",
-                               "scenarios reaching it (%)"),
-                      rows=tuple(ev_rows),
-                      lead=(f"Ranges over {rm.num_scenarios} scenarios drawing the rates (their spreads) "
-                            "and the fit (bootstrap models)." if rm.num_scenarios else
-                            "Dates at the central rates with the best model (no spreads, no bootstrap: "
-                            "no range).",))
-    return [steps, eps, dates]
+                  headers=("event", "date (central rates)", f"{CONFIDENCE:.0%} range (dates)",
+                           "scenarios reaching it (%)"),
+                  rows=event_rows(rm),
+                  lead=(f"Ranges over {rm.num_scenarios} scenarios drawing the rates (their spreads) "
+                        "and the fit (bootstrap models)." if rm.num_scenarios else
+                        "Dates at the central rates with the best model (no spreads, no bootstrap: "
+                        "no range).",))
+    return [_roadmap_steps(rm), eps, dates]
 
 
 # ---------------------------------------------------------------------------------------------
