@@ -13,11 +13,12 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-from planner.reports.formats import CL, EXTRAPOLATED, ZERO_ERRORS, estimate, halvings, interval, num, percent, rate
+from planner.reports.cells import event_rows, goal_distance, lever_cells, mix_cells, sensitivity_cells, step_cells
+from planner.reports.formats import CL, EXTRAPOLATED, ZERO_ERRORS, estimate, interval, num, rate
 from planner.reports.jsondoc import json_text
 from planner.reports.table import Table
 from planner.reports.terminal import footnotes, print_table, say, words
-from planner.reports.text import event_rows, goal_distance, verify_tables
+from planner.reports.text import verify_tables
 
 if TYPE_CHECKING:
     from rich.console import Console
@@ -95,15 +96,9 @@ def _extra_notes(label: str, notes: tuple[str, ...]) -> list[str]:
 def _lever_table(r: Requirements) -> tuple[Table, list[str]]:
     rows, notes = [], []
     for a in (r.joint, *r.components):
-        if a.reachable:
-            factor = estimate(a.factor, a.factor_interval) + (f" {EXTRAPOLATED}" if a.extrapolation else "")
-            lam = estimate(a.suppression, a.suppression_interval)
-            if a.note:
-                notes.append(f"{a.lever}: {a.note}")
-        else:
-            factor = "not reachable"
-            lam = "max " + estimate(a.suppression, a.suppression_interval) if a.lever != "joint" else "—"
-        rows.append([a.lever, factor, lam])
+        rows.append([a.lever, *lever_cells(a)])
+        if a.reachable and a.note:
+            notes.append(f"{a.lever}: {a.note}")
         notes += _extra_notes(a.lever, a.extrapolation)
     table = Table(title=f"What each lever needs alone ({CL}, bootstrap)", headers=("lever", "factor", "Lambda reached"),
                   rows=rows, notes=("factor: scale on today's error (1 = today, 0.5 = half) meeting the goal with the "
@@ -160,13 +155,7 @@ def _render_mix(r: Requirements, console: Console) -> None:
         say(console, "Cheapest mix:", *words(m.note or ("not reachable" if not m.reachable
                                                          else "nothing needs to change")))
         return
-    rows = []
-    for c in changed:
-        f_iv = m.scale_intervals.get(c)
-        h, h_iv = halvings(f_iv, m.scales[c])
-        mark = f" {EXTRAPOLATED}" if any(x.startswith(f"{c} ") for x in m.extrapolation) else ""
-        rows.append([c, estimate(m.scales[c], f_iv) + mark, estimate(h, h_iv),
-                     percent(m.cost_shares.get(c, 0.0), m.cost_share_intervals.get(c))])
+    rows = [[c, *mix_cells(m, c)] for c in changed]
     print_table(console, Table(
         title=f"Cheapest mix: the components it changes ({CL})", rows=rows,
         headers=("component", "factor", "halvings", "cost share %"),
@@ -200,12 +189,9 @@ def _steps_table(rm: Roadmap) -> tuple[Table, list[str]]:
     d = goal_distance(rm)
     rows, notes = [], []
     for s in rm.steps:
-        mark = f" {EXTRAPOLATED}" if s.extrapolation else ""
         if s.extrapolation and not notes:
             notes = _extra_notes(str(s.date), s.extrapolation)
-        rows.append([str(s.date), estimate(s.suppression, s.suppression_interval) + mark,
-                     rate(s.eps[d], s.eps_intervals.get(d)),
-                     f"{s.distance} ({s.physical_qubits})" if s.distance else "—"])
+        rows.append([str(s.date), *step_cells(s, d)])
     fit_cl = f"{CL} from the fit" if rm.num_replicas else "best values"
     table = Table(title=f"Roadmap from {rm.start}, per {rm.step}, at the central rates ({fit_cl})",
                   headers=("date", "Lambda", f"eps/cycle d={d}", "d (qubits)"), rows=rows,
@@ -237,14 +223,8 @@ def render_sensitivity(sens: Sensitivity, console: Console) -> None:
     """Per component, most limiting first; elasticity is its own column only where it is not
     simply -share (the quadratic form)."""
     quad = sens.model_form != "linear"
-    rows = []
-    for r in sens.rows:
-        ivs = r.intervals
-        rows.append([r.component, percent(r.share, ivs.get("share")),
-                     *([estimate(r.elasticity, ivs.get("elasticity"))] if quad else []),
-                     estimate(r.suppression_halved, ivs.get("suppression_halved")),
-                     estimate(r.suppression_perfect, ivs.get("suppression_perfect")),
-                     estimate(r.months_earlier, ivs.get("months_earlier"))])
+    columns = ("share", *(["elasticity"] if quad else []), "halved", "perfect", "earlier")
+    rows = [[r.component, *(c[k] for k in columns)] for r in sens.rows for c in [sensitivity_cells(r)]]
     cl = f"{CL}, bootstrap" if sens.num_replicas else "best values, no bootstrap"
     say(console, "Lambda today (model):", estimate(sens.suppression_today, sens.suppression_today_interval) + ".")
     print_table(console, Table(

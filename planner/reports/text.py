@@ -16,6 +16,18 @@ from collections.abc import Sequence
 from typing import TYPE_CHECKING
 
 from planner.fits import CONFIDENCE, FitReport, Interval
+from planner.reports.cells import (
+    event_rows,
+    goal_distance,
+    lambda_today_model,
+    lever_cells,
+    lever_note,
+    lumped_components,
+    mix_cells,
+    moving_components,
+    sensitivity_cells,
+    step_cells,
+)
 from planner.reports.formats import (
     BEYOND,
     CAVEAT,
@@ -41,10 +53,10 @@ from planner.reports.jsondoc import json_safe
 from planner.reports.table import Table, TextTable, to_markdown
 
 if TYPE_CHECKING:
-    from planner.planning import Answers, FactorAnswer, MixAnswer, Requirements, Roadmap, Sensitivity, Uncertainty
+    from planner.planning import Answers, Requirements, Roadmap, Sensitivity, Uncertainty
     from planner.planning.verify import Verification
 
-__all__ = ["BEYOND", "CAVEAT", "EXTRAPOLATED", "EXTRAPOLATED_NOTE", "INTERVAL_NOTE", "OVERFLOW_NOTES",
+__all__ = ["BEYOND", "lambda_today_model", "lumped_components", "event_rows", "CAVEAT", "EXTRAPOLATED", "EXTRAPOLATED_NOTE", "INTERVAL_NOTE", "OVERFLOW_NOTES",
            "POINT_VALUE", "TINY", "UNDERFLOW", "VERIFY_STALE", "Table", "TextTable", "estimate", "fits_tables",
            "goal_distance", "halvings", "interval", "json_safe", "lever_note", "moving_components", "num",
            "overflow_notes", "rate", "requirements_tables", "roadmap_tables", "sensitivity_tables", "span",
@@ -54,17 +66,6 @@ __all__ = ["BEYOND", "CAVEAT", "EXTRAPOLATED", "EXTRAPOLATED_NOTE", "INTERVAL_NO
 #: the Markdown file and heading of each stage's tables
 MARKDOWN_FILES = {"requirements": ("requirements.md", "Requirements for the goal"), "roadmap": ("roadmap.md", "Roadmap"),
                   "sensitivity": ("sensitivity.md", "Sensitivity")}
-
-
-def lambda_today_model(answers: Answers) -> Interval | None:
-    """The bootstrap interval of the model's Lambda today (None without replicas)."""
-    unc = answers.uncertainty
-    return unc.intervals.get("lambda_today") if unc is not None else None
-
-
-def lumped_components(answers: Answers) -> tuple[str, ...]:
-    """Components without their own sweep axis (their weight is split evenly)."""
-    return tuple(answers.model.unsampled) if answers.model is not None else ()
 
 
 def report_tables(answers: Answers) -> dict[str, list[Table]]:
@@ -140,14 +141,7 @@ def requirements_tables(req: Requirements, *, lambda_today_model: Interval | Non
     mix = req.mix
     rows = []
     for a in (req.joint, *req.components):
-        if a.reachable:
-            cell = estimate(a.factor, a.factor_interval) + (f" {EXTRAPOLATED}" if a.extrapolation else "")
-            lam = estimate(a.suppression, a.suppression_interval)
-        else:
-            cell = "not reachable" + ("" if a.lever == "joint" else " alone")
-            # not reachable alone: the most it gives, with the component perfect
-            lam = "—" if a.lever == "joint" else "max " + estimate(a.suppression, a.suppression_interval)
-        rows.append((a.lever, cell, lam, *_mix_cells(mix, a.lever), join_notes(lever_note(a), *a.extrapolation)))
+        rows.append((a.lever, *lever_cells(a), *mix_cells(mix, a.lever), join_notes(lever_note(a), *a.extrapolation)))
     total = estimate(mix.cost, mix.cost_interval)
     mix_lam = estimate(mix.suppression, mix.suppression_interval)
     notes = [f"Cheapest mix ({'reachable' if mix.reachable else 'not reachable'}): cost {total} "
@@ -166,43 +160,8 @@ def requirements_tables(req: Requirements, *, lambda_today_model: Interval | Non
         rows=tuple(rows), lead=lead, notes=tuple(n for n in notes if n))]
 
 
-def lever_note(a: FactorAnswer) -> str:
-    """The note of one lever's answer, without the bare Lambda planning puts into the "not
-    reachable alone" note (the Lambda column carries it with its interval).
-
-    >>> from planner.planning import FactorAnswer
-    >>> lever_note(FactorAnswer("idle", False, None, 1.9, note="not reachable alone: with idle perfect, Lambda = 1.9"))
-    'not reachable alone: even with idle perfect, Lambda stays below the Lambda needed'
-    """
-    if not a.reachable and a.lever != "joint":
-        return f"not reachable alone: even with {a.lever} perfect, Lambda stays below the Lambda needed"
-    return a.note
-
-
-def _mix_cells(mix: MixAnswer, lever: str) -> tuple[str, str, str]:
-    """Factor, halvings and cost share of ``lever`` in the cheapest mix ('—' for joint or no mix)."""
-    if lever == "joint" or not mix.reachable or lever not in mix.scales:
-        return "—", "—", "—"
-    f_iv = mix.scale_intervals.get(lever)
-    mark = f" {EXTRAPOLATED}" if any(x.startswith(f"{lever} ") for x in mix.extrapolation) else ""
-    h, h_iv = halvings(f_iv, mix.scales[lever])
-    share = percent(mix.cost_shares.get(lever, 0.0), mix.cost_share_intervals.get(lever))
-    return estimate(mix.scales[lever], f_iv) + mark, estimate(h, h_iv), share
-
-
 # ---------------------------------------------------------------------------------------------
 # roadmap
-
-
-def moving_components(rm: Roadmap) -> list[str]:
-    """Components whose scale changes along the roadmap (the others stay at today's error)."""
-    first = rm.steps[0].scales
-    return [c for c in first if any(s.scales[c] != 1.0 for s in rm.steps)]
-
-
-def goal_distance(rm: Roadmap) -> int:
-    """The distance the roadmap judges the goal at (the largest within max_qubits)."""
-    return rm.goal_distance if rm.goal_distance in rm.candidate_distances else rm.candidate_distances[-1]
 
 
 def _fit_source(num_replicas: int) -> str:
@@ -218,11 +177,7 @@ def _roadmap_steps(rm: Roadmap) -> Table:
     for s in rm.steps:
         if s.extrapolation and not extra:
             extra = [f"{s.date.isoformat()}: {x}" for x in s.extrapolation]
-        mark = f" {EXTRAPOLATED}" if s.extrapolation else ""
-        rows.append((s.date.isoformat(), *(num(s.scales[c]) for c in moving),
-                     estimate(s.suppression, s.suppression_interval) + mark,
-                     rate(s.eps[dg], s.eps_intervals.get(dg)),
-                     f"{s.distance} ({s.physical_qubits})" if s.distance else "—"))
+        rows.append((s.date.isoformat(), *(num(s.scales[c]) for c in moving), *step_cells(s, dg)))
     lead = (f"From {rm.start.isoformat()} per {rm.step} at the central rates; goal: logical error per "
             f"cycle <= {num(rm.eps_target)} within {rm.max_qubits} physical qubits, judged at distance "
             f"{dg} (the largest within them). The table stops at the first step meeting the goal.",
@@ -234,18 +189,6 @@ def _roadmap_steps(rm: Roadmap) -> Table:
                  headers=("date", *(f"{c} scale (x today)" for c in moving), "Lambda (ratio)",
                           f"eps d={dg} (per cycle)", "distance (physical qubits)"),
                  rows=rows, lead=lead, notes=notes)
-
-
-def event_rows(rm: Roadmap) -> list[tuple[str, str, str, str]]:
-    """The goal and the Lambda milestones: event, date at the central rates, range over the
-    scenarios, share of scenarios reaching it ('—' without scenarios)."""
-    rows = []
-    for e in (rm.goal, *rm.milestones):
-        rng = (f"[{e.low.isoformat() if e.low else 'before start'}, "
-               f"{e.high.isoformat() if e.high else 'beyond horizon'}]") if rm.num_scenarios else "—"
-        rows.append((e.what, e.date.isoformat() if e.date else "not within horizon", rng,
-                     f"{e.fraction_reached:.0%}" if rm.num_scenarios else "—"))
-    return rows
 
 
 def roadmap_tables(rm: Roadmap) -> list[Table]:
@@ -275,13 +218,9 @@ def sensitivity_tables(sens: Sensitivity, *, lumped: Sequence[str] = ()) -> list
     """Shares of the 1/Lambda budget at today's point, most limiting first, with their intervals."""
     rows = []
     for r in sens.rows:
-        iv = r.intervals
-        rows.append((r.component + (" (lumped)" if r.component in lumped else ""),
-                     percent(r.share, iv.get("share")),
-                     estimate(r.elasticity, iv.get("elasticity")),
-                     estimate(r.suppression_halved, iv.get("suppression_halved")),
-                     estimate(r.suppression_perfect, iv.get("suppression_perfect")),
-                     estimate(r.months_earlier, iv.get("months_earlier")), r.note))
+        c = sensitivity_cells(r)
+        rows.append((r.component + (" (lumped)" if r.component in lumped else ""), c["share"], c["elasticity"],
+                     c["halved"], c["perfect"], c["earlier"], r.note))
     source = (f"Intervals: best [low, high] over {sens.num_replicas} bootstrap models of the fit, at the "
               "central rates (the spreads of the rates are not in them)." if sens.num_replicas
               else f"Figures: {POINT_VALUE}.")
