@@ -31,10 +31,10 @@ def sensitivity_command(directory: DirArg, json: JsonOpt = False) -> None:
         note = no_model_reason(answers.fits)
         typer.echo(json_text({"sensitivity": None, "note": note})) if json else stdout_console().print(note)
         return
+    from planner.reports.cells import lumped_components
     from planner.reports.files import write_sensitivity
 
-    written = write_sensitivity(answers.sensitivity, directory,
-                                lumped=answers.model.unsampled if answers.model is not None else ())
+    written = write_sensitivity(answers.sensitivity, directory, lumped=lumped_components(answers))
     stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {plain(directory)}")
     if json:
         typer.echo(json_text(answers.sensitivity.to_json()))

@@ -69,7 +69,7 @@ def _scale_point(ax: Axes, report: FitReport, lf: LambdaFit, colour: str, *, goa
     if lf.suppression is None or lf.ln_prefactor is None:
         return dmax
     ln_a, ln_lam = lf.ln_prefactor.best, math.log(lf.suppression.best)
-    stop = dmax
+    stop = float(dmax)
     if ln_lam > 0:
         stop = min(max(2 * (ln_a - math.log(goal)) / ln_lam - 1, dmax), MAX_PLOT_DISTANCE)
     line = lambda d: np.exp(ln_a - (d + 1) / 2 * ln_lam)  # noqa: E731
@@ -92,7 +92,7 @@ def rates_figure(report: FitReport, *, goal: float) -> Figure | None:
     fig, axs = figure(6.0 * len(panels), 4.6, ncols=len(panels), sharey=True)
     sampled = report.sampled_distances
     for ax, names in zip(axs[0], panels):
-        d_end = max(sampled)
+        d_end = float(max(sampled))
         for name in names:
             lfs = sorted((lf for lf in report.lambdas if lf.axis == name), key=lambda lf: lf.factor)
             for k, lf in enumerate(lfs):
@@ -120,7 +120,7 @@ def lambda_joint_figure(report: FitReport, model: ResponseModel | None = None) -
     fig, axs = figure(6.4, 4.6)
     ax = axs[0][0]
     x = [lf.factor for lf in joint]
-    ivs = [lf.suppression for lf in joint]
+    ivs = [lf.suppression for lf in joint if lf.suppression is not None]
     if len(joint) > 1:
         ax.fill_between(x, [i.low for i in ivs], [i.high for i in ivs], color=COLOURS["joint"], alpha=0.18,
                         label=f"{CL} interval")

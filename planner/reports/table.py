@@ -37,20 +37,20 @@ class Table:
     Layout hints for the terminal: ``left`` (left-justified columns; the others are numbers),
     ``fold_key`` (how many first columns a too-wide table repeats when folded) and
     ``fold_titles`` (titles of the folded parts). ``integer_rows`` (CSV): rows whose whole
-    numbers are written as integers.
+    numbers are written as integers. Sequences are stored as tuples (the table is frozen).
     """
 
     title: str
-    headers: tuple[str, ...]
-    rows: tuple[tuple[Any, ...], ...]
+    headers: Sequence[str]
+    rows: Sequence[Sequence[Any]]
     key: str = ""
-    lead: tuple[str, ...] = ()
-    notes: tuple[str, ...] = ()
+    lead: Sequence[str] = ()
+    notes: Sequence[str] = ()
     caveat: str = CAVEAT
-    left: tuple[int, ...] = (0,)
+    left: Sequence[int] = (0,)
     fold_key: int = 1
-    fold_titles: tuple[str, ...] = ()
-    integer_rows: tuple[bool, ...] = ()
+    fold_titles: Sequence[str] = ()
+    integer_rows: Sequence[bool] = ()
 
     def __post_init__(self) -> None:
         for name in ("headers", "lead", "notes", "left", "fold_titles", "integer_rows"):

@@ -187,7 +187,8 @@ def render_calculator(a: CalculatorAnswer, console: Console) -> None:
 
 def _steps_table(rm: Roadmap) -> tuple[Table, list[str]]:
     d = goal_distance(rm)
-    rows, notes = [], []
+    rows: list[list[str]] = []
+    notes: list[str] = []
     for s in rm.steps:
         if s.extrapolation and not notes:
             notes = _extra_notes(str(s.date), s.extrapolation)
