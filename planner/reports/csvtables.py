@@ -12,9 +12,9 @@ from typing import TYPE_CHECKING, Any
 
 from planner.config import COMPONENTS
 from planner.fits import Interval
+from planner.reports.cells import lever_note
 from planner.reports.formats import POINT_VALUE, halvings
 from planner.reports.table import INTEGER_COLUMNS, Table
-from planner.reports.text import lever_note
 
 if TYPE_CHECKING:
     from planner.planning import MixAnswer, Requirements, Roadmap, Sensitivity

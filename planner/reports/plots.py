@@ -17,8 +17,8 @@ import numpy as np
 
 from planner.config import COMPONENTS, Target
 from planner.fits import CONFIDENCE, FitReport
+from planner.reports.cells import goal_distance
 from planner.reports.formats import estimate, percent
-from planner.reports.text import goal_distance
 from planner.reports.plotkit import (  # noqa: F401  (png_bytes, wrap, nice_log_ticks: re-exported)
     errbar,
     figure,
