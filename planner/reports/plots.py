@@ -36,7 +36,7 @@ if TYPE_CHECKING:
     from matplotlib.axes import Axes
     from matplotlib.figure import Figure
 
-    from planner.fits import LambdaFit
+    from planner.fits import LambdaFit, Threshold
     from planner.planning.roadmap import DatedEvent, RateSet
     from planner.planning.sensitivity import ComponentSensitivity
     from planner.planning import Answers, ResponseModel, Roadmap, Sensitivity
@@ -112,6 +112,19 @@ def rates_figure(report: FitReport, *, goal: float) -> Figure | None:
     return fig
 
 
+def _threshold_marks(ax: Axes, th: Threshold, lo: float, hi: float) -> None:
+    """The threshold's joint factor (a line) and its interval (a band, cut to the view from
+    ``lo`` to ``hi``), or, when the sampled range does not bracket it, its note in the legend."""
+    if th.factor is not None:
+        ax.axvline(th.factor.best, color=THRESHOLD_COLOUR, linestyle=":",
+                   label=f"threshold at joint x{th.factor.best:.3g}")
+        left = th.factor.low if th.factor.low > 0 else lo
+        right = th.factor.high if math.isfinite(th.factor.high) else hi
+        ax.axvspan(left, right, color=THRESHOLD_COLOUR, alpha=0.08)
+    elif th.note:  # in the legend box, which finds its own room (as text it sat on the Lambda = 1 line)
+        ax.plot([], [], " ", label=wrap(th.note, width_in=2.6, fontsize=8))
+
+
 def lambda_joint_figure(report: FitReport, model: ResponseModel | None = None) -> Figure | None:
     """Lambda against the joint scale factor: points, interval band, Lambda = 1 and the threshold."""
     joint = sorted((lf for lf in report.lambdas if lf.axis == "joint" and lf.suppression), key=lambda lf: lf.factor)
@@ -126,20 +139,12 @@ def lambda_joint_figure(report: FitReport, model: ResponseModel | None = None) -
                         label=f"{CL} interval")
     errbar(ax, x, ivs, color=COLOURS["joint"], label="fitted Lambda")
     lo, hi = min(x) / 1.3, max(x) * 1.3
-    th = report.threshold
     if model is not None:
         s = np.geomspace(lo, hi, 80)
         lam = model.suppression_array(np.repeat(s[:, None], len(COMPONENTS), axis=1))
         ax.plot(s, lam, "--", color="#555555", linewidth=1.1, label=f"response model ({model.form})")
     ax.axhline(1.0, color=THRESHOLD_COLOUR, linewidth=1.2, label="Lambda = 1 (threshold)")
-    if th.factor is not None:
-        ax.axvline(th.factor.best, color=THRESHOLD_COLOUR, linestyle=":",
-                   label=f"threshold at joint x{th.factor.best:.3g}")
-        left = th.factor.low if th.factor.low > 0 else lo
-        right = th.factor.high if math.isfinite(th.factor.high) else hi
-        ax.axvspan(left, right, color=THRESHOLD_COLOUR, alpha=0.08)
-    elif th.note:  # in the legend box, which finds its own room (as text it sat on the Lambda = 1 line)
-        ax.plot([], [], " ", label=wrap(th.note, width_in=2.6, fontsize=8))
+    _threshold_marks(ax, report.threshold, lo, hi)
     ax.axvline(1.0, color="#999999", linewidth=0.8)
     ax.set_xscale("log")
     ax.set_yscale("log")
