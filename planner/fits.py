@@ -36,6 +36,8 @@ import numpy as np
 import sinter
 from scipy.stats import chi2, norm
 
+from planner.errors import InputError
+
 CONFIDENCE = 0.95
 LIKELIHOOD_FACTOR = math.exp(chi2.ppf(CONFIDENCE, 1) / 2)
 #: normal quantile matching :data:`CONFIDENCE` (two-sided), used to turn widths into sigmas
@@ -44,9 +46,15 @@ Z_SCORE = float(norm.ppf(0.5 + CONFIDENCE / 2))
 ZERO_ERROR_LOG_SIGMA = 1.0
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class Interval:
-    """A best estimate with a :data:`CONFIDENCE` interval ``[low, high]`` (same units as best)."""
+    """A best estimate with a :data:`CONFIDENCE` interval ``[low, high]`` (same units as best).
+
+    Keyword-only, in the order of :class:`sinter.Fit` (low, best, high):
+
+    >>> Interval(low=1.0, best=2.0, high=3.0).map(lambda x: 2 * x)
+    Interval(best=4.0, low=2.0, high=6.0)
+    """
 
     best: float
     low: float
@@ -60,7 +68,21 @@ class Interval:
 
     def map(self, f: Any) -> Interval:
         """Apply a monotone increasing function to all three numbers."""
-        return Interval(f(self.best), f(self.low), f(self.high))
+        return Interval(low=f(self.low), best=f(self.best), high=f(self.high))
+
+    @property
+    def half_width(self) -> float:
+        """Half of ``high - low`` (the interval's full width is twice this)."""
+        return (self.high - self.low) / 2
+
+    @property
+    def relative_half_width(self) -> float:
+        """:attr:`half_width` relative to :attr:`best` (inf when best is 0).
+
+        >>> round(Interval(low=1.8, best=2.0, high=2.2).relative_half_width, 9)
+        0.1
+        """
+        return self.half_width / abs(self.best) if self.best else math.inf
 
 
 def _num(x: float) -> float | None:
@@ -68,7 +90,7 @@ def _num(x: float) -> float | None:
     return x if math.isfinite(x) else None
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class TaskFit:
     """One task: shots, errors, the shot error rate and the logical error per cycle."""
 
@@ -96,7 +118,7 @@ class TaskFit:
                 "logical_error_per_cycle": self.per_cycle.to_json()}
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class DistanceFit:
     """Logical error per cycle at one (scale point, distance), bases combined."""
 
@@ -116,7 +138,7 @@ class DistanceFit:
                 "logical_error_per_cycle": self.per_cycle.to_json()}
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class LambdaFit:
     """Suppression factor at one scale point from eps_d across distances.
 
@@ -142,7 +164,7 @@ class LambdaFit:
                 "uses_zero_error_points": self.uses_zero_error_points, "note": self.note}
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class Threshold:
     """Joint scale factor where Lambda crosses 1 (None when the sampled range does not bracket it)."""
 
@@ -153,7 +175,7 @@ class Threshold:
         return {"joint_factor": self.factor.to_json() if self.factor else None, "note": self.note}
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class FitReport:
     """Everything fitted from one set of samples."""
 
@@ -188,6 +210,38 @@ class FitReport:
 # per task
 
 
+def per_cycle_rate(shot_error: Any, *, rounds: Any) -> Any:
+    """Logical error per cycle from the shot error rate after ``rounds`` cycles (float or numpy
+    arrays): the inverse of :func:`shot_rate`, ``eps = (1 - (1 - 2 P)^(1/r)) / 2``, the same as
+    ``sinter.shot_error_rate_to_piece_error_rate(P, pieces=r)`` (a rate above 1/2 mirrors:
+    ``1 - eps(1 - P)``). The one place this formula is written.
+
+    >>> round(per_cycle_rate(0.01, rounds=5), 6)
+    0.002016
+    >>> all(abs(per_cycle_rate(p, rounds=7) - sinter.shot_error_rate_to_piece_error_rate(p, pieces=7)) < 1e-15
+    ...     for p in (1e-9, 0.2, 0.5, 0.7))
+    True
+    >>> per_cycle_rate(np.array([0.0, 0.5]), rounds=3).tolist()
+    [0.0, 0.5]
+    """
+    p = np.asarray(shot_error, float)
+    q = np.minimum(p, 1 - p)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        eps = -np.expm1(np.log1p(-2 * q) / np.asarray(rounds, float)) / 2
+    out = np.where(p > 0.5, 1 - eps, eps)
+    return float(out) if out.ndim == 0 else out
+
+
+def shot_rate(eps: float, rounds: int) -> float:
+    """Shot error rate after ``rounds`` cycles of per-cycle rate ``eps`` (the inverse of
+    :func:`per_cycle_rate`): ``P = (1 - (1 - 2 eps)^r) / 2``.
+
+    >>> round(per_cycle_rate(shot_rate(0.001, 9), rounds=9), 12)
+    0.001
+    """
+    return (1 - (1 - 2 * eps) ** rounds) / 2
+
+
 def per_cycle_interval(*, shots: int, errors: int, rounds: int) -> tuple[Interval, Interval]:
     """Shot error rate and logical error per cycle, each with a :data:`CONFIDENCE` interval.
 
@@ -196,10 +250,10 @@ def per_cycle_interval(*, shots: int, errors: int, rounds: int) -> tuple[Interva
     (0.01, 0.002016)
     """
     if shots <= 0:
-        raise ValueError("shots must be positive")
+        raise InputError("must be positive", field="shots")
     fit = sinter.fit_binomial(num_shots=shots, num_hits=errors, max_likelihood_factor=LIKELIHOOD_FACTOR)
-    shot = Interval(fit.best, fit.low, fit.high)
-    cyc = shot.map(lambda p: sinter.shot_error_rate_to_piece_error_rate(p, pieces=rounds))
+    shot = Interval(low=fit.low, best=fit.best, high=fit.high)
+    cyc = shot.map(lambda p: per_cycle_rate(p, rounds=rounds))
     return shot, cyc
 
 
@@ -215,7 +269,8 @@ def zero_error_upper(shots: int) -> float:
 def _meta(stat: sinter.TaskStats) -> dict[str, Any]:
     m = stat.json_metadata
     if not isinstance(m, dict) or not {"d", "axis", "factor", "rounds"} <= m.keys():
-        raise ValueError(f"task {stat.strong_id[:12]} lacks the planner metadata keys: {m!r}")
+        raise InputError(f"task {stat.strong_id[:12]} lacks the planner metadata keys: {m!r}",
+                         field="json_metadata", allowed="d, axis, factor, rounds (and code, basis, scales)")
     return m
 
 
@@ -254,7 +309,7 @@ def combine_bases(group: Sequence[TaskFit]) -> tuple[Interval, bool]:
     best = sum(bests) / n
     lo = math.sqrt(sum((b - t.per_cycle.low) ** 2 for b, t in zip(bests, group))) / n
     hi = math.sqrt(sum((t.per_cycle.high - b) ** 2 for b, t in zip(bests, group))) / n
-    return Interval(best, max(best - lo, 0.0), best + hi), all(t.zero_errors for t in group)
+    return Interval(low=max(best - lo, 0.0), best=best, high=best + hi), all(t.zero_errors for t in group)
 
 
 def fit_distances(tasks: Sequence[TaskFit]) -> tuple[DistanceFit, ...]:
@@ -275,7 +330,7 @@ def fit_distances(tasks: Sequence[TaskFit]) -> tuple[DistanceFit, ...]:
 # Lambda
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class LineFit:
     """Weighted least squares ``y = intercept + slope * x`` with standard errors."""
 
@@ -295,7 +350,7 @@ def weighted_line(x: Sequence[float], y: Sequence[float], sigma: Sequence[float]
     """
     xa, ya, w = np.asarray(x, float), np.asarray(y, float), 1.0 / np.asarray(sigma, float) ** 2
     if len(set(xa.tolist())) < 2:
-        raise ValueError("a line needs at least two distinct x values")
+        raise InputError("a line needs at least two distinct x values", field="x")
     sw, swx, swy = w.sum(), (w * xa).sum(), (w * ya).sum()
     swxx, swxy = (w * xa * xa).sum(), (w * xa * ya).sum()
     det = sw * swxx - swx**2
@@ -309,7 +364,23 @@ def weighted_line(x: Sequence[float], y: Sequence[float], sigma: Sequence[float]
         if chi > 1:  # scatter beyond the intervals: widen (common practice, no source)
             slope_se *= math.sqrt(chi)
             intercept_se *= math.sqrt(chi)
-    return LineFit(float(intercept), float(slope), intercept_se, slope_se, chi)
+    return LineFit(intercept=float(intercept), slope=float(slope), intercept_se=intercept_se,
+                   slope_se=slope_se, chi2_per_dof=chi)
+
+
+def suppression_line(distances: Sequence[int], ln_eps: Sequence[float], log_sigmas: Sequence[float]) -> LineFit:
+    """The Lambda fit: weighted line ``ln eps_d = ln A - k ln Lambda`` with ``k = (d + 1) / 2``;
+    ``-slope`` is ln Lambda and ``intercept`` is ln A (the one place this line is fitted).
+
+    >>> line = suppression_line([3, 5, 7], [math.log(1e-2), math.log(5e-3), math.log(2.5e-3)], [0.1] * 3)
+    >>> round(math.exp(-line.slope), 6), round(math.exp(line.intercept), 6)
+    (2.0, 0.04)
+    """
+    return weighted_line([(d + 1) / 2 for d in distances], ln_eps, log_sigmas)
+
+
+def _z_interval(center: float, se: float) -> Interval:
+    return Interval(low=center - Z_SCORE * se, best=center, high=center + Z_SCORE * se)
 
 
 def fit_lambda(points: Sequence[DistanceFit]) -> LambdaFit:
@@ -318,22 +389,20 @@ def fit_lambda(points: Sequence[DistanceFit]) -> LambdaFit:
     pts = sorted(points, key=lambda p: p.distance)
     ds = tuple(p.distance for p in pts)
     zero = any(p.zero_errors for p in pts)
+    point = dict(axis=p0.axis, factor=p0.factor, scales=p0.scales, distances=ds, uses_zero_error_points=zero)
     if len(set(ds)) < 2:
-        return LambdaFit(p0.axis, p0.factor, p0.scales, ds, None, None, None, zero,
+        return LambdaFit(**point, suppression=None, ln_prefactor=None, chi2_per_dof=None,
                          note=f"only distance {ds[0]} sampled: Lambda needs two distances")
     usable = [p for p in pts if p.per_cycle.best > 0]
     if len({p.distance for p in usable}) < 2:
-        return LambdaFit(p0.axis, p0.factor, p0.scales, ds, None, None, None, zero,
+        return LambdaFit(**point, suppression=None, ln_prefactor=None, chi2_per_dof=None,
                          note="rates at fewer than two distances are nonzero: no Lambda")
-    k = [(p.distance + 1) / 2 for p in usable]
-    y = [math.log(p.per_cycle.best) for p in usable]
-    line = weighted_line(k, y, [p.log_sigma for p in usable])
-    ln_lam, se = -line.slope, line.slope_se
-    lam = Interval(math.exp(ln_lam), math.exp(ln_lam - Z_SCORE * se), math.exp(ln_lam + Z_SCORE * se))
-    ln_a = Interval(line.intercept, line.intercept - Z_SCORE * line.intercept_se,
-                    line.intercept + Z_SCORE * line.intercept_se)
+    line = suppression_line([p.distance for p in usable], [math.log(p.per_cycle.best) for p in usable],
+                            [p.log_sigma for p in usable])
+    lam = _z_interval(-line.slope, line.slope_se).map(math.exp)
     note = "includes zero-error points at their upper bound: Lambda leans low" if zero else ""
-    return LambdaFit(p0.axis, p0.factor, p0.scales, ds, lam, ln_a, line.chi2_per_dof, zero, note)
+    return LambdaFit(**point, suppression=lam, ln_prefactor=_z_interval(line.intercept, line.intercept_se),
+                     chi2_per_dof=line.chi2_per_dof, note=note)
 
 
 def fit_threshold(lambdas: Sequence[LambdaFit]) -> Threshold:
@@ -341,7 +410,7 @@ def fit_threshold(lambdas: Sequence[LambdaFit]) -> Threshold:
     sampled joint points that bracket it (best, low and high lines separately)."""
     joint = sorted((lf for lf in lambdas if lf.axis == "joint" and lf.suppression), key=lambda lf: lf.factor)
     if len(joint) < 2:
-        return Threshold(None, "fewer than two joint points with a Lambda: no threshold estimate")
+        return Threshold(factor=None, note="fewer than two joint points with a Lambda: no threshold estimate")
 
     def crossing(get: Any) -> float | None:
         for a, b in zip(joint, joint[1:]):
@@ -355,16 +424,16 @@ def fit_threshold(lambdas: Sequence[LambdaFit]) -> Threshold:
     if best is None:
         lo_f, hi_f = joint[0].factor, joint[-1].factor
         if joint[-1].suppression.best > 1:
-            return Threshold(None, f"Lambda > 1 at every sampled joint factor (up to {hi_f:g}): "
+            return Threshold(factor=None, note=f"Lambda > 1 at every sampled joint factor (up to {hi_f:g}): "
                              "threshold lies above the sampled range")
-        return Threshold(None, f"Lambda <= 1 at every sampled joint factor (down to {lo_f:g}): "
+        return Threshold(factor=None, note=f"Lambda <= 1 at every sampled joint factor (down to {lo_f:g}): "
                          "threshold lies below the sampled range")
     # a higher Lambda curve crosses 1 at a larger factor
     low = crossing(lambda iv: iv.low)
     high = crossing(lambda iv: iv.high)
-    return Threshold(Interval(best, low if low is not None else 0.0,
-                              high if high is not None else math.inf),
-                     "interpolated ln Lambda vs ln s between bracketing joint points"
+    return Threshold(factor=Interval(low=low if low is not None else 0.0, best=best,
+                                     high=high if high is not None else math.inf),
+                     note="interpolated ln Lambda vs ln s between bracketing joint points"
                      + ("" if low is not None and high is not None else "; an interval end is outside the sampled range"))
 
 
@@ -383,5 +452,6 @@ def fit_stats(stats: Sequence[sinter.TaskStats]) -> FitReport:
     nz = sum(t.zero_errors for t in tasks)
     if nz:
         notes.append(f"{nz} task(s) saw zero errors: their rate is the interval's upper end")
-    return FitReport(tasks, tuple(sorted(dists, key=lambda p: (p.axis != "joint", p.axis, p.factor, p.distance))),
-                     lambdas, fit_threshold(lambdas), tuple(notes))
+    return FitReport(tasks=tasks,
+                     distances=tuple(sorted(dists, key=lambda p: (p.axis != "joint", p.axis, p.factor, p.distance))),
+                     lambdas=lambdas, threshold=fit_threshold(lambdas), notes=tuple(notes))

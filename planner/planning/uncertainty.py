@@ -120,7 +120,7 @@ def replica_interval(best: float | None, values: Sequence[float | None]) -> Inte
     # no interpolation across an infinite value (inf - inf); exact sample quantiles otherwise
     method = "linear" if np.all(np.isfinite(vals)) else "inverted_cdf"
     lo, hi = np.quantile(vals, [q, 1 - q], method=method)
-    return Interval(float(best), float(min(lo, best)), float(max(hi, best)))
+    return Interval(low=float(min(lo, best)), best=float(best), high=float(max(hi, best)))
 
 
 def bootstrap(stats: Sequence[sinter.TaskStats], report: FitReport, model: ResponseModel,

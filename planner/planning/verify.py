@@ -112,7 +112,7 @@ def _interval(doc: Any) -> Interval:
     def f(key: str, missing: float) -> float:
         v = doc[key]
         return missing if v is None else float(v)
-    return Interval(f("best", math.nan), f("low", -math.inf), f("high", math.inf))
+    return Interval(low=f("low", -math.inf), best=f("best", math.nan), high=f("high", math.inf))
 
 
 def operating_points(answers: Any) -> tuple[OperatingPoint, ...]:
@@ -141,10 +141,10 @@ def verify_distances(sampled: Sequence[int]) -> tuple[int, ...]:
 
 def _predicted(models: Sequence[Any], best: float, values: list[float]) -> Interval:
     if not values:
-        return Interval(best, best, best)
+        return Interval(low=best, best=best, high=best)
     q = (1 - CONFIDENCE) / 2
     lo, hi = np.quantile(np.array(values), [q, 1 - q])
-    return Interval(best, float(min(lo, best)), float(max(hi, best)))
+    return Interval(low=float(min(lo, best)), best=best, high=float(max(hi, best)))
 
 
 def _same_scales(a: dict[str, float], b: dict[str, float]) -> bool:

@@ -55,7 +55,7 @@ def iv(i: Interval | None, digits: int = 3, *, scale: float = 1.0, is_rate: bool
     '0 [0, 0]', when the interval is degenerate; ``is_rate``: values below
     :data:`~planner.reports.text.TINY` are an underflow.
 
-    >>> iv(Interval(0.000593, 0.000557, 0.000631), scale=1e-3), iv(Interval(0.0, 0.0, 0.0), is_rate=True)
+    >>> iv(Interval(low=0.000557, best=0.000593, high=0.000631), scale=1e-3), iv(Interval(low=0.0, best=0.0, high=0.0), is_rate=True)
     ('0.593 [0.557, 0.631]', '< 1e-300')
     """
     if i is None:
@@ -96,7 +96,7 @@ def unit_label(unit: float) -> str:
 def _pct(i: Interval | None, best: float, digits: int = 3) -> str:
     """A fraction as a percentage (``digits`` significant digits) with its interval.
 
-    >>> _pct(Interval(0.429, 0.4, 0.459), 0.429, 2), _pct(None, 0.048)
+    >>> _pct(Interval(low=0.4, best=0.429, high=0.459), 0.429, 2), _pct(None, 0.048)
     ('43 [40, 46]', '4.8')
     """
     return iv(i.map(lambda x: 100 * x), digits) if i is not None else g(100 * best, digits)
@@ -292,7 +292,7 @@ def _render_mix(r: Any, console: Console) -> None:
         f_iv = m.scale_intervals.get(c)
         h_iv = f_iv.map(lambda s: -math.log2(s) if s > 0 else math.inf) if f_iv else None
         # -log2 is decreasing: the factor's high end is the halvings' low end
-        h_iv = Interval(h_iv.best, h_iv.high, h_iv.low) if h_iv else None
+        h_iv = Interval(low=h_iv.high, best=h_iv.best, high=h_iv.low) if h_iv else None
         mark = f" {EXTRAPOLATED}" if any(x.startswith(f"{c} ") for x in m.extrapolation) else ""
         rows.append([c, num_or_iv(m.scales[c], f_iv) + mark, num_or_iv(-math.log2(m.scales[c]), h_iv),
                      _pct(m.cost_share_intervals.get(c), m.cost_shares.get(c, 0.0))])

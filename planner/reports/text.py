@@ -13,7 +13,7 @@ underflow: the model's rates are never exactly zero) reads :data:`UNDERFLOW`; th
 
 >>> num(0.000123456), num(None), num(float("inf")), num(-0.0), span(1.5, 1.25, 1.75)
 ('0.0001235', '—', 'beyond any reachable', '0', '1.5 [1.25, 1.75]')
->>> span(0.0, 0.0, 0.0), rate(0.0), rate(1e-320, Interval(1e-320, 0.0, 2e-320)), rate(2e-3)
+>>> span(0.0, 0.0, 0.0), rate(0.0), rate(1e-320, Interval(low=0.0, best=1e-320, high=2e-320)), rate(2e-3)
 ('0', '< 1e-300', '< 1e-300', '0.002')
 """
 
@@ -111,7 +111,7 @@ def estimate(best: float | None, iv: Interval | None, *, scale: float = 1.0) -> 
     """``best [low, high]`` when there is an interval, else ``best`` alone; every number
     multiplied by ``scale`` (100 for percentages).
 
-    >>> estimate(0.25, Interval(0.25, 0.2, 0.3), scale=100), estimate(0.25, None)
+    >>> estimate(0.25, Interval(low=0.2, best=0.25, high=0.3), scale=100), estimate(0.25, None)
     ('25 [20, 30]', '0.25')
     """
     if iv is not None:
@@ -123,11 +123,11 @@ def halvings(iv: Interval | None, factor: float) -> tuple[float, Interval | None
     """Halvings of error, log2(1/factor), and their interval from the factor's (the map is
     decreasing, so the factor's high end gives the low end). ``-0`` never appears.
 
-    >>> halvings(Interval(0.25, 0.125, 0.5), 0.25)
+    >>> halvings(Interval(low=0.125, best=0.25, high=0.5), 0.25)
     (2.0, Interval(best=2.0, low=1.0, high=3.0))
     """
     h = lambda s: 0.0 + (-math.log2(s) if s > 0 else math.inf)  # noqa: E731
-    return h(factor), (None if iv is None else Interval(h(iv.best), h(iv.high), h(iv.low)))
+    return h(factor), (None if iv is None else Interval(low=h(iv.high), best=h(iv.best), high=h(iv.low)))
 
 
 #: said of a model figure printed without an interval (no bootstrap replicas were run)
