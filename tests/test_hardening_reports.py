@@ -436,7 +436,7 @@ def tiny_out(tmp_path_factory) -> Path:
 @pytest.fixture
 def fake_verify(monkeypatch):
     """`planner verify` without sampling: the comparison runs on counts drawn from the model."""
-    import planner.planning.verify as pv
+    import planner.jobs.verify as pv
 
     def run(target, answers, *, out_dir, budget="quick", workers=None, console=None):
         points = pv.operating_points(answers)
@@ -458,7 +458,7 @@ def test_cli_verify_writes_files_and_refreshes_report(tiny_out, fake_verify, mon
     res = runner.invoke(app, ["verify", str(tiny_out)])
     assert res.exit_code == 0 and "planner run" in res.stderr, res.output  # says where the result goes
     # with a report.html in place, verify rewrites it with the verification section
-    from planner.planning import load_out_dir
+    from planner.jobs.review import load_out_dir
 
     monkeypatch.setattr(plots, "render_all", lambda answers, *, target: {})
     spec, stats = load_out_dir(tiny_out)

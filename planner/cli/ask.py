@@ -23,7 +23,7 @@ def register(app: typer.Typer) -> None:
 @one_line_errors
 def ask_command(
     directory: Annotated[Path | None, typer.Argument(help="Out directory of a sweep.")] = None,
-    target: Annotated[float | None, typer.Option(
+    eps_target: Annotated[float | None, typer.Option(
         "--target", help="Logical error per cycle to reach (default: the goal in DIR/target.toml).",
         rich_help_panel=P_GOAL)] = None,
     distance: Annotated[int | None, typer.Option(
@@ -51,7 +51,7 @@ def ask_command(
         if directory is not None:
             raise InputError("calculator mode (--lambda/--eps) takes no DIR")
         missing = [n for n, v in (("--lambda", lambda_), ("--eps", eps), ("--distance", distance),
-                                  ("--target", target)) if v is None]
+                                  ("--target", eps_target)) if v is None]
         if missing:
             raise InputError(f"calculator mode needs {', '.join(missing)}")
         if qubits is not None:
@@ -60,7 +60,7 @@ def ask_command(
             raise InputError("--save is not used in calculator mode (there is no out directory)")
         from planner.planning import calculate
 
-        ans = calculate(suppression=lambda_, eps=eps, distance=distance, eps_target=target)
+        ans = calculate(suppression=lambda_, eps=eps, distance=distance, eps_target=eps_target)
         if json:
             typer.echo(json_text(ans.to_json()))
         else:
@@ -68,17 +68,16 @@ def ask_command(
         return
     if directory is None:
         raise InputError("give DIR (an out directory) or --lambda, --eps, --distance, --target")
-    from planner.planning import answer_all, load_out_dir, no_model_reason
-    from planner.planning.ask import what_if
+    from planner.jobs.review import review
+    from planner.planning import no_model_reason
 
-    spec, stats = load_out_dir(directory)
-    # options equal to the goal ask the review's own question; the others make a what-if
-    asked = what_if(spec, eps_target=target, distance=distance, qubits=qubits)
     if save is not None:
         from planner.reports.whatif import check_save_path
 
         md_path, csv_path = check_save_path(save, directory)
-    answers = answer_all(spec, stats, **asked)
+    # options equal to the goal ask the review's own question; the others make a what-if
+    reviewed = review(directory, eps_target=eps_target, distance=distance, qubits=qubits)
+    answers, asked = reviewed.answers, reviewed.what_if
     if answers.requirements is None:
         if json:
             typer.echo(json_text({"requirements": None, "note": no_model_reason(answers.fits)}))

@@ -1,4 +1,5 @@
-"""Checking the answers on the simulator: sample at the proposed operating points and compare.
+"""Checking the answers on the simulator: the operating points to sample and the comparison of
+what was sampled there with the prediction (the sampling is :mod:`planner.jobs.verify`).
 
 The operating points are the joint-factor answer and the cheapest mix; they are sampled at the
 two largest sampled distances (capped at :data:`MAX_VERIFY_DISTANCE` so it stays affordable) and
@@ -11,7 +12,6 @@ from __future__ import annotations
 import dataclasses
 import math
 from collections.abc import Sequence
-from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -178,24 +178,3 @@ def compare(answers: Any, points: Sequence[OperatingPoint], distances: Sequence[
     if len(distances) < 2:
         note = (note + "; " if note else "") + "one samplable distance: Lambda not verified"
     return Verification(tuple(points), tuple(distances), tuple(rows), note)
-
-
-def run_verification(target: Target, answers: Any, *, out_dir: Path, budget: str = "quick",
-                     workers: int | None = None, console: Any = None) -> Verification:
-    """Sample the operating points into ``out_dir/verify`` (resumable) and compare."""
-    from planner.sampling import run_sweep
-    from planner.store import SampleStore
-    from planner.sweep import BUDGETS, tasks_for_scales
-
-    points = operating_points(answers)
-    distances = verify_distances(answers.fits.sampled_distances)
-    if budget not in BUDGETS:
-        from planner.errors import InputError
-
-        raise InputError(f"--budget: {budget!r} is not a budget; allowed: {', '.join(BUDGETS)}")
-    store = SampleStore(Path(out_dir) / "verify")
-    tasks = [t for p in points
-             for t in tasks_for_scales(target, p.scales, distances=distances, label=p.label, factor=p.factor)]
-    if tasks:
-        run_sweep(tasks, store=store, rule=BUDGETS[budget], workers=workers, console=console)
-    return compare(answers, points, distances, store.stats())
