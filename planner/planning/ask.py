@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -264,32 +264,62 @@ def smallest_distance(model: ResponseModel, scales: Mapping[str, float] | None, 
     return None
 
 
-def _solve_lever(model: ResponseModel, lever: str, *, distance: int, eps_target: float) -> FactorAnswer:
-    ln_t = math.log(eps_target)
-    h = lambda f: model.ln_eps(_scaled(lever, f), distance) - ln_t  # noqa: E731
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class Boundary:
+    """Where a monotone ``h(f)`` (ln eps minus ln goal, increasing in the factor ``f``) crosses 0.
+
+    ``kind``: ``needed`` (``factor`` < 1 meets the goal), ``headroom`` (met today; ``factor`` >= 1
+    is how much worse it may get), ``unbounded`` (met even :data:`HEADROOM_LIMIT` times worse:
+    ``factor`` None) or ``unreachable`` (not met even at ``lowest``: ``factor`` None).
+    """
+
+    kind: str
+    factor: float | None
+
+
+def find_boundary(h: Callable[[float], float], *, lowest: float = 0.0) -> Boundary:
+    """The one boundary search of planning: the factor where ``h`` changes sign.
+
+    >>> round(find_boundary(lambda f: f - 0.25).factor, 12)
+    0.25
+    >>> find_boundary(lambda f: f - 3.0).kind, find_boundary(lambda f: -1.0).kind
+    ('headroom', 'unbounded')
+    >>> find_boundary(lambda f: 1.0).kind
+    'unreachable'
+    """
     if h(1.0) <= 0:
-        # met today: report the headroom (how much worse this lever could get)
+        # met today: the headroom (how much worse the factor could get)
         top = 1.0
         while top < HEADROOM_LIMIT and h(top * 2) <= 0:
             top *= 2
         if top >= HEADROOM_LIMIT:
-            # no finite answer to print (1 would read as "no headroom"): say so instead
-            return FactorAnswer(lever, True, None, model.suppression(None),
-                                note=f"goal already met today; {lever} may get more than "
-                                     f"x{HEADROOM_LIMIT:g} worse (the goal barely depends on it)")
-        f = brentq(h, top, top * 2, xtol=1e-12, rtol=1e-10)
-        return FactorAnswer(lever, True, f, model.suppression(_scaled(lever, f)),
-                            note=f"goal already met today; headroom: {lever} may get x{f:.2f} worse",
-                            extrapolation=tuple(model.extrapolation(_scaled(lever, f))))
-    lo = 0.0 if lever != "joint" else 1e-12
-    if not h(lo) <= 0:
+            return Boundary(kind="unbounded", factor=None)
+        return Boundary(kind="headroom", factor=float(brentq(h, top, top * 2, xtol=1e-12, rtol=1e-10)))
+    if not h(lowest) <= 0:
+        return Boundary(kind="unreachable", factor=None)
+    return Boundary(kind="needed", factor=float(brentq(h, lowest, 1.0, xtol=1e-14, rtol=1e-12)))
+
+
+def solve_lever(model: ResponseModel, lever: str, *, distance: int, eps_target: float) -> FactorAnswer:
+    """The factor ``lever`` (``joint`` or one component alone) needs to meet ``eps_target`` at
+    ``distance`` on ``model`` (or, met today, the headroom)."""
+    ln_t = math.log(eps_target)
+    found = find_boundary(lambda f: model.ln_eps(_scaled(lever, f), distance) - ln_t,
+                          lowest=0.0 if lever != "joint" else 1e-12)
+    f = found.factor
+    if found.kind == "unbounded":
+        # no finite answer to print (1 would read as "no headroom"): say so instead
+        return FactorAnswer(lever=lever, reachable=True, factor=None, suppression=model.suppression(None),
+                            note=f"goal already met today; {lever} may get more than "
+                                 f"x{HEADROOM_LIMIT:g} worse (the goal barely depends on it)")
+    if found.kind == "unreachable":
         lam = model.suppression(_scaled(lever, 0.0))
         why = (f"not reachable alone: with {lever} perfect, Lambda = {lam:.3g}" if lever != "joint"
                else "not reachable: the model never meets the goal at this distance")
-        return FactorAnswer(lever, False, None, lam, note=why)
-    f = brentq(h, lo, 1.0, xtol=1e-14, rtol=1e-12)
-    return FactorAnswer(lever, True, f, model.suppression(_scaled(lever, f)),
-                        extrapolation=tuple(model.extrapolation(_scaled(lever, f))))
+        return FactorAnswer(lever=lever, reachable=False, factor=None, suppression=lam, note=why)
+    note = f"goal already met today; headroom: {lever} may get x{f:.2f} worse" if found.kind == "headroom" else ""
+    return FactorAnswer(lever=lever, reachable=True, factor=f, suppression=model.suppression(_scaled(lever, f)),
+                        note=note, extrapolation=tuple(model.extrapolation(_scaled(lever, f))))
 
 
 def mix_cost(scales: Mapping[str, float], costs: Mapping[str, float]) -> float:
@@ -415,8 +445,8 @@ def requirements(model: ResponseModel, target: Target, *, eps_target: float | No
     eps = float(eps_target if eps_target is not None else target.goal.logical_error_per_cycle)
     check_rate("--target" if eps_target is not None else "goal.logical_error_per_cycle", eps)
     d, source = choose_distance(target, distance=distance, qubits=qubits)
-    joint = _solve_lever(model, "joint", distance=d, eps_target=eps)
-    comps = tuple(_solve_lever(model, c, distance=d, eps_target=eps) for c in COMPONENTS)
+    joint = solve_lever(model, "joint", distance=d, eps_target=eps)
+    comps = tuple(solve_lever(model, c, distance=d, eps_target=eps) for c in COMPONENTS)
     starts = tuple(_scaled(a.lever, a.factor) for a in (joint, *comps)
                    if a.reachable and a.factor is not None and a.factor < 1)
     mix = cheapest_mix(model, distance=d, eps_target=eps, costs={c: target.cost(c) for c in COMPONENTS},

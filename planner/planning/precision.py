@@ -13,7 +13,7 @@ Precision is the relative half-width of the :data:`~planner.fits.CONFIDENCE` int
 more shots narrow. (The Lambda fit widens its interval by sqrt(chi2/dof) when a line scatters
 beyond its points' intervals; with three distances that factor is a one-degree-of-freedom chi2,
 random under a correct model and constant under a wrong one, so more shots cannot target it.
-It is kept as ``fit_relative_width`` and reported in a note.)
+It is kept as ``fit_relative_half_width`` and reported in a note.)
 
 The delta method: per task, Var(ln P) = (1 - P) / (n P) for the shot error rate P from n shots;
 the per-cycle rate and the mean over bases carry it to ``y = ln eps`` at each (point, distance);
@@ -28,16 +28,16 @@ from __future__ import annotations
 import dataclasses
 import math
 from collections import defaultdict
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
 import numpy as np
 import sinter
-from scipy.optimize import brentq
 
 from planner.config import COMPONENTS, Target
-from planner.fits import Z_SCORE, FitReport, fit_stats, weighted_line
-from planner.planning.ask import choose_distance
+from planner.errors import InputError
+from planner.fits import Z_SCORE, FitReport, LambdaFit, fit_stats, per_cycle_rate, suppression_line
+from planner.planning.ask import choose_distance, solve_lever
 from planner.planning.model import ModelData, ResponseModel, fit_response
 
 __all__ = ["DEFAULT_FOCUS", "KINDS", "WEIGHT_SHARE", "AnswerPrecision", "Assessment", "assess",
@@ -51,39 +51,49 @@ WEIGHT_SHARE = 0.05
 FD_STEP = 1e-4
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class AnswerPrecision:
     """One tracked answer: its value now and the relative half-width of its interval."""
 
     name: str
     kind: str
     value: float
-    relative_width: float
+    relative_half_width: float
     target: float
-    #: Lambda only: the half-width of the fit's own interval (widened when chi2/dof > 1)
-    fit_relative_width: float | None = None
+    #: Lambda only: the relative half-width of the fit's own interval (widened when chi2/dof > 1)
+    fit_relative_half_width: float | None = None
+
+    @property
+    def relative_width(self) -> float:
+        """Older name of :attr:`relative_half_width` (it always was the half width)."""
+        return self.relative_half_width
+
+    @property
+    def fit_relative_width(self) -> float | None:
+        """Older name of :attr:`fit_relative_half_width`."""
+        return self.fit_relative_half_width
 
     @property
     def met(self) -> bool:
-        return self.relative_width <= self.target
+        return self.relative_half_width <= self.target
 
     def to_json(self) -> dict[str, Any]:
-        rel = self.relative_width if math.isfinite(self.relative_width) else None
+        rel = self.relative_half_width if math.isfinite(self.relative_half_width) else None
         return {"name": self.name, "kind": self.kind, "value": self.value,
-                "relative_half_width": rel, "fit_relative_half_width": self.fit_relative_width,
+                "relative_half_width": rel, "fit_relative_half_width": self.fit_relative_half_width,
                 "target": self.target, "met": self.met}
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class Assessment:
     """The answers now, and ``sensitivity[a, t]`` (per answer, per task in ``task_ids`` order)
     such that Var(answer a) ~ sum_t sensitivity[a, t] / shots_t (at the current shots that is
-    ``(relative_width * value / Z)^2``)."""
+    ``(relative_half_width * value / Z)^2``)."""
 
     answers: tuple[AnswerPrecision, ...]
     task_ids: tuple[str, ...]
     sensitivity: np.ndarray
-    report: FitReport
+    report: FitReport | None
     model: ResponseModel | None
     notes: tuple[str, ...] = ()
 
@@ -93,16 +103,22 @@ class Assessment:
 
     @property
     def worst(self) -> AnswerPrecision | None:
-        return max(self.answers, key=lambda a: a.relative_width / a.target, default=None)
+        return max(self.answers, key=lambda a: a.relative_half_width / a.target, default=None)
 
     def target_variance(self) -> np.ndarray:
         return np.array([(a.target * abs(a.value) / Z_SCORE) ** 2 for a in self.answers])
 
 
 def check_focus(focus: Sequence[str]) -> tuple[str, ...]:
+    """The answer kinds to track, duplicates dropped (InputError for an unknown kind).
+
+    >>> check_focus(["lambda", "weights", "lambda"])
+    ('lambda', 'weights')
+    """
     bad = [k for k in focus if k not in KINDS]
     if bad or not focus:
-        raise ValueError(f"focus must be a non-empty subset of {KINDS}, got {tuple(focus)!r}")
+        raise InputError(f"{tuple(focus)!r} is not a non-empty subset of the answer kinds", field="focus",
+                         allowed=", ".join(KINDS))
     return tuple(dict.fromkeys(focus))
 
 
@@ -111,161 +127,193 @@ def _ln_rate_cost(stat: sinter.TaskStats) -> tuple[float, float]:
 
     Var(ln P) = (1 - P) / (n P) (binomial); d ln eps / d ln P = P (1 - 2P)^(1/r - 1) / (r eps).
     """
-    m = stat.json_metadata
-    r = int(m["rounds"])
+    r = int(stat.json_metadata["rounds"])
     kept = stat.shots - stat.discards
     p = max(stat.errors, 1) / kept  # zero errors: the rate is below ~1/n; use that as the scale
     p = min(p, 0.49)
-    eps = sinter.shot_error_rate_to_piece_error_rate(p, pieces=r)
+    eps = per_cycle_rate(p, rounds=r)
     g = p * (1 - 2 * p) ** (1 / r - 1) / (r * eps)
     return eps, g * g * (1 - p) / p * (stat.shots / max(kept, 1))
 
 
-def _solve_joint(model: ResponseModel, *, distance: int, eps_target: float) -> float | None:
-    """Joint factor f with eps_distance(f * every component) = eps_target (None without a root)."""
-    ln_t = math.log(eps_target)
-
-    def h(f: float) -> float:
-        return model.ln_eps({c: f for c in COMPONENTS}, distance) - ln_t
-
-    lo, hi = (1e-9, 1.0) if h(1.0) > 0 else (1.0, 1.0)
-    if lo == hi:  # met today: headroom, up to 1024x worse
-        while hi < 1024 and h(hi * 2) <= 0:
-            hi *= 2
-        if hi >= 1024:
-            return None
-        lo, hi = hi, hi * 2
-    if not (h(lo) <= 0 <= h(hi) or h(lo) >= 0 >= h(hi)):
-        return None
-    return float(brentq(h, lo, hi, xtol=1e-15, rtol=1e-13))
+def _joint_factor(model: ResponseModel, *, distance: int, eps_target: float) -> float | None:
+    """The joint factor meeting ``eps_target`` at ``distance`` (None: not reachable, or met with
+    unbounded headroom); the same search as ``planner ask``."""
+    answer = solve_lever(model, "joint", distance=distance, eps_target=eps_target)
+    return answer.factor if answer.reachable else None
 
 
-def assess(stats: Sequence[sinter.TaskStats], target: Target, *, precision: float,
-           focus: Sequence[str] = DEFAULT_FOCUS) -> Assessment:
-    """Fit what ``stats`` hold and say how precise each tracked answer is, with sensitivities."""
-    if not 0 < precision < 1:
-        raise ValueError("precision is a relative half-width, 0 < precision < 1")
-    focus = check_focus(focus)
-    stats = [s for s in stats if s.shots - s.discards > 0]
-    ids = tuple(s.strong_id for s in stats)
-    report = fit_stats(stats)
-    # the fits' own grouping: tasks -> (point, distance) -> point
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class _Rows:
+    """The fits' grouping: tasks -> (point, distance) rows ``keys`` -> one line per Lambda point.
+
+    ``y0``/``sig``: ln eps and its log sigma per row; ``coef[t]``: Var(y of the task's row)
+    contribution ``coef[t] / n_t``; ``row_of_task[t]``: the row (-1: not in any line)."""
+
+    lambdas: list[LambdaFit]
+    keys: list[tuple[str, float, int]]
+    slices: list[slice]
+    y0: np.ndarray
+    sig: np.ndarray
+    coef: np.ndarray
+    row_of_task: np.ndarray
+
+
+def _rows(stats: Sequence[sinter.TaskStats], report: FitReport) -> _Rows:
     group_tasks: dict[tuple[str, float, int], list[int]] = defaultdict(list)
     for t, s in enumerate(stats):
         m = s.json_metadata
         group_tasks[(str(m["axis"]), float(m["factor"]), int(m["d"]))].append(t)
     dist_fits = {(p.axis, p.factor, p.distance): p for p in report.distances}
     lambdas = [lf for lf in report.lambdas if lf.suppression is not None]
-    notes = [lf_note for lf_note in (f"{lf.axis}@{lf.factor:g}: {lf.note}" for lf in report.lambdas
-                                     if lf.suppression is None)]
     keys = [(lf.axis, lf.factor, d) for lf in lambdas for d in lf.distances]
-    y0 = np.array([math.log(dist_fits[k].per_cycle.best) for k in keys])
-    sig = np.array([dist_fits[k].log_sigma for k in keys])
-    # Var(y_k) = sum over the group's tasks of coef[t] / n_t (eps-weighted mean over bases)
     coef = np.zeros(len(stats))
-    key_of_task = np.full(len(stats), -1)
-    for j, k in enumerate(keys):
+    row_of_task = np.full(len(stats), -1)
+    for j, k in enumerate(keys):  # eps-weighted mean over the bases of a row
         members = group_tasks[k]
         parts = [_ln_rate_cost(stats[t]) for t in members]
         total = sum(e for e, _ in parts)
         for t, (e, c) in zip(members, parts):
             coef[t] = (e / total) ** 2 * c
-            key_of_task[t] = j
-    if not lambdas:
-        return Assessment((), ids, np.zeros((0, len(stats))), report, None,
-                          tuple(notes) or ("no scale point has a Lambda yet",))
+            row_of_task[t] = j
+    starts = np.cumsum([0] + [len(lf.distances) for lf in lambdas])
+    return _Rows(lambdas=lambdas, keys=keys, slices=[slice(a, b) for a, b in zip(starts, starts[1:])],
+                 y0=np.array([math.log(dist_fits[k].per_cycle.best) for k in keys]),
+                 sig=np.array([dist_fits[k].log_sigma for k in keys]), coef=coef, row_of_task=row_of_task)
 
-    slices = []
-    start = 0
-    for lf in lambdas:
-        slices.append(slice(start, start + len(lf.distances)))
-        start += len(lf.distances)
-    kvals = np.array([(k[2] + 1) / 2 for k in keys])
-    base = ModelData.from_fits(report)
-    model0 = fit_response(base, held_out=False)
-    distance, _ = choose_distance(target)
-    eps_goal = target.goal.logical_error_per_cycle
 
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class _Tracked:
+    """What is tracked: ``names`` (name, kind) in answer order."""
+
+    names: list[tuple[str, str]]
+    lambda_rows: list[int]
+    weight_groups: list[tuple[str, tuple[str, ...]]]
+    joint: bool
+    distance: int
+    eps_goal: float
+
+
+def _weight_groups(model: ResponseModel) -> list[tuple[str, tuple[str, ...]]]:
+    """Weights whose share of 1/Lambda today is at least :data:`WEIGHT_SHARE` (lumped: one)."""
+    total = sum(model.terms(None).values())
+    lumped = tuple(c for c in COMPONENTS if c in model.unsampled)
+    groups = [(c,) for c in COMPONENTS if c not in lumped] + ([lumped] if lumped else [])
+    return [("+".join(g), g) for g in groups
+            if total > 0 and sum(model.weights[c] for c in g) / total >= WEIGHT_SHARE]
+
+
+def _tracked(focus: Sequence[str], rows: _Rows, model0: ResponseModel, target: Target,
+             notes: list[str]) -> _Tracked:
     names: list[tuple[str, str]] = []
     lambda_rows: list[int] = []
-    for i, lf in enumerate(lambdas):
+    for i, lf in enumerate(rows.lambdas):
         today = lf.axis == "joint" and math.isclose(lf.factor, 1.0)
         if "lambda" in focus or ("lambda_today" in focus and today):
             names.append((f"lambda {lf.axis}@{lf.factor:g}", "lambda"))
             lambda_rows.append(i)
-    weight_groups: list[tuple[str, tuple[str, ...]]] = []
-    if "weights" in focus:
-        terms = model0.terms(None)
-        total = sum(terms.values())
-        lumped = tuple(c for c in COMPONENTS if c in model0.unsampled)
-        groups = [(c,) for c in COMPONENTS if c not in lumped] + ([lumped] if lumped else [])
-        for g in groups:
-            if total > 0 and sum(model0.weights[c] for c in g) / total >= WEIGHT_SHARE:
-                weight_groups.append(("+".join(g), g))
-                names.append((f"weight {'+'.join(g)}", "weights"))
-    want_joint = "joint_factor" in focus and _solve_joint(model0, distance=distance, eps_target=eps_goal) is not None
-    if "joint_factor" in focus and not want_joint:
+    groups = _weight_groups(model0) if "weights" in focus else []
+    names += [(f"weight {name}", "weights") for name, _ in groups]
+    distance, _ = choose_distance(target)
+    eps_goal = target.goal.logical_error_per_cycle
+    joint = "joint_factor" in focus and _joint_factor(model0, distance=distance, eps_target=eps_goal) is not None
+    if "joint_factor" in focus and not joint:
         notes.append(f"joint factor at d={distance}: no root in (0, 1024] (not reachable or met "
                      "with more than 1024x headroom): not tracked")
-    if want_joint:
+    if joint:
         names.append((f"joint factor d={distance}", "joint_factor"))
+    return _Tracked(names=names, lambda_rows=lambda_rows, weight_groups=groups, joint=joint,
+                    distance=distance, eps_goal=eps_goal)
 
+
+def _answers_function(rows: _Rows, tracked: _Tracked, base: ModelData,
+                      form: str) -> Callable[[np.ndarray], np.ndarray]:
+    """The tracked answers as a function of the rows' ln eps (the same fits as the answers)."""
     def answers_of(y: np.ndarray) -> np.ndarray:
-        ln_lam, ln_a = [], []
-        for lf, sl in zip(lambdas, slices):
-            line = weighted_line(kvals[sl], y[sl], sig[sl])
-            ln_lam.append(-line.slope)
-            ln_a.append(line.intercept)
-        out = [math.exp(ln_lam[i]) for i in lambda_rows]
-        if weight_groups or want_joint:
-            data = dataclasses.replace(base, inv_lambda=np.exp(-np.array(ln_lam)), ln_a=np.array(ln_a))
-            model = fit_response(data, form=model0.form, held_out=False)
-            out += [sum(model.weights[c] for c in g) for _, g in weight_groups]
-            if want_joint:
-                f = _solve_joint(model, distance=distance, eps_target=eps_goal)
+        lines = [suppression_line([k[2] for k in rows.keys[sl]], y[sl], rows.sig[sl]) for sl in rows.slices]
+        out = [math.exp(-lines[i].slope) for i in tracked.lambda_rows]
+        if tracked.weight_groups or tracked.joint:
+            data = dataclasses.replace(base, inv_lambda=np.exp([line.slope for line in lines]),
+                                       ln_a=np.array([line.intercept for line in lines]))
+            model = fit_response(data, form=form, held_out=False)
+            out += [sum(model.weights[c] for c in g) for _, g in tracked.weight_groups]
+            if tracked.joint:
+                f = _joint_factor(model, distance=tracked.distance, eps_target=tracked.eps_goal)
                 out.append(math.nan if f is None else f)
         return np.array(out, float)
 
-    values = answers_of(y0)
-    jac = np.zeros((len(names), len(keys)))
-    for j in range(len(keys)):
-        up, down = y0.copy(), y0.copy()
+    return answers_of
+
+
+def _sensitivity(answers_of: Callable[[np.ndarray], np.ndarray], rows: _Rows, num_answers: int) -> np.ndarray:
+    """``S[a, t] = J[a, row(t)]^2 * coef[t]`` (Var_a = sum_t S[a, t] / n_t), J by central differences."""
+    jac = np.zeros((num_answers, len(rows.keys)))
+    for j in range(len(rows.keys)):
+        up, down = rows.y0.copy(), rows.y0.copy()
         up[j] += FD_STEP
         down[j] -= FD_STEP
         jac[:, j] = (answers_of(up) - answers_of(down)) / (2 * FD_STEP)
     jac = np.nan_to_num(jac)
-    # S[a, t] = J[a, key(t)]^2 * coef[t]: Var_a = sum_t S[a, t] / n_t
-    sens = np.zeros((len(names), len(stats)))
-    for t in range(len(stats)):
-        if key_of_task[t] >= 0:
-            sens[:, t] = jac[:, key_of_task[t]] ** 2 * coef[t]
+    sens = np.zeros((num_answers, len(rows.row_of_task)))
+    for t, row in enumerate(rows.row_of_task):
+        if row >= 0:
+            sens[:, t] = jac[:, row] ** 2 * rows.coef[t]
+    return sens
+
+
+def _precision_of(name: str, kind: str, value: float, variance: float, precision: float,
+                  by_name: Mapping[str, LambdaFit], notes: list[str]) -> AnswerPrecision:
+    rel = Z_SCORE * math.sqrt(variance) / abs(value) if value else math.inf
+    fit_rel = None
+    if kind == "lambda":
+        lf = by_name[name]
+        fit_rel = lf.suppression.relative_half_width
+        if fit_rel > max(rel, precision) * 1.05 and (lf.chi2_per_dof or 0) > 1:
+            notes.append(f"{name}: the fit widens its interval to +-{100 * fit_rel:.1f}% for "
+                         f"scatter beyond the intervals (chi2/dof {lf.chi2_per_dof:.2f}); more "
+                         "shots do not narrow that part")
+    return AnswerPrecision(name=name, kind=kind, value=float(value), relative_half_width=float(rel),
+                           target=precision, fit_relative_half_width=fit_rel)
+
+
+def assess(stats: Sequence[sinter.TaskStats], target: Target, *, precision: float,
+           focus: Sequence[str] = DEFAULT_FOCUS) -> Assessment:
+    """Fit what ``stats`` hold and say how precise each tracked answer is, with sensitivities."""
+    if not 0 < precision < 1:
+        raise InputError(f"{precision!r} is not allowed: a relative half-width", field="precision",
+                         allowed="0 < precision < 1")
+    focus = check_focus(focus)
+    stats = [s for s in stats if s.shots - s.discards > 0]
+    ids = tuple(s.strong_id for s in stats)
+    report = fit_stats(stats)
+    rows = _rows(stats, report)
+    notes = [f"{lf.axis}@{lf.factor:g}: {lf.note}" for lf in report.lambdas if lf.suppression is None]
+    if not rows.lambdas:
+        return Assessment(answers=(), task_ids=ids, sensitivity=np.zeros((0, len(stats))), report=report,
+                          model=None, notes=tuple(notes) or ("no scale point has a Lambda yet",))
+    base = ModelData.from_fits(report)
+    model0 = fit_response(base, held_out=False)
+    tracked = _tracked(focus, rows, model0, target, notes)
+    answers_of = _answers_function(rows, tracked, base, model0.form)
+    values = answers_of(rows.y0)
+    sens = _sensitivity(answers_of, rows, len(tracked.names))
     n = np.array([max(s.shots, 1) for s in stats], float)
-    delta_var = (sens / n).sum(axis=1)
-    answers = []
-    by_name = {f"lambda {lf.axis}@{lf.factor:g}": lf for lf in lambdas}
-    for a, ((name, kind), value) in enumerate(zip(names, values)):
-        rel = Z_SCORE * math.sqrt(delta_var[a]) / abs(value) if value else math.inf
-        fit_rel = None
-        if kind == "lambda":
-            lf = by_name[name]
-            fit_rel = (lf.suppression.high - lf.suppression.low) / (2 * lf.suppression.best)
-            if fit_rel > max(rel, precision) * 1.05 and (lf.chi2_per_dof or 0) > 1:
-                notes.append(f"{name}: the fit widens its interval to +-{100 * fit_rel:.1f}% for "
-                             f"scatter beyond the intervals (chi2/dof {lf.chi2_per_dof:.2f}); more "
-                             "shots do not narrow that part")
-        answers.append(AnswerPrecision(name=name, kind=kind, value=float(value),
-                                       relative_width=float(rel), target=precision,
-                                       fit_relative_width=fit_rel))
-    return Assessment(tuple(answers), ids, sens, report, model0, tuple(notes))
+    variances = (sens / n).sum(axis=1)
+    by_name = {f"lambda {lf.axis}@{lf.factor:g}": lf for lf in rows.lambdas}
+    answers = tuple(_precision_of(name, kind, value, var, precision, by_name, notes)
+                    for (name, kind), value, var in zip(tracked.names, values, variances))
+    return Assessment(answers=answers, task_ids=ids, sensitivity=sens, report=report, model=model0,
+                      notes=tuple(notes))
 
 
 def describe(answer: AnswerPrecision) -> str:
     """One-line text of an answer's precision.
 
-    >>> describe(AnswerPrecision("lambda joint@1", "lambda", 2.0, 0.1234, 0.1))
+    >>> describe(AnswerPrecision(name="lambda joint@1", kind="lambda", value=2.0, relative_half_width=0.1234,
+    ...                          target=0.1))
     'lambda joint@1 = 2 +- 12.3% (target 10%)'
     """
-    return (f"{answer.name} = {answer.value:.4g} +- {100 * answer.relative_width:.1f}% "
+    return (f"{answer.name} = {answer.value:.4g} +- {100 * answer.relative_half_width:.1f}% "
             f"(target {100 * answer.target:g}%)")
 
 

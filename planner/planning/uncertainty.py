@@ -32,11 +32,11 @@ from planner.planning.ask import (
     TINY,
     Requirements,
     _scaled,
-    _solve_lever,
     cheapest_mix,
     cost_shares,
     required_suppression,
     smallest_distance,
+    solve_lever,
 )
 from planner.planning.model import ModelData, ResponseModel, fit_response
 
@@ -137,7 +137,7 @@ def bootstrap(stats: Sequence[sinter.TaskStats], report: FitReport, model: Respo
     mix = answer.mix
     for m in models:
         for lever, best_answer in levers.items():
-            a = _solve_lever(m, lever, distance=d, eps_target=eps)
+            a = solve_lever(m, lever, distance=d, eps_target=eps)
             key = "joint_factor" if lever == "joint" else f"factor.{lever}"
             # a replica with unbounded headroom (factor None) has no number to add: the interval
             # is over the others and the reached fraction says how many
