@@ -18,7 +18,7 @@ import numpy as np
 import sinter
 
 from planner.config import COMPONENTS, Target
-from planner.fits import CONFIDENCE, Interval, fit_stats
+from planner.fits import CONFIDENCE, FitReport, Interval, fit_stats
 
 MAX_VERIFY_DISTANCE = 7
 
@@ -151,29 +151,43 @@ def _same_scales(a: dict[str, float], b: dict[str, float]) -> bool:
     return all(math.isclose(a.get(c, 1.0), b.get(c, 1.0), rel_tol=1e-9, abs_tol=1e-12) for c in COMPONENTS)
 
 
+def _sampled_at(stats: Sequence[sinter.TaskStats], points: Sequence[OperatingPoint]) -> FitReport | None:
+    """Fits of the samples taken at ``points`` (a task of another point or label is left out)."""
+    def at_a_point(meta: Any) -> bool:
+        return isinstance(meta, dict) and any(
+            meta.get("axis") == p.label and _same_scales(meta.get("scales", {}), p.scales) for p in points)
+
+    keep = [s for s in stats if at_a_point(s.json_metadata)]
+    return fit_stats(keep) if keep else None
+
+
+def _rows_at(answers: Any, point: OperatingPoint, distances: Sequence[int],
+             report: FitReport | None) -> list[VerifyRow]:
+    """Predicted vs sampled eps at each distance and, with two distances, Lambda at one point."""
+    model = answers.model
+    models = answers.uncertainty.models if answers.uncertainty else ()
+    rows = []
+    for d in distances:
+        best = model.logical_error_per_cycle(point.scales, d)
+        pred = _predicted(models, best, [m.logical_error_per_cycle(point.scales, d) for m in models])
+        got = next((x for x in (report.distances if report else ())
+                    if x.axis == point.label and x.distance == d), None)
+        rows.append(VerifyRow(point.label, "logical_error_per_cycle", d, pred,
+                              got.per_cycle if got else None, bool(got and got.zero_errors)))
+    if len(distances) >= 2:
+        best = model.suppression(point.scales)
+        pred = _predicted(models, best, [m.suppression(point.scales) for m in models])
+        lf = next((x for x in (report.lambdas if report else ()) if x.axis == point.label), None)
+        rows.append(VerifyRow(point.label, "suppression_factor", None, pred,
+                              lf.suppression if lf else None, bool(lf and lf.uses_zero_error_points)))
+    return rows
+
+
 def compare(answers: Any, points: Sequence[OperatingPoint], distances: Sequence[int],
             stats: Sequence[sinter.TaskStats]) -> Verification:
     """Predicted (model, bootstrap interval) vs sampled (fits of ``stats``) at each point."""
-    model = answers.model
-    models = answers.uncertainty.models if answers.uncertainty else ()
-    keep = [s for s in stats if isinstance(s.json_metadata, dict) and any(
-        s.json_metadata.get("axis") == p.label and _same_scales(s.json_metadata.get("scales", {}), p.scales)
-        for p in points)]
-    report = fit_stats(keep) if keep else None
-    rows = []
-    for p in points:
-        for d in distances:
-            best = model.logical_error_per_cycle(p.scales, d)
-            pred = _predicted(models, best, [m.logical_error_per_cycle(p.scales, d) for m in models])
-            got = next((x for x in (report.distances if report else ()) if x.axis == p.label and x.distance == d), None)
-            rows.append(VerifyRow(p.label, "logical_error_per_cycle", d, pred,
-                                  got.per_cycle if got else None, bool(got and got.zero_errors)))
-        if len(distances) >= 2:
-            best = model.suppression(p.scales)
-            pred = _predicted(models, best, [m.suppression(p.scales) for m in models])
-            lf = next((x for x in (report.lambdas if report else ()) if x.axis == p.label), None)
-            rows.append(VerifyRow(p.label, "suppression_factor", None, pred,
-                                  lf.suppression if lf else None, bool(lf and lf.uses_zero_error_points)))
+    report = _sampled_at(stats, points)
+    rows = [row for p in points for row in _rows_at(answers, p, distances, report)]
     note = "" if points else "no reachable operating point to verify"
     if len(distances) < 2:
         note = (note + "; " if note else "") + "one samplable distance: Lambda not verified"
