@@ -38,7 +38,8 @@ from collections.abc import Iterable, Sequence
 
 import stim
 
-from planner.config import size_problem
+from planner.config import distance_problem, size_problem
+from planner.errors import InputError
 from planner.noise import NoiseModel
 
 CODES: tuple[str, ...] = ("surface", "repetition")
@@ -67,8 +68,8 @@ def noiseless_memory_circuit(*, code: str, distance: int, rounds: int, basis: st
     """
     if code not in CODES:
         raise ValueError(f"unknown code {code!r}; known: {', '.join(CODES)}")
-    if isinstance(distance, bool) or not isinstance(distance, int) or distance < 3 or distance % 2 == 0:
-        raise ValueError(f"distance must be an odd integer >= 3, got {distance!r}")
+    if (problem := distance_problem(distance)) is not None:
+        raise InputError(problem, field="distance")
     if isinstance(rounds, bool) or not isinstance(rounds, int) or rounds < 1:
         raise ValueError(f"rounds must be an integer >= 1, got {rounds!r}")
     # estimate the size before stim builds anything: a huge circuit would take minutes and gigabytes

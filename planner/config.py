@@ -93,6 +93,34 @@ MAX_NAME_LENGTH = 200
 MAX_TARGET_BYTES = 2**20
 
 
+def distance_problem(distance: object, *, largest: int = MAX_DISTANCE) -> str | None:
+    """Why ``distance`` is not a code distance (an odd integer 3 <= d <= ``largest``), or None:
+    the one odd-distance check (target files, circuits, questions).
+
+    >>> distance_problem(5), distance_problem(4)
+    (None, '4 is not allowed: distances are odd integers >= 3 (odd 3 <= d <= 101)')
+    >>> distance_problem(103)
+    '103 is too large: odd distances from 3 to 101 are allowed'
+    """
+    if isinstance(distance, bool) or not isinstance(distance, int) or distance < 3 or distance % 2 == 0:
+        return f"{distance!r} is not allowed: distances are odd integers >= 3 (odd 3 <= d <= {largest})"
+    if distance > largest:
+        return f"{distance} is too large: odd distances from 3 to {largest} are allowed"
+    return None
+
+
+def coherence_problem(*, t1_us: float, t2_us: float) -> str | None:
+    """Why T1 and T2 cannot belong to one physical qubit (T2 <= 2 T1), or None: the one check of
+    it (target files and noise models).
+
+    >>> coherence_problem(t1_us=50, t2_us=40), coherence_problem(t1_us=10, t2_us=30)
+    (None, 'T2 = 30 us exceeds 2*T1 = 20 us, which no physical qubit allows (T2 <= 2*T1)')
+    """
+    if t2_us > 2 * t1_us * (1 + 1e-12):
+        return f"T2 = {t2_us:g} us exceeds 2*T1 = {2 * t1_us:g} us, which no physical qubit allows (T2 <= 2*T1)"
+    return None
+
+
 def memory_circuit_size(*, code: str, distance: int, rounds: int) -> tuple[int, int]:
     """(qubits, detectors) of a memory experiment, computed without building it: a rotated
     surface code of distance d has d**2 data and d**2 - 1 measure qubits and checks (d**2 - 1)
@@ -115,8 +143,8 @@ def size_problem(*, code: str, distance: int, rounds: int) -> str | None:
     >>> print(size_problem(code="surface", distance=3, rounds=10**6))
     d=3 with 1000000 rounds has 8,000,000 detectors; at most 1,048,576 are allowed (about 1.5 GB per sampling worker): at d=3 use rounds <= 131072
     """
-    if distance > MAX_DISTANCE:
-        return f"distance {distance} is too large: odd distances from 3 to {MAX_DISTANCE} are allowed"
+    if (problem := distance_problem(distance)) is not None:
+        return f"distance {problem}"
     _, detectors = memory_circuit_size(code=code, distance=distance, rounds=rounds)
     if detectors <= MAX_DETECTORS:
         return None
@@ -224,11 +252,8 @@ class Sweep(_Frozen):
         if not v:
             raise ValueError("needs at least one distance")
         for d in v:
-            if d < 3 or d % 2 == 0:
-                raise ValueError(f"distance {d} is not allowed: distances are odd integers >= 3")
-            if d > MAX_DISTANCE:
-                raise ValueError(f"distance {d} is too large: odd distances from 3 to {MAX_DISTANCE} "
-                                 "are allowed")
+            if (problem := distance_problem(d)) is not None:
+                raise ValueError(f"distance {problem}")
         v = tuple(sorted(set(v)))
         if len(v) > MAX_DISTANCES:
             raise ValueError(f"{len(v)} distances: at most {MAX_DISTANCES} are allowed")
@@ -380,10 +405,9 @@ def _check_consistency(t: Target, source: str) -> None:
         if d.durations is None:
             raise bad("device.durations", "missing section: give gate_1q_ns, gate_2q_ns, measure_ns, "
                       "reset_ns (or a device.preset)")
-        c = d.coherence
-        if c.t2_us > 2 * c.t1_us * (1 + 1e-12):
-            raise bad("device.coherence.t2_us", f"T2 = {c.t2_us} us exceeds 2*T1 = {2 * c.t1_us} us, "
-                      "which no physical qubit allows (T2 <= 2*T1)")
+        problem = coherence_problem(t1_us=d.coherence.t1_us, t2_us=d.coherence.t2_us)
+        if problem is not None:
+            raise bad("device.coherence.t2_us", problem)
     else:
         if d.preset.model == "si1000" and d.native_2q != "cz":
             raise bad("device.native_2q", "the si1000 preset is CZ-native: set native_2q = \"cz\"")

@@ -28,7 +28,8 @@ import math
 from collections.abc import Mapping
 from typing import Any
 
-from planner.config import COMPONENTS, MAX_PROBABILITY, Target
+from planner.config import COMPONENTS, MAX_PROBABILITY, Target, coherence_problem
+from planner.errors import InputError
 
 
 @dataclasses.dataclass(frozen=True)
@@ -58,8 +59,8 @@ def twirl_idle(*, duration_ns: float, t1_us: float, t2_us: float) -> PauliChanne
     >>> round(c.px, 8), round(c.pz, 8)
     (0.0004995, 0.00116439)
     """
-    if t2_us > 2 * t1_us * (1 + 1e-12):
-        raise ValueError(f"T2 = {t2_us} us exceeds 2*T1 = {2 * t1_us} us")
+    if (problem := coherence_problem(t1_us=t1_us, t2_us=t2_us)) is not None:
+        raise InputError(problem, field="t2_us")
     t_us = duration_ns / 1000.0
     decay1 = -math.expm1(-t_us / t1_us) if math.isfinite(t1_us) else 0.0
     decay2 = -math.expm1(-t_us / t2_us) if math.isfinite(t2_us) else 0.0

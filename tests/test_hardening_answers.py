@@ -69,7 +69,7 @@ def test_repetition_target_goal_budget_and_today():
     assert r.to_json()["code"] == "repetition"
     r7 = requirements(m, REPETITION, qubits=13)  # 2*7-1 = 13
     assert (r7.distance, r7.physical_qubits) == (7, 13)
-    with pytest.raises(InputError, match=r"--qubits: 4 qubits is fewer than the 5 a distance-3 repetition"):
+    with pytest.raises(InputError, match=r"qubits: 4 qubits is fewer than the 5 a distance-3 repetition"):
         choose_distance(REPETITION, qubits=4)
 
 
@@ -230,11 +230,11 @@ def test_calculator_beyond_the_largest_distance_says_so():
 
 def test_distances_and_budgets_beyond_the_limit():
     m = make_model(W)
-    with pytest.raises(InputError, match=r"--distance: 1000000000000000000 is not allowed: .*3 <= d <= 1001"):
+    with pytest.raises(InputError, match=r"distance: 1000000000000000000 is not allowed: .*3 <= d <= 1001"):
         requirements(m, SURFACE, distance=10**18)
     r = requirements(m, SURFACE, qubits=10**18)  # answered at the largest distance, and said so
     assert r.distance == MAX_DISTANCE and "capped" in r.distance_source
-    with pytest.raises(InputError, match="--target"):
+    with pytest.raises(InputError, match="target"):
         requirements(m, SURFACE, eps_target=1e-320)
 
 

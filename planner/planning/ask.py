@@ -18,26 +18,28 @@ from scipy.optimize import brentq, minimize
 from planner.config import COMPONENTS, Target
 from planner.errors import InputError
 from planner.fits import FitReport, Interval
+from planner.planning.limits import (
+    HEADROOM_LIMIT,
+    MAX_DISTANCE,
+    MAX_HALVINGS,
+    MIN_RATE,
+    TINY,
+    _below,
+    _fin,
+    _ivj,
+    check_distance,
+    check_rate,
+)
+from planner.planning.mix import MixAnswer, cheapest_mix, cost_shares, mix_cost
 from planner.planning.model import ResponseModel, largest_distance_within, physical_qubits, qubit_rule
 
-#: largest distance planner answers for: every --distance, every search and every qubit budget
-#: stops here. A distance-1001 surface code is two million physical qubits, and an answer there
-#: already rests on hundreds of factors of Lambda extrapolated beyond any sampled distance.
-MAX_DISTANCE = 1001
-#: smallest logical error per cycle planner takes as a goal or a measurement: a rate below it
-#: is beyond any reachable one (no computation runs 10^100 cycles)
-MIN_RATE = 1e-100
-#: model figures below this are not printed as numbers (they would underflow to 0): "below"
-TINY = 1e-300
-#: a lever that may get this many times worse and still meet the goal has unbounded headroom
-HEADROOM_LIMIT = 1024.0
-#: the cheapest-mix search lets a component improve at most 2^-MAX_HALVINGS
-MAX_HALVINGS = 30.0
-
-
-def _ivj(iv: Interval | None) -> dict[str, Any] | None:
-    return iv.to_json() if iv is not None else None
-
+__all__ = [
+    "HEADROOM_LIMIT", "MAX_DISTANCE", "MAX_HALVINGS", "MIN_RATE", "TINY", "Boundary", "FactorAnswer",
+    "MixAnswer", "Requirements", "TodayAnswer", "check_distance", "check_rate", "cheapest_mix",
+    "choose_distance", "cost_shares", "distance_extrapolation_note", "find_boundary", "goal_distance",
+    "mix_cost", "required_suppression", "requirements", "smallest_distance", "solve_lever",
+    "today_answer", "what_if",
+]
 
 @dataclasses.dataclass(frozen=True)
 class FactorAnswer:
@@ -58,49 +60,6 @@ class FactorAnswer:
         return {"lever": self.lever, "reachable": self.reachable, "factor": self.factor,
                 "suppression_factor": _fin(self.suppression), "note": self.note,
                 "extrapolation": list(self.extrapolation), "factor_interval": _ivj(self.factor_interval),
-                "suppression_factor_interval": _ivj(self.suppression_interval)}
-
-
-def _fin(x: float | None) -> float | None:
-    return None if x is None or not math.isfinite(x) else float(x)
-
-
-@dataclasses.dataclass(frozen=True)
-class MixAnswer:
-    """The cheapest set of factors: minimises sum_c cost_c * log2(1/s_c) subject to the goal.
-
-    ``cost_shares``: each component's part of :attr:`cost` (fractions summing to 1; empty when
-    the cost is 0). The ``*_interval(s)`` fields are bootstrap intervals (the mix re-solved on
-    each replica model), None until :func:`planner.planning.uncertainty.with_intervals` runs.
-    """
-
-    reachable: bool
-    scales: dict[str, float]
-    cost: float | None
-    suppression: float
-    logical_error_per_cycle: float | None
-    note: str = ""
-    extrapolation: tuple[str, ...] = ()
-    cost_shares: dict[str, float] = dataclasses.field(default_factory=dict)
-    scale_intervals: dict[str, Interval] = dataclasses.field(default_factory=dict)
-    cost_share_intervals: dict[str, Interval] = dataclasses.field(default_factory=dict)
-    cost_interval: Interval | None = None
-    suppression_interval: Interval | None = None
-
-    def changed(self) -> list[str]:
-        """Components the mix improves (factor below 1), in COMPONENTS order."""
-        return [c for c in COMPONENTS if self.scales.get(c, 1.0) < 1.0]
-
-    def to_json(self) -> dict[str, Any]:
-        return {"reachable": self.reachable, "scales": dict(self.scales), "cost_halvings": self.cost,
-                "suppression_factor": _fin(self.suppression),
-                "logical_error_per_cycle": _fin(self.logical_error_per_cycle), "note": self.note,
-                "extrapolation": list(self.extrapolation),
-                "halvings": {c: -math.log2(s) if s > 0 else None for c, s in self.scales.items()},
-                "cost_shares": dict(self.cost_shares),
-                "scale_intervals": {c: v.to_json() for c, v in self.scale_intervals.items()},
-                "cost_share_intervals": {c: v.to_json() for c, v in self.cost_share_intervals.items()},
-                "cost_halvings_interval": _ivj(self.cost_interval),
                 "suppression_factor_interval": _ivj(self.suppression_interval)}
 
 
@@ -179,19 +138,19 @@ def choose_distance(target: Target, *, distance: int | None = None, qubits: int 
     odd one whose code (the target's ``sweep.code``) fits in ``qubits`` or ``goal.max_qubits``,
     at most :data:`MAX_DISTANCE`."""
     if distance is not None and qubits is not None:
-        raise InputError("give --distance or --qubits, not both")
+        raise InputError("given together with a distance: give one of them, not both", field="qubits")
     if distance is not None:
         check_distance(distance)
         return distance, "given"
     code = target.sweep.code
-    name, limit = ("--qubits", qubits) if qubits is not None else ("goal.max_qubits", target.goal.max_qubits)
+    name, limit = ("qubits", qubits) if qubits is not None else ("goal.max_qubits", target.goal.max_qubits)
     if isinstance(limit, bool) or not isinstance(limit, int):
-        raise InputError(f"{name}: {limit!r} is not allowed: a whole number of physical qubits")
+        raise InputError(f"{limit!r} is not allowed: a whole number of physical qubits", field=name)
     source = f"{'from --qubits' if qubits is not None else 'from goal.max_qubits'} ({limit})"
     d = largest_distance_within(min(limit, physical_qubits(MAX_DISTANCE + 2, code) - 1), code)
     if d is None:
-        raise InputError(f"{name}: {limit} qubits is fewer than the {physical_qubits(3, code)} a "
-                         f"distance-3 {code} code needs ({qubit_rule(code)})")
+        raise InputError(f"{limit} qubits is fewer than the {physical_qubits(3, code)} a "
+                         f"distance-3 {code} code needs ({qubit_rule(code)})", field=name)
     if physical_qubits(MAX_DISTANCE + 2, code) <= limit:
         source += f", capped at d = {MAX_DISTANCE}, the largest planner answers for"
     return d, source
@@ -207,19 +166,6 @@ def goal_distance(target: Target) -> int:
     """
     found = largest_distance_within(target.goal.max_qubits, target.sweep.code) or 3
     return min(found, MAX_DISTANCE)
-
-
-def check_distance(distance: int, *, name: str = "--distance") -> None:
-    """Refuse a distance planner does not answer for (odd, 3 <= d <= :data:`MAX_DISTANCE`)."""
-    if isinstance(distance, bool) or not isinstance(distance, int) or distance < 3 or distance % 2 == 0 \
-            or distance > MAX_DISTANCE:
-        raise InputError(f"{name}: {distance} is not allowed: give an odd integer 3 <= d <= {MAX_DISTANCE}")
-
-
-def check_rate(name: str, value: float) -> None:
-    """Refuse a logical error per cycle outside [:data:`MIN_RATE`, 0.5)."""
-    if not (MIN_RATE <= value < 0.5):
-        raise InputError(f"{name}: {value!r} is not allowed: a per-cycle error rate {MIN_RATE:g} <= eps < 0.5")
 
 
 def what_if(target: Target, *, eps_target: float | None = None, distance: int | None = None,
@@ -241,11 +187,6 @@ def what_if(target: Target, *, eps_target: float | None = None, distance: int | 
     if distance is not None and (qubits is not None or distance != goal_distance(target)):
         asked["distance"] = distance
     return asked
-
-
-def _below(x: float) -> float | None:
-    """``x``, or None when it is too small to print (it would read as 0)."""
-    return x if x >= TINY else None
 
 
 def _scaled(comp: str, f: float) -> dict[str, float]:
@@ -322,77 +263,6 @@ def solve_lever(model: ResponseModel, lever: str, *, distance: int, eps_target: 
                         note=note, extrapolation=tuple(model.extrapolation(_scaled(lever, f))))
 
 
-def mix_cost(scales: Mapping[str, float], costs: Mapping[str, float]) -> float:
-    """sum_c cost_c * log2(1/s_c): the number of cost-weighted halvings of error.
-
-    >>> mix_cost({"gate_2q": 0.25, "readout": 0.5}, {"gate_2q": 1.0, "readout": 3.0})
-    5.0
-    """
-    return float(sum(costs.get(c, 1.0) * -math.log2(s) for c, s in scales.items() if s < 1))
-
-
-def cost_shares(scales: Mapping[str, float], costs: Mapping[str, float]) -> dict[str, float]:
-    """Each improved component's fraction of :func:`mix_cost` (empty when nothing improves).
-
-    >>> cost_shares({"gate_2q": 0.25, "readout": 0.5, "reset": 1.0}, {"gate_2q": 1.0, "readout": 3.0})
-    {'gate_2q': 0.4, 'readout': 0.6}
-    """
-    total = mix_cost(scales, costs)
-    if total <= 0:
-        return {}
-    return {c: costs.get(c, 1.0) * -math.log2(s) / total for c, s in scales.items() if s < 1}
-
-
-def cheapest_mix(model: ResponseModel, *, distance: int, eps_target: float, costs: Mapping[str, float],
-                 starts: tuple[dict[str, float], ...] = (), default_starts: bool = True) -> MixAnswer:
-    """Minimise sum_c cost_c log2(1/s_c) over s_c in (0, 1] with eps_distance(s) <= eps_target.
-
-    ``starts`` seed the optimiser; ``default_starts=False`` uses only them (the bootstrap re-solves
-    each replica from the original answer, which is close, to stay fast)."""
-    ln_t = math.log(eps_target)
-    today = {c: 1.0 for c in COMPONENTS}
-    if model.ln_eps(today, distance) <= ln_t:
-        return MixAnswer(True, today, 0.0, model.suppression(today),
-                         _below(model.logical_error_per_cycle(today, distance)), note="goal already met today")
-    levers = [c for c in COMPONENTS if model.weights[c] > 0 or model.curvature[c] > 0]
-    if not levers:
-        return MixAnswer(False, today, None, model.suppression(today), math.nan, note="model has no levers")
-    cost = np.array([costs.get(c, 1.0) for c in levers])
-
-    def scales_of(u: np.ndarray) -> dict[str, float]:
-        s = dict(today)
-        s.update({c: float(2.0 ** -ui) for c, ui in zip(levers, u)})
-        return s
-
-    def slack(u: np.ndarray) -> float:
-        return ln_t - model.ln_eps(scales_of(u), distance)
-
-    best: np.ndarray | None = None
-    x0s = [np.array([-math.log2(max(st.get(c, 1.0), 2 ** -MAX_HALVINGS)) for c in levers]) for st in starts]
-    if default_starts or not x0s:
-        x0s.append(np.full(len(levers), 1.0))
-        x0s.append(np.full(len(levers), 4.0))
-    for x0 in x0s:
-        r = minimize(lambda u: float(cost @ u), x0, jac=lambda u: cost, method="SLSQP",
-                     bounds=[(0.0, MAX_HALVINGS)] * len(levers),
-                     constraints=[{"type": "ineq", "fun": slack}], options={"maxiter": 200, "ftol": 1e-12})
-        u = np.clip(r.x, 0.0, MAX_HALVINGS)
-        if slack(u) >= -1e-9 and (best is None or cost @ u < cost @ best):
-            best = u
-    if best is None:
-        return MixAnswer(False, today, None, model.suppression(today), math.nan,
-                         note="not reachable: no mix of factors meets the goal at this distance")
-    # land exactly on the goal: pull the mix back along the line to today until the constraint binds
-    if slack(best) > 1e-12 and slack(best * 0) < 0:
-        t = brentq(lambda a: slack(best * a), 0.0, 1.0, xtol=1e-14)
-        best = best * t
-    s = scales_of(best)
-    s = {c: (1.0 if v > 1 - 1e-12 else v) for c, v in s.items()}
-    return MixAnswer(True, s, mix_cost(s, costs), model.suppression(s),
-                     model.logical_error_per_cycle(s, distance),
-                     extrapolation=tuple(model.extrapolation(s)), cost_shares=cost_shares(s, costs))
-
-
 def required_suppression(model: ResponseModel, *, distance: int, eps_target: float) -> float | None:
     """Lambda needed at ``distance`` with today's prefactor A: (A / eps)^(2 / (d + 1)) (None when
     that is beyond any float, which no device reaches)."""
@@ -443,7 +313,7 @@ def requirements(model: ResponseModel, target: Target, *, eps_target: float | No
                  report: FitReport | None = None) -> Requirements:
     """All answers for one goal (default: the target's goal) at one distance."""
     eps = float(eps_target if eps_target is not None else target.goal.logical_error_per_cycle)
-    check_rate("--target" if eps_target is not None else "goal.logical_error_per_cycle", eps)
+    check_rate("eps_target" if eps_target is not None else "goal.logical_error_per_cycle", eps)
     d, source = choose_distance(target, distance=distance, qubits=qubits)
     joint = solve_lever(model, "joint", distance=d, eps_target=eps)
     comps = tuple(solve_lever(model, c, distance=d, eps_target=eps) for c in COMPONENTS)

@@ -17,7 +17,7 @@ import math
 from typing import Any
 
 from planner.errors import InputError
-from planner.planning.ask import MAX_DISTANCE, check_distance, check_rate
+from planner.planning.limits import MAX_DISTANCE, check_distance, check_rate
 from planner.planning.model import physical_qubits
 
 
@@ -58,22 +58,23 @@ def calculate(*, suppression: float, eps: float, distance: int, eps_target: floa
     """Smallest odd distance meeting ``eps_target`` from a measured Lambda and eps at ``distance``.
 
     Works in logarithms, so no intermediate overflows; a distance beyond
-    :data:`~planner.planning.ask.MAX_DISTANCE` is "not reachable" (exit 0), inputs out of range
+    :data:`~planner.planning.limits.MAX_DISTANCE` is "not reachable" (exit 0), inputs out of range
     raise :class:`~planner.errors.InputError`.
     """
     if not (0 < suppression <= MAX_LAMBDA):
-        raise InputError(f"--lambda: {suppression!r} is not allowed: a suppression factor "
-                         f"0 < Lambda <= {MAX_LAMBDA:g}")
-    check_rate("--eps", eps)
-    check_rate("--target", eps_target)
+        raise InputError(f"{suppression!r} is not allowed: a suppression factor", field="suppression",
+                         allowed=f"0 < Lambda <= {MAX_LAMBDA:g}")
+    check_rate("eps", eps)
+    check_rate("eps_target", eps_target)
     check_distance(distance)
     k = (distance + 1) / 2
     ln_lam = math.log(suppression)
     ln_prefactor = math.log(eps) + k * ln_lam
     if ln_prefactor > math.log(MAX_PREFACTOR):
-        raise InputError(f"--eps: {eps:g} at --distance {distance} with --lambda {suppression:g} is not "
+        raise InputError(f"{eps:g} at distance {distance} with Lambda {suppression:g} is not "
                          f"allowed: it implies a prefactor A = eps * Lambda^((d+1)/2) = 10^"
-                         f"{ln_prefactor / math.log(10):.0f}, above {MAX_PREFACTOR:g}; no device has that")
+                         f"{ln_prefactor / math.log(10):.0f}, above {MAX_PREFACTOR:g}; no device has that",
+                         field="eps")
     prefactor = math.exp(ln_prefactor)
     # (A / eps_target)^(1/k) = Lambda * (eps / eps_target)^(1/k)
     required = math.exp(ln_lam + (math.log(eps) - math.log(eps_target)) / k)
