@@ -12,8 +12,7 @@ import math
 from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
-import numpy as np
-from scipy.optimize import brentq, minimize
+from scipy.optimize import brentq
 
 from planner.config import COMPONENTS, Target
 from planner.errors import InputError

@@ -17,7 +17,7 @@ from typing import Any
 import numpy as np
 import sinter
 
-from planner.config import COMPONENTS, Target
+from planner.config import COMPONENTS
 from planner.fits import CONFIDENCE, FitReport, Interval, fit_stats
 
 MAX_VERIFY_DISTANCE = 7
