@@ -166,7 +166,8 @@ class NoiseModel:
             if comp not in COMPONENTS:
                 raise KeyError(f"unknown component {comp!r}; known: {', '.join(COMPONENTS)}")
             if not (f >= 0 and math.isfinite(f)):
-                raise ValueError(f"scale factor for {comp} must be a finite number >= 0, got {f}")
+                raise InputError(f"scale factor for {comp} must be a finite number >= 0, got {f}",
+                                 field="scales", allowed="finite numbers >= 0")
             current[comp] *= f
         kept = tuple((c, current[c]) for c in COMPONENTS if current[c] != 1.0)
         out = dataclasses.replace(self, scales=kept)
@@ -203,19 +204,21 @@ class NoiseModel:
         return 0.0
 
     def check(self) -> None:
-        """Raise ValueError if any scaled probability leaves its meaningful range."""
+        """Raise :class:`~planner.errors.InputError` (a ValueError) if any scaled probability leaves
+        its meaningful range (:data:`~planner.config.MAX_PROBABILITY`)."""
         for comp in ("gate_1q", "gate_2q", "readout", "reset"):
             p = self.probability(comp)
             if not 0 <= p <= MAX_PROBABILITY[comp]:
-                raise ValueError(f"{comp}: scaled probability {p:g} is outside [0, {MAX_PROBABILITY[comp]:g}]"
-                                 f" (scale {self.scale(comp):g})")
+                raise InputError(f"scaled probability {p:g} is outside [0, {MAX_PROBABILITY[comp]:g}]"
+                                 f" (scale {self.scale(comp):g})", field=comp)
         longest = max(self.gate_1q_ns, self.gate_2q_ns, self.measure_ns + self.reset_ns)
         for measure in (False, True):
             twirl, excess = self.idle_channel(duration_ns=longest, during_measure=measure)
             comp = "idle_measure" if measure else "idle"
-            if twirl.total > 0.75 or excess > 0.75:
-                raise ValueError(f"{comp}: scaled idle error {twirl.total + excess:g} is too large "
-                                 f"(scale {self.scale(comp):g})")
+            if twirl.total > MAX_PROBABILITY[comp] or excess > MAX_PROBABILITY[comp]:
+                raise InputError(f"scaled idle error {twirl.total + excess:g} is too large "
+                                 f"(scale {self.scale(comp):g})", field=comp,
+                                 allowed=f"at most {MAX_PROBABILITY[comp]:g}")
 
     def to_json(self) -> dict[str, Any]:
         """JSON-native description (for reports and the manifest)."""
