@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from typing import Any
 
 import numpy as np
@@ -76,6 +76,30 @@ def cost_shares(scales: Mapping[str, float], costs: Mapping[str, float]) -> dict
     return {c: costs.get(c, 1.0) * -math.log2(s) / total for c, s in scales.items() if s < 1}
 
 
+def _levers(model: ResponseModel) -> list[str]:
+    """Components whose factor moves Lambda in the model."""
+    return [c for c in COMPONENTS if model.weights[c] > 0 or model.curvature[c] > 0]
+
+
+def _minimise(cost: np.ndarray, slack: Callable[[np.ndarray], float],
+              x0s: list[np.ndarray]) -> np.ndarray | None:
+    """The cheapest halvings ``u`` (0 <= u <= :data:`MAX_HALVINGS`) with ``slack(u) >= 0`` over
+    the starting points (SLSQP from each), None if none meets the constraint."""
+    best: np.ndarray | None = None
+    for x0 in x0s:
+        r = minimize(lambda u: float(cost @ u), x0, jac=lambda u: cost, method="SLSQP",
+                     bounds=[(0.0, MAX_HALVINGS)] * len(cost),
+                     constraints=[{"type": "ineq", "fun": slack}], options={"maxiter": 200, "ftol": 1e-12})
+        u = np.clip(r.x, 0.0, MAX_HALVINGS)
+        if slack(u) >= -1e-9 and (best is None or cost @ u < cost @ best):
+            best = u
+    if best is not None and slack(best) > 1e-12 and slack(best * 0) < 0:
+        # land exactly on the goal: pull the mix back along the line to today until it binds
+        t = brentq(lambda a: slack(best * a), 0.0, 1.0, xtol=1e-14)
+        best = best * t
+    return best
+
+
 def cheapest_mix(model: ResponseModel, *, distance: int, eps_target: float, costs: Mapping[str, float],
                  starts: tuple[dict[str, float], ...] = (), default_starts: bool = True) -> MixAnswer:
     """Minimise sum_c cost_c log2(1/s_c) over s_c in (0, 1] with eps_distance(s) <= eps_target.
@@ -87,42 +111,22 @@ def cheapest_mix(model: ResponseModel, *, distance: int, eps_target: float, cost
     if model.ln_eps(today, distance) <= ln_t:
         return MixAnswer(True, today, 0.0, model.suppression(today),
                          _below(model.logical_error_per_cycle(today, distance)), note="goal already met today")
-    levers = [c for c in COMPONENTS if model.weights[c] > 0 or model.curvature[c] > 0]
+    levers = _levers(model)
     if not levers:
         return MixAnswer(False, today, None, model.suppression(today), math.nan, note="model has no levers")
-    cost = np.array([costs.get(c, 1.0) for c in levers])
 
     def scales_of(u: np.ndarray) -> dict[str, float]:
-        s = dict(today)
-        s.update({c: float(2.0 ** -ui) for c, ui in zip(levers, u)})
-        return s
+        return {**today, **{c: float(2.0 ** -ui) for c, ui in zip(levers, u)}}
 
-    def slack(u: np.ndarray) -> float:
-        return ln_t - model.ln_eps(scales_of(u), distance)
-
-    best: np.ndarray | None = None
     x0s = [np.array([-math.log2(max(st.get(c, 1.0), 2 ** -MAX_HALVINGS)) for c in levers]) for st in starts]
     if default_starts or not x0s:
-        x0s.append(np.full(len(levers), 1.0))
-        x0s.append(np.full(len(levers), 4.0))
-    for x0 in x0s:
-        r = minimize(lambda u: float(cost @ u), x0, jac=lambda u: cost, method="SLSQP",
-                     bounds=[(0.0, MAX_HALVINGS)] * len(levers),
-                     constraints=[{"type": "ineq", "fun": slack}], options={"maxiter": 200, "ftol": 1e-12})
-        u = np.clip(r.x, 0.0, MAX_HALVINGS)
-        if slack(u) >= -1e-9 and (best is None or cost @ u < cost @ best):
-            best = u
+        x0s += [np.full(len(levers), 1.0), np.full(len(levers), 4.0)]
+    best = _minimise(np.array([costs.get(c, 1.0) for c in levers]),
+                     lambda u: ln_t - model.ln_eps(scales_of(u), distance), x0s)
     if best is None:
         return MixAnswer(False, today, None, model.suppression(today), math.nan,
                          note="not reachable: no mix of factors meets the goal at this distance")
-    # land exactly on the goal: pull the mix back along the line to today until the constraint binds
-    if slack(best) > 1e-12 and slack(best * 0) < 0:
-        t = brentq(lambda a: slack(best * a), 0.0, 1.0, xtol=1e-14)
-        best = best * t
-    s = scales_of(best)
-    s = {c: (1.0 if v > 1 - 1e-12 else v) for c, v in s.items()}
+    s = {c: (1.0 if v > 1 - 1e-12 else v) for c, v in scales_of(best).items()}
     return MixAnswer(True, s, mix_cost(s, costs), model.suppression(s),
                      model.logical_error_per_cycle(s, distance),
                      extrapolation=tuple(model.extrapolation(s)), cost_shares=cost_shares(s, costs))
-
-
