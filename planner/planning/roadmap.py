@@ -290,18 +290,11 @@ def _event(what: str, start: dt.date, central: float | None, sampled: Sequence[f
     return DatedEvent(what, years_to_date(start, central) if central is not None else None, low, high, frac)
 
 
-def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_scenarios: int = 200,
-                  models: Sequence[ResponseModel] = (), eps_target: float | None = None) -> Roadmap | None:
-    """The roadmap of ``target`` (None when it has no roadmap section)."""
+def _steps(target: Target, model: ResponseModel, central: RateSet, *, eps: float, dmax: int,
+           cands: Sequence[int]) -> list[RoadmapStep]:
+    """The central roadmap, step by step, up to the first step that meets the goal."""
     rm = target.roadmap
-    if rm is None:
-        return None
-    eps = float(eps_target if eps_target is not None else target.goal.logical_error_per_cycle)
-    dmax = goal_distance(target)
-    central = RateSet.from_rates(rm.rates, target=target)
     per = STEPS_PER_YEAR[rm.step]
-    cands = _candidates(dmax)
-    t_goal = goal_years(model, central, eps_target=eps, max_distance=dmax, horizon_years=rm.horizon_years)
     steps = []
     for i in range(int(rm.horizon_years * per) + 1):
         t = i / per
@@ -314,11 +307,34 @@ def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_sc
                                  extrapolation=tuple(model.extrapolation(s))))
         if d is not None:
             break
-    steps = _with_intervals(steps, models, cands)
+    return steps
+
+
+def _scenarios(target: Target, model: ResponseModel, central: RateSet, models: Sequence[ResponseModel], *,
+               seed: int, num_scenarios: int) -> list[tuple[RateSet, ResponseModel]]:
+    """Sampled (rates, model) pairs: the rates drawn from their spreads, the models taken in turn
+    from the bootstrap replicas (none when nothing is uncertain)."""
+    rm = target.roadmap
     rng = np.random.default_rng(seed)
     spread = any(r.spread > 0 for r in rm.rates.values())
     n = num_scenarios if (spread or models) else 0
-    scen = [(central.sample(rm.rates, rng, coherence_spread=rm.coherence_growth_spread), models[i % len(models)] if models else model) for i in range(n)]
+    return [(central.sample(rm.rates, rng, coherence_spread=rm.coherence_growth_spread),
+             models[i % len(models)] if models else model) for i in range(n)]
+
+
+def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_scenarios: int = 200,
+                  models: Sequence[ResponseModel] = (), eps_target: float | None = None) -> Roadmap | None:
+    """The roadmap of ``target`` (None when it has no roadmap section)."""
+    rm = target.roadmap
+    if rm is None:
+        return None
+    eps = float(eps_target if eps_target is not None else target.goal.logical_error_per_cycle)
+    dmax = goal_distance(target)
+    central = RateSet.from_rates(rm.rates, target=target)
+    cands = _candidates(dmax)
+    t_goal = goal_years(model, central, eps_target=eps, max_distance=dmax, horizon_years=rm.horizon_years)
+    steps = _with_intervals(_steps(target, model, central, eps=eps, dmax=dmax, cands=cands), models, cands)
+    scen = _scenarios(target, model, central, models, seed=seed, num_scenarios=num_scenarios)
     goal = _event("goal", rm.start, t_goal,
                   [goal_years(m, r, eps_target=eps, max_distance=dmax, horizon_years=rm.horizon_years)
                    for r, m in scen])
@@ -330,8 +346,8 @@ def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_sc
         f"goal not met within {rm.horizon_years:g} years and {target.goal.max_qubits} qubits at these rates"
     if not rm.rates and not rm.coherence_growth_per_year:
         note = (note + "; " if note else "") + "no rates given: nothing improves"
-    return Roadmap(rm.start, rm.step, eps, target.goal.max_qubits, cands, tuple(steps), goal, miles, n, note,
-                   goal_distance=dmax, num_replicas=len(models))
+    return Roadmap(rm.start, rm.step, eps, target.goal.max_qubits, cands, tuple(steps), goal, miles, len(scen),
+                   note, goal_distance=dmax, num_replicas=len(models))
 
 
 def _with_intervals(steps: list[RoadmapStep], models: Sequence[ResponseModel],
