@@ -222,6 +222,19 @@ _TICK = _Tick()
 _Item = _Layer | _Repeat | _Tick
 
 
+def _block_edge_pending(items: list[_Item]) -> bool:
+    """The last item is a REPEAT block that does not end with a TICK."""
+    last = items[-1] if items else None
+    return isinstance(last, _Repeat) and bool(last.items) and last.items[-1] is not _TICK
+
+
+def _check_operation(inst: stim.CircuitInstruction) -> None:
+    if inst.name not in _OPERATIONS:
+        raise ValueError(f"{inst.name} is not an operation this module can place noise for")
+    if any(not t.is_qubit_target for t in inst.targets_copy()):
+        raise ValueError(f"{inst}: only plain qubit targets are supported")
+
+
 def _parse(circuit: stim.Circuit) -> list[_Item]:
     items: list[_Item] = []
     layer = _Layer()
@@ -246,19 +259,15 @@ def _parse(circuit: stim.Circuit) -> list[_Item]:
             items.append(_TICK)
         elif inst.name in _ANNOTATIONS:
             (layer.tail if layer.ops else layer.head).append(inst)
-        elif inst.name in _OPERATIONS:
-            if any(not t.is_qubit_target for t in inst.targets_copy()):
-                raise ValueError(f"{inst}: only plain qubit targets are supported")
-            if (layer.empty() and items and isinstance(items[-1], _Repeat)
-                    and items[-1].items and items[-1].items[-1] is not _TICK):
+        else:
+            _check_operation(inst)
+            if layer.empty() and _block_edge_pending(items):
                 items.append(_TICK)  # the block edge again (see above)
             elif layer.tail:
                 # an operation after the detectors of a readout starts a new layer (module doc)
                 flush()
                 items.append(_TICK)
             layer.ops.append(inst)
-        else:
-            raise ValueError(f"{inst.name} is not an operation this module can place noise for")
     flush()
     return items
 
@@ -297,26 +306,46 @@ def _to_cz(items: Sequence[_Item]) -> list[_Item]:
     return _drop_empty(_merge_hadamards(out))
 
 
+def _merges_with_previous(out: list[_Item], it: _Item) -> bool:
+    """``it`` is an H-only layer one TICK after another H-only layer (no annotations between)."""
+    return (isinstance(it, _Layer) and it.h_only() and not it.head and len(out) >= 2
+            and out[-1] is _TICK and isinstance(out[-2], _Layer) and out[-2].h_only()
+            and not out[-2].tail)
+
+
+def _hadamard_parity(first: _Layer, second: _Layer) -> _Layer:
+    """One layer for two H-only layers: H on each qubit hit an odd number of times."""
+    odd: dict[int, int] = {}
+    for op in first.ops + second.ops:
+        for t in op.targets_copy():
+            odd[t.value] = odd.get(t.value, 0) ^ 1
+    kept = [q for q, parity in odd.items() if parity]
+    return _Layer(head=first.head, ops=[stim.CircuitInstruction("H", kept)] if kept else [], tail=second.tail)
+
+
 def _merge_hadamards(items: list[_Item]) -> list[_Item]:
     """Merge H-only layers that follow each other (one TICK apart) by per-qubit parity."""
     out: list[_Item] = []
     for it in items:
-        if (isinstance(it, _Layer) and it.h_only() and not it.head and len(out) >= 2
-                and out[-1] is _TICK and isinstance(out[-2], _Layer) and out[-2].h_only()
-                and not out[-2].tail):
+        if _merges_with_previous(out, it):
             prev = out[-2]
-            assert isinstance(prev, _Layer)  # narrowed above; for the type checker
-            odd: dict[int, int] = {}
-            for op in prev.ops + it.ops:
-                for t in op.targets_copy():
-                    odd[t.value] = odd.get(t.value, 0) ^ 1
-            kept = [q for q, parity in odd.items() if parity]
-            ops = [stim.CircuitInstruction("H", kept)] if kept else []
-            out[-2] = _Layer(head=prev.head, ops=ops, tail=it.tail)
+            assert isinstance(prev, _Layer) and isinstance(it, _Layer)  # narrowed above; for the type checker
+            out[-2] = _hadamard_parity(prev, it)
             out.pop()  # the TICK between them: they are one layer now
         else:
             out.append(it)
     return out
+
+
+def _keep_annotations(it: _Layer, out: list[_Item], carry: list[stim.CircuitInstruction]) -> None:
+    """An empty layer's annotations, in order: onto the previous layer's tail, else carried forward."""
+    if not (it.head or it.tail):
+        return
+    prev = next((x for x in reversed(out) if not isinstance(x, _Tick)), None)
+    if isinstance(prev, _Layer) and not carry:
+        prev.tail += it.head + it.tail
+    else:
+        carry += it.head + it.tail
 
 
 def _drop_empty(items: list[_Item]) -> list[_Item]:
@@ -325,13 +354,7 @@ def _drop_empty(items: list[_Item]) -> list[_Item]:
     carry: list[stim.CircuitInstruction] = []
     for it in items:
         if isinstance(it, _Layer) and not it.ops:
-            if it.head or it.tail:
-                # keep annotation order: attach to the previous layer's tail, else carry forward
-                prev = next((x for x in reversed(out) if not isinstance(x, _Tick)), None)
-                if isinstance(prev, _Layer) and not carry:
-                    prev.tail += it.head + it.tail
-                else:
-                    carry += it.head + it.tail
+            _keep_annotations(it, out, carry)
             if out and out[-1] is _TICK:
                 out.pop()  # its TICK goes with it
             continue
@@ -350,10 +373,45 @@ def _drop_empty(items: list[_Item]) -> list[_Item]:
 # noise placement
 
 
-def _emit(items: Sequence[_Item], *, model: NoiseModel, qubits: Sequence[int], out: stim.Circuit,
-          final_index: int) -> None:
+def _emit_ops(layer: _Layer, model: NoiseModel, out: stim.Circuit) -> set[int]:
+    """The layer's operations, each with its noise; returns the qubits they touch."""
     p1, p2 = model.probability("gate_1q"), model.probability("gate_2q")
     p_read, p_reset = model.probability("readout"), model.probability("reset")
+    touched: set[int] = set()
+    for op in layer.ops:
+        targets = [t.value for t in op.targets_copy()]
+        if touched.intersection(targets) or len(set(targets)) != len(targets):
+            raise ValueError(f"{op}: a qubit is used twice in one layer")
+        touched.update(targets)
+        if op.name in _MEASURE_FLIP:
+            _add(out, _MEASURE_FLIP[op.name], targets, p_read)
+        out.append(op)
+        if op.name in _GATES_1Q:
+            _add(out, "DEPOLARIZE1", targets, p1)
+        elif op.name in _GATES_2Q:
+            _add(out, "DEPOLARIZE2", targets, p2)
+        if op.name in _RESET_FLIP:
+            _add(out, _RESET_FLIP[op.name], targets, p_reset)
+    return touched
+
+
+def _emit_idle(layer: _Layer, touched: set[int], *, model: NoiseModel, qubits: Sequence[int],
+               out: stim.Circuit) -> None:
+    """Idle noise on every qubit the layer leaves alone, over the layer's duration."""
+    names = {op.name for op in layer.ops}
+    has_measure = bool(names & set(_MEASURE_FLIP))
+    has_reset = bool(names & set(_RESET_FLIP))
+    duration = model.layer_duration_ns(has_2q=bool(names & _GATES_2Q), has_1q=bool(names & _GATES_1Q),
+                                       has_measure=has_measure, has_reset=has_reset)
+    twirl, excess = model.idle_channel(duration_ns=duration, during_measure=has_measure or has_reset)
+    idle = [q for q in qubits if q not in touched]
+    if idle and twirl.total > 0:
+        out.append("PAULI_CHANNEL_1", idle, [twirl.px, twirl.py, twirl.pz])
+    _add(out, "DEPOLARIZE1", idle, excess)
+
+
+def _emit(items: Sequence[_Item], *, model: NoiseModel, qubits: Sequence[int], out: stim.Circuit,
+          final_index: int) -> None:
     for index, it in enumerate(items):
         if it is _TICK:
             out.append("TICK")
@@ -366,34 +424,9 @@ def _emit(items: Sequence[_Item], *, model: NoiseModel, qubits: Sequence[int], o
         assert isinstance(it, _Layer)  # the item union has three members
         for inst in it.head:
             out.append(inst)
-        touched: set[int] = set()
-        names = {op.name for op in it.ops}
-        for op in it.ops:
-            targets = [t.value for t in op.targets_copy()]
-            if touched.intersection(targets) or len(set(targets)) != len(targets):
-                raise ValueError(f"{op}: a qubit is used twice in one layer")
-            touched.update(targets)
-            if op.name in _MEASURE_FLIP:
-                _add(out, _MEASURE_FLIP[op.name], targets, p_read)
-            out.append(op)
-            if op.name in _GATES_1Q:
-                _add(out, "DEPOLARIZE1", targets, p1)
-            elif op.name in _GATES_2Q:
-                _add(out, "DEPOLARIZE2", targets, p2)
-            if op.name in _RESET_FLIP:
-                _add(out, _RESET_FLIP[op.name], targets, p_reset)
+        touched = _emit_ops(it, model, out)
         if index != final_index:
-            has_measure = bool(names & set(_MEASURE_FLIP))
-            has_reset = bool(names & set(_RESET_FLIP))
-            duration = model.layer_duration_ns(
-                has_2q=bool(names & _GATES_2Q), has_1q=bool(names & _GATES_1Q),
-                has_measure=has_measure, has_reset=has_reset)
-            twirl, excess = model.idle_channel(duration_ns=duration,
-                                               during_measure=has_measure or has_reset)
-            idle = [q for q in qubits if q not in touched]
-            if idle and twirl.total > 0:
-                out.append("PAULI_CHANNEL_1", idle, [twirl.px, twirl.py, twirl.pz])
-            _add(out, "DEPOLARIZE1", idle, excess)
+            _emit_idle(it, touched, model=model, qubits=qubits, out=out)
         for inst in it.tail:
             out.append(inst)
 
