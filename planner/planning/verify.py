@@ -161,25 +161,33 @@ def _sampled_at(stats: Sequence[sinter.TaskStats], points: Sequence[OperatingPoi
     return fit_stats(keep) if keep else None
 
 
+def _eps_row(answers: Any, point: OperatingPoint, d: int, report: FitReport | None) -> VerifyRow:
+    """Predicted vs sampled eps per cycle at one point and distance."""
+    models = answers.uncertainty.models if answers.uncertainty else ()
+    best = answers.model.logical_error_per_cycle(point.scales, d)
+    pred = _predicted(models, best, [m.logical_error_per_cycle(point.scales, d) for m in models])
+    got = next((x for x in (report.distances if report else ()) if x.axis == point.label and x.distance == d),
+               None)
+    return VerifyRow(point.label, "logical_error_per_cycle", d, pred, got.per_cycle if got else None,
+                     bool(got and got.zero_errors))
+
+
+def _lambda_row(answers: Any, point: OperatingPoint, report: FitReport | None) -> VerifyRow:
+    """Predicted vs sampled Lambda at one point."""
+    models = answers.uncertainty.models if answers.uncertainty else ()
+    best = answers.model.suppression(point.scales)
+    pred = _predicted(models, best, [m.suppression(point.scales) for m in models])
+    lf = next((x for x in (report.lambdas if report else ()) if x.axis == point.label), None)
+    return VerifyRow(point.label, "suppression_factor", None, pred, lf.suppression if lf else None,
+                     bool(lf and lf.uses_zero_error_points))
+
+
 def _rows_at(answers: Any, point: OperatingPoint, distances: Sequence[int],
              report: FitReport | None) -> list[VerifyRow]:
     """Predicted vs sampled eps at each distance and, with two distances, Lambda at one point."""
-    model = answers.model
-    models = answers.uncertainty.models if answers.uncertainty else ()
-    rows = []
-    for d in distances:
-        best = model.logical_error_per_cycle(point.scales, d)
-        pred = _predicted(models, best, [m.logical_error_per_cycle(point.scales, d) for m in models])
-        got = next((x for x in (report.distances if report else ())
-                    if x.axis == point.label and x.distance == d), None)
-        rows.append(VerifyRow(point.label, "logical_error_per_cycle", d, pred,
-                              got.per_cycle if got else None, bool(got and got.zero_errors)))
+    rows = [_eps_row(answers, point, d, report) for d in distances]
     if len(distances) >= 2:
-        best = model.suppression(point.scales)
-        pred = _predicted(models, best, [m.suppression(point.scales) for m in models])
-        lf = next((x for x in (report.lambdas if report else ()) if x.axis == point.label), None)
-        rows.append(VerifyRow(point.label, "suppression_factor", None, pred,
-                              lf.suppression if lf else None, bool(lf and lf.uses_zero_error_points)))
+        rows.append(_lambda_row(answers, point, report))
     return rows
 
 
