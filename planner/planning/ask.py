@@ -40,7 +40,7 @@ __all__ = [
     "today_answer", "what_if",
 ]
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class FactorAnswer:
     """The factor one lever (``joint`` or a component alone) needs to reach the goal."""
 
@@ -62,7 +62,7 @@ class FactorAnswer:
                 "suppression_factor_interval": _ivj(self.suppression_interval)}
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class TodayAnswer:
     """Today's device: Lambda (model and fitted) and the smallest code meeting the goal."""
 
@@ -91,7 +91,7 @@ class TodayAnswer:
                 "logical_error_per_cycle_at_distance_interval": _ivj(self.logical_error_per_cycle_interval)}
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class Requirements:
     """Everything ``planner ask`` answers for one goal at one distance (``code``: the swept code,
     which decides the qubit count)."""
@@ -287,8 +287,9 @@ def today_answer(model: ResponseModel, report: FitReport | None, *, distance: in
         note = f"goal not met by any distance up to {MAX_DISTANCE}"
     else:
         note = "" if qubits <= max_qubits else f"needs {qubits} qubits, more than {budget_name} = {max_qubits}"
-    return TodayAnswer(lam, fitted, above, d, qubits, bool(d and qubits <= max_qubits), _below(eps_at),
-                       note, max_qubits=max_qubits)
+    return TodayAnswer(suppression_model=lam, suppression_fitted=fitted, above_threshold=above, distance=d,
+                       physical_qubits=qubits, within_max_qubits=bool(d and qubits <= max_qubits),
+                       logical_error_per_cycle=_below(eps_at), note=note, max_qubits=max_qubits)
 
 
 def distance_extrapolation_note(distance: int, sampled: Sequence[int]) -> str:
@@ -334,5 +335,7 @@ def requirements(model: ResponseModel, target: Target, *, eps_target: float | No
                          budget_name=budget[1])
     if today.logical_error_per_cycle is None:
         notes.append(f"eps per cycle today at d = {d} is below {TINY:g}: beyond any reachable, not printed")
-    return Requirements(eps, d, physical_qubits(d, code), source, required, joint, comps, mix, today,
-                        model.form, model.quality.summary(), tuple(notes), code=code)
+    return Requirements(eps_target=eps, distance=d, physical_qubits=physical_qubits(d, code),
+                        distance_source=source, required_suppression=required, joint=joint, components=comps,
+                        mix=mix, today=today, model_form=model.form, model_quality=model.quality.summary(),
+                        notes=tuple(notes), code=code)

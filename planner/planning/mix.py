@@ -16,7 +16,7 @@ from planner.fits import Interval
 from planner.planning.limits import MAX_HALVINGS, _below, _fin, _ivj
 from planner.planning.model import ResponseModel
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class MixAnswer:
     """The cheapest set of factors: minimises sum_c cost_c * log2(1/s_c) subject to the goal.
 
@@ -109,11 +109,13 @@ def cheapest_mix(model: ResponseModel, *, distance: int, eps_target: float, cost
     ln_t = math.log(eps_target)
     today = {c: 1.0 for c in COMPONENTS}
     if model.ln_eps(today, distance) <= ln_t:
-        return MixAnswer(True, today, 0.0, model.suppression(today),
-                         _below(model.logical_error_per_cycle(today, distance)), note="goal already met today")
+        return MixAnswer(reachable=True, scales=today, cost=0.0, suppression=model.suppression(today),
+                         logical_error_per_cycle=_below(model.logical_error_per_cycle(today, distance)),
+                         note="goal already met today")
     levers = _levers(model)
     if not levers:
-        return MixAnswer(False, today, None, model.suppression(today), math.nan, note="model has no levers")
+        return MixAnswer(reachable=False, scales=today, cost=None, suppression=model.suppression(today),
+                         logical_error_per_cycle=math.nan, note="model has no levers")
 
     def scales_of(u: np.ndarray) -> dict[str, float]:
         return {**today, **{c: float(2.0 ** -ui) for c, ui in zip(levers, u)}}
@@ -124,9 +126,9 @@ def cheapest_mix(model: ResponseModel, *, distance: int, eps_target: float, cost
     best = _minimise(np.array([costs.get(c, 1.0) for c in levers]),
                      lambda u: ln_t - model.ln_eps(scales_of(u), distance), x0s)
     if best is None:
-        return MixAnswer(False, today, None, model.suppression(today), math.nan,
-                         note="not reachable: no mix of factors meets the goal at this distance")
+        return MixAnswer(reachable=False, scales=today, cost=None, suppression=model.suppression(today),
+                         logical_error_per_cycle=math.nan, note="not reachable: no mix of factors meets the goal at this distance")
     s = {c: (1.0 if v > 1 - 1e-12 else v) for c, v in scales_of(best).items()}
-    return MixAnswer(True, s, mix_cost(s, costs), model.suppression(s),
-                     model.logical_error_per_cycle(s, distance),
+    return MixAnswer(reachable=True, scales=s, cost=mix_cost(s, costs), suppression=model.suppression(s),
+                     logical_error_per_cycle=model.logical_error_per_cycle(s, distance),
                      extrapolation=tuple(model.extrapolation(s)), cost_shares=cost_shares(s, costs))

@@ -23,14 +23,14 @@ from planner.fits import CONFIDENCE, FitReport, Interval, fit_stats
 MAX_VERIFY_DISTANCE = 7
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class OperatingPoint:
     label: str
     scales: dict[str, float]
     factor: float
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class VerifyRow:
     """Predicted vs sampled at one (operating point, distance) or, with ``distance=None``, Lambda."""
 
@@ -52,7 +52,7 @@ class VerifyRow:
                 "zero_errors": self.zero_errors, "holds": self.holds}
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class Verification:
     points: tuple[OperatingPoint, ...]
     distances: tuple[int, ...]
@@ -74,13 +74,16 @@ class Verification:
         is not one. Missing numbers (JSON null: non-finite) come back as nan, or as -inf / +inf
         for an interval's low / high end."""
         try:
-            points = tuple(OperatingPoint(str(p["label"]), {str(k): float(v) for k, v in p["scales"].items()},
-                                          float(p["factor"])) for p in doc["points"])
-            rows = tuple(VerifyRow(str(r["label"]), str(r["quantity"]),
-                                   None if r["d"] is None else int(r["d"]), _interval(r["predicted"]),
-                                   None if r["sampled"] is None else _interval(r["sampled"]),
-                                   bool(r["zero_errors"])) for r in doc["rows"])
-            return cls(points, tuple(int(d) for d in doc["distances"]), rows, str(doc.get("note", "")))
+            points = tuple(OperatingPoint(label=str(p["label"]),
+                                          scales={str(k): float(v) for k, v in p["scales"].items()},
+                                          factor=float(p["factor"])) for p in doc["points"])
+            rows = tuple(VerifyRow(label=str(r["label"]), quantity=str(r["quantity"]),
+                                   distance=None if r["d"] is None else int(r["d"]),
+                                   predicted=_interval(r["predicted"]),
+                                   sampled=None if r["sampled"] is None else _interval(r["sampled"]),
+                                   zero_errors=bool(r["zero_errors"])) for r in doc["rows"])
+            return cls(points=points, distances=tuple(int(d) for d in doc["distances"]), rows=rows,
+                       note=str(doc.get("note", "")))
         except (KeyError, TypeError, ValueError, AttributeError) as exc:
             raise ValueError(f"not a verification document ({type(exc).__name__}: {exc})") from None
 
@@ -123,9 +126,9 @@ def operating_points(answers: Any) -> tuple[OperatingPoint, ...]:
     pts = []
     if req.joint.reachable and req.joint.factor is not None:
         f = req.joint.factor
-        pts.append(OperatingPoint("verify-joint", {c: f for c in COMPONENTS}, f))
+        pts.append(OperatingPoint(label="verify-joint", scales={c: f for c in COMPONENTS}, factor=f))
     if req.mix.reachable and any(v < 1 for v in req.mix.scales.values()):
-        pts.append(OperatingPoint("verify-mix", dict(req.mix.scales), 1.0))
+        pts.append(OperatingPoint(label="verify-mix", scales=dict(req.mix.scales), factor=1.0))
     return tuple(pts)
 
 
@@ -168,8 +171,8 @@ def _eps_row(answers: Any, point: OperatingPoint, d: int, report: FitReport | No
     pred = _predicted(models, best, [m.logical_error_per_cycle(point.scales, d) for m in models])
     got = next((x for x in (report.distances if report else ()) if x.axis == point.label and x.distance == d),
                None)
-    return VerifyRow(point.label, "logical_error_per_cycle", d, pred, got.per_cycle if got else None,
-                     bool(got and got.zero_errors))
+    return VerifyRow(label=point.label, quantity="logical_error_per_cycle", distance=d, predicted=pred,
+                     sampled=got.per_cycle if got else None, zero_errors=bool(got and got.zero_errors))
 
 
 def _lambda_row(answers: Any, point: OperatingPoint, report: FitReport | None) -> VerifyRow:
@@ -178,8 +181,8 @@ def _lambda_row(answers: Any, point: OperatingPoint, report: FitReport | None) -
     best = answers.model.suppression(point.scales)
     pred = _predicted(models, best, [m.suppression(point.scales) for m in models])
     lf = next((x for x in (report.lambdas if report else ()) if x.axis == point.label), None)
-    return VerifyRow(point.label, "suppression_factor", None, pred, lf.suppression if lf else None,
-                     bool(lf and lf.uses_zero_error_points))
+    return VerifyRow(label=point.label, quantity="suppression_factor", distance=None, predicted=pred,
+                     sampled=lf.suppression if lf else None, zero_errors=bool(lf and lf.uses_zero_error_points))
 
 
 def _rows_at(answers: Any, point: OperatingPoint, distances: Sequence[int],
@@ -199,4 +202,4 @@ def compare(answers: Any, points: Sequence[OperatingPoint], distances: Sequence[
     note = "" if points else "no reachable operating point to verify"
     if len(distances) < 2:
         note = (note + "; " if note else "") + "one samplable distance: Lambda not verified"
-    return Verification(tuple(points), tuple(distances), tuple(rows), note)
+    return Verification(points=tuple(points), distances=tuple(distances), rows=tuple(rows), note=note)
