@@ -69,22 +69,23 @@ def noiseless_memory_circuit(*, code: str, distance: int, rounds: int, basis: st
     4
     """
     if code not in CODES:
-        raise ValueError(f"unknown code {code!r}; known: {', '.join(CODES)}")
+        raise InputError(f"unknown code {code!r}", field="code", allowed=", ".join(CODES))
     if (problem := distance_problem(distance)) is not None:
         raise InputError(problem, field="distance")
     if isinstance(rounds, bool) or not isinstance(rounds, int) or rounds < 1:
-        raise ValueError(f"rounds must be an integer >= 1, got {rounds!r}")
+        raise InputError(f"{rounds!r} is not allowed", field="rounds", allowed="an integer >= 1")
     # estimate the size before stim builds anything: a huge circuit would take minutes and gigabytes
     problem = size_problem(code=code, distance=distance, rounds=rounds)
     if problem is not None:
-        raise ValueError(problem)
+        raise InputError(problem, field="rounds")
     if code == "surface":
         if basis not in ("z", "x"):
-            raise ValueError(f"basis must be 'z' or 'x' for the surface code, got {basis!r}")
+            raise InputError(f"{basis!r} is not a basis of the surface code", field="basis", allowed="z, x")
         return stim.Circuit.generated(f"surface_code:rotated_memory_{basis}", distance=distance,
                                       rounds=rounds)
     if basis != "z":
-        raise ValueError(f"the repetition-code memory exists in basis 'z' only, got {basis!r}")
+        raise InputError(f"{basis!r}: the repetition-code memory exists in basis 'z' only", field="basis",
+                         allowed="z")
     return stim.Circuit.generated("repetition_code:memory", distance=distance, rounds=rounds)
 
 
@@ -99,7 +100,8 @@ def build_memory_circuit(model: NoiseModel, *, code: str, distance: int, rounds:
     3
     """
     if model.native_2q not in ("cx", "cz"):
-        raise ValueError(f"native_2q must be 'cx' or 'cz', got {model.native_2q!r}")
+        raise InputError(f"{model.native_2q!r} is not a native two-qubit gate", field="native_2q",
+                         allowed="cx, cz")
     base = noiseless_memory_circuit(code=code, distance=distance, rounds=rounds, basis=basis)
     items = _parse(base)
     if model.native_2q == "cz":

@@ -18,6 +18,7 @@ import numpy as np
 import sinter
 
 from planner.config import COMPONENTS
+from planner.errors import InputError
 from planner.fits import CONFIDENCE, FitReport, Interval, fit_stats
 
 MAX_VERIFY_DISTANCE = 7
@@ -70,7 +71,7 @@ class Verification:
 
     @classmethod
     def from_json(cls, doc: Any) -> Verification:
-        """The inverse of :meth:`to_json` (as written to ``verify.json``); ValueError if ``doc``
+        """The inverse of :meth:`to_json` (as written to ``verify.json``); InputError (a ValueError) if ``doc``
         is not one. Missing numbers (JSON null: non-finite) come back as nan, or as -inf / +inf
         for an interval's low / high end."""
         try:
@@ -85,7 +86,7 @@ class Verification:
             return cls(points=points, distances=tuple(int(d) for d in doc["distances"]), rows=rows,
                        note=str(doc.get("note", "")))
         except (KeyError, TypeError, ValueError, AttributeError) as exc:
-            raise ValueError(f"not a verification document ({type(exc).__name__}: {exc})") from None
+            raise InputError(f"not a verification document ({type(exc).__name__}: {exc})") from None
 
     def is_current(self, answers: Any) -> bool:
         """Whether this verification was made against ``answers``: the same operating points and
