@@ -46,7 +46,7 @@ __all__ = [
 ]
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class Answers:
     """Everything planned from one out directory. ``model`` and the answers built on it are None
     when no scale point has a Lambda (``notes`` says why)."""
@@ -83,7 +83,8 @@ def answer_all(target: Target, stats: Sequence[sinter.TaskStats], *, seed: int =
     if not report.tasks:
         raise InputError("no samples with shots to fit")
     if not any(lf.suppression is not None for lf in report.lambdas):
-        return Answers(report, None, None, None, None, None, (no_model_reason(report),))
+        return Answers(fits=report, model=None, requirements=None, roadmap=None, sensitivity=None,
+                       uncertainty=None, notes=(no_model_reason(report),))
     model = fit_model(report)
     req = requirements(model, target, eps_target=eps_target, distance=distance, qubits=qubits, report=report)
     unc = bootstrap(stats, report, model, req, replicas=replicas, seed=seed,
@@ -94,4 +95,5 @@ def answer_all(target: Target, stats: Sequence[sinter.TaskStats], *, seed: int =
     rm = build_roadmap(target, model, seed=seed, models=models, eps_target=eps_target)
     if rm is not None and (far := distance_extrapolation_note(rm.goal_distance, report.sampled_distances)):
         rm = dataclasses.replace(rm, note="; ".join(n for n in (rm.note, far) if n))
-    return Answers(report, model, req, rm, sensitivity(model, target, models=models), unc)
+    return Answers(fits=report, model=model, requirements=req, roadmap=rm,
+                   sensitivity=sensitivity(model, target, models=models), uncertainty=unc)
