@@ -127,7 +127,8 @@ def cheapest_mix(model: ResponseModel, *, distance: int, eps_target: float, cost
                      lambda u: ln_t - model.ln_eps(scales_of(u), distance), x0s)
     if best is None:
         return MixAnswer(reachable=False, scales=today, cost=None, suppression=model.suppression(today),
-                         logical_error_per_cycle=math.nan, note="not reachable: no mix of factors meets the goal at this distance")
+                         logical_error_per_cycle=math.nan,
+                         note="not reachable: no mix of factors meets the goal at this distance")
     s = {c: (1.0 if v > 1 - 1e-12 else v) for c, v in scales_of(best).items()}
     return MixAnswer(reachable=True, scales=s, cost=mix_cost(s, costs), suppression=model.suppression(s),
                      logical_error_per_cycle=model.logical_error_per_cycle(s, distance),

@@ -289,7 +289,8 @@ def _pick_form(results: Mapping[str, tuple[np.ndarray, ...]]) -> str:
     return "linear"
 
 
-def _split_columns(coef: np.ndarray, groups: list[list[int]], form: str) -> tuple[dict[str, float], dict[str, float]]:
+def _split_columns(coef: np.ndarray, groups: list[list[int]],
+                   form: str) -> tuple[dict[str, float], dict[str, float]]:
     """Weights and curvatures per component; a lumped column's coefficient applies to the mean
     scale of its components, so it is split evenly between them."""
     weights = {c: 0.0 for c in COMPONENTS}

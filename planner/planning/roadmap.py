@@ -302,7 +302,8 @@ def _steps(target: Target, model: ResponseModel, central: RateSet, *, eps: float
         s = dict(zip(COMPONENTS, central.scales(np.array([t]))[0].tolist()))
         d = smallest_distance(model, s, eps)
         d = d if d is not None and d <= dmax else None
-        steps.append(RoadmapStep(date=years_to_date(rm.start, t), years=t, scales=s, suppression=model.suppression(s),
+        steps.append(RoadmapStep(date=years_to_date(rm.start, t), years=t, scales=s,
+                                 suppression=model.suppression(s),
                                  eps={c: model.logical_error_per_cycle(s, c) for c in cands}, distance=d,
                                  physical_qubits=physical_qubits(d, target.sweep.code) if d else None,
                                  extrapolation=tuple(model.extrapolation(s))))

@@ -27,7 +27,15 @@ import numpy as np
 import sinter
 
 from planner.config import COMPONENTS
-from planner.fits import CONFIDENCE, FitReport, Interval, fit_tasks, per_cycle_rate, suppression_line, zero_error_upper
+from planner.fits import (
+    CONFIDENCE,
+    FitReport,
+    Interval,
+    fit_tasks,
+    per_cycle_rate,
+    suppression_line,
+    zero_error_upper,
+)
 from planner.planning.ask import (
     TINY,
     Requirements,
