@@ -28,7 +28,8 @@ import math
 from collections.abc import Mapping
 from typing import Any
 
-from planner.config import COMPONENTS, MAX_PROBABILITY, Target
+from planner.config import COMPONENTS, MAX_PROBABILITY, Target, coherence_problem
+from planner.errors import InputError
 
 
 @dataclasses.dataclass(frozen=True)
@@ -58,8 +59,8 @@ def twirl_idle(*, duration_ns: float, t1_us: float, t2_us: float) -> PauliChanne
     >>> round(c.px, 8), round(c.pz, 8)
     (0.0004995, 0.00116439)
     """
-    if t2_us > 2 * t1_us * (1 + 1e-12):
-        raise ValueError(f"T2 = {t2_us} us exceeds 2*T1 = {2 * t1_us} us")
+    if (problem := coherence_problem(t1_us=t1_us, t2_us=t2_us)) is not None:
+        raise InputError(problem, field="t2_us")
     t_us = duration_ns / 1000.0
     decay1 = -math.expm1(-t_us / t1_us) if math.isfinite(t1_us) else 0.0
     decay2 = -math.expm1(-t_us / t2_us) if math.isfinite(t2_us) else 0.0
@@ -165,7 +166,8 @@ class NoiseModel:
             if comp not in COMPONENTS:
                 raise KeyError(f"unknown component {comp!r}; known: {', '.join(COMPONENTS)}")
             if not (f >= 0 and math.isfinite(f)):
-                raise ValueError(f"scale factor for {comp} must be a finite number >= 0, got {f}")
+                raise InputError(f"scale factor for {comp} must be a finite number >= 0, got {f}",
+                                 field="scales", allowed="finite numbers >= 0")
             current[comp] *= f
         kept = tuple((c, current[c]) for c in COMPONENTS if current[c] != 1.0)
         out = dataclasses.replace(self, scales=kept)
@@ -202,19 +204,21 @@ class NoiseModel:
         return 0.0
 
     def check(self) -> None:
-        """Raise ValueError if any scaled probability leaves its meaningful range."""
+        """Raise :class:`~planner.errors.InputError` (a ValueError) if any scaled probability leaves
+        its meaningful range (:data:`~planner.config.MAX_PROBABILITY`)."""
         for comp in ("gate_1q", "gate_2q", "readout", "reset"):
             p = self.probability(comp)
             if not 0 <= p <= MAX_PROBABILITY[comp]:
-                raise ValueError(f"{comp}: scaled probability {p:g} is outside [0, {MAX_PROBABILITY[comp]:g}]"
-                                 f" (scale {self.scale(comp):g})")
+                raise InputError(f"scaled probability {p:g} is outside [0, {MAX_PROBABILITY[comp]:g}]"
+                                 f" (scale {self.scale(comp):g})", field=comp)
         longest = max(self.gate_1q_ns, self.gate_2q_ns, self.measure_ns + self.reset_ns)
         for measure in (False, True):
             twirl, excess = self.idle_channel(duration_ns=longest, during_measure=measure)
             comp = "idle_measure" if measure else "idle"
-            if twirl.total > 0.75 or excess > 0.75:
-                raise ValueError(f"{comp}: scaled idle error {twirl.total + excess:g} is too large "
-                                 f"(scale {self.scale(comp):g})")
+            if twirl.total > MAX_PROBABILITY[comp] or excess > MAX_PROBABILITY[comp]:
+                raise InputError(f"scaled idle error {twirl.total + excess:g} is too large "
+                                 f"(scale {self.scale(comp):g})", field=comp,
+                                 allowed=f"at most {MAX_PROBABILITY[comp]:g}")
 
     def to_json(self) -> dict[str, Any]:
         """JSON-native description (for reports and the manifest)."""

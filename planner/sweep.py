@@ -149,10 +149,20 @@ def _largest_valid_factor(model: NoiseModel, point: ScalePoint) -> float:
     return low
 
 
+def budget_rule(name: str) -> StoppingRule:
+    """The stopping rule of a named budget (InputError naming the allowed ones otherwise).
+
+    >>> budget_rule("quick") is BUDGETS["quick"]
+    True
+    """
+    if name not in BUDGETS:
+        raise InputError(f"{name!r} is not a budget", field="budget", allowed=", ".join(BUDGETS))
+    return BUDGETS[name]
+
+
 def plan_sweep(target: Target, budget: str = "quick") -> SweepPlan:
     """Every task of the target's grid, largest circuits first, and the budget's stopping rule."""
-    if budget not in BUDGETS:
-        raise InputError(f"--budget: {budget!r} is not a budget; allowed: {', '.join(BUDGETS)}")
+    rule = budget_rule(budget)
     check_scale_points(target)
     points = scale_points(target)
     tasks: list[sinter.Task] = []
@@ -161,4 +171,4 @@ def plan_sweep(target: Target, budget: str = "quick") -> SweepPlan:
                                   label=point.axis, factor=point.factor)
     # largest circuits first: they are the slowest, so starting them early shortens the wall time
     tasks.sort(key=lambda t: -t.json_metadata["d"] * t.json_metadata["rounds"])
-    return SweepPlan(tasks=tuple(tasks), rule=BUDGETS[budget], points=points, budget=budget)
+    return SweepPlan(tasks=tuple(tasks), rule=rule, points=points, budget=budget)

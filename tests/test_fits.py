@@ -127,7 +127,7 @@ def test_zero_error_points_use_upper_end_and_are_flagged():
 
 
 def test_lambda_fit_exact_on_noise_free_rates():
-    pts = [DistanceFit("joint", 1.0, {}, d, ("z",), Interval(e, e * 0.9, e * 1.1), False, 0.05)
+    pts = [DistanceFit(axis="joint", factor=1.0, scales={}, distance=d, bases=("z",), per_cycle=Interval(low=e * 0.9, best=e, high=e * 1.1), zero_errors=False, log_sigma=0.05)
            for d, e in ((3, 0.01 / 2**2), (5, 0.01 / 2**3), (7, 0.01 / 2**4))]
     lf = fit_lambda(pts)
     assert lf.suppression.best == pytest.approx(2.0)

@@ -69,7 +69,7 @@ def test_repetition_target_goal_budget_and_today():
     assert r.to_json()["code"] == "repetition"
     r7 = requirements(m, REPETITION, qubits=13)  # 2*7-1 = 13
     assert (r7.distance, r7.physical_qubits) == (7, 13)
-    with pytest.raises(InputError, match=r"--qubits: 4 qubits is fewer than the 5 a distance-3 repetition"):
+    with pytest.raises(InputError, match=r"qubits: 4 qubits is fewer than the 5 a distance-3 repetition"):
         choose_distance(REPETITION, qubits=4)
 
 
@@ -130,9 +130,9 @@ def fake_out_dir(tmp_path, monkeypatch):
     target = parse_target(EXAMPLE_TOML.replace("1e-6", "1e-4").replace("max_qubits = 1000", "max_qubits = 200"))
     stats = synthetic_stats(weights=W, prefactor=0.1, distances=(3, 5), joint_scales=(0.5, 1.0),
                             component_scales=(0.5,), components=("gate_2q", "readout"), bases=("z",), seed=1)
-    import planner.planning
+    import planner.jobs.review
 
-    monkeypatch.setattr(planner.planning, "load_out_dir", lambda directory: (target, stats))
+    monkeypatch.setattr(planner.jobs.review, "load_out_dir", lambda directory: (target, stats))
     out = tmp_path / "out"
     out.mkdir()
     return out  # goal distance 9: 2*9^2-1 = 161 <= 200
@@ -141,9 +141,9 @@ def fake_out_dir(tmp_path, monkeypatch):
 def test_ask_repetition_out_dir_counts_2d_minus_1(tmp_path, monkeypatch):
     stats = synthetic_stats(weights=W, prefactor=0.1, distances=(3, 5), joint_scales=(0.5, 1.0), bases=("z",),
                             seed=2)
-    import planner.planning
+    import planner.jobs.review
 
-    monkeypatch.setattr(planner.planning, "load_out_dir", lambda directory: (REPETITION, stats))
+    monkeypatch.setattr(planner.jobs.review, "load_out_dir", lambda directory: (REPETITION, stats))
     doc = json.loads(runner.invoke(app, ["ask", str(tmp_path), "--json"]).stdout)
     assert (doc["distance"], doc["physical_qubits"], doc["qubit_rule"]) == (21, 41, "2d-1")
     today = doc["today"]
@@ -230,11 +230,11 @@ def test_calculator_beyond_the_largest_distance_says_so():
 
 def test_distances_and_budgets_beyond_the_limit():
     m = make_model(W)
-    with pytest.raises(InputError, match=r"--distance: 1000000000000000000 is not allowed: .*3 <= d <= 1001"):
+    with pytest.raises(InputError, match=r"distance: 1000000000000000000 is not allowed: .*3 <= d <= 1001"):
         requirements(m, SURFACE, distance=10**18)
     r = requirements(m, SURFACE, qubits=10**18)  # answered at the largest distance, and said so
     assert r.distance == MAX_DISTANCE and "capped" in r.distance_source
-    with pytest.raises(InputError, match="--target"):
+    with pytest.raises(InputError, match="target"):
         requirements(m, SURFACE, eps_target=1e-320)
 
 

@@ -156,14 +156,14 @@ def test_broken_verify_json_is_named_not_a_traceback(tmp_path, no_plots, target,
 
 
 FORBIDDEN = re.compile(r"\b(inf|nan|NaN|Infinity)\b|(?<![\w.\d-])-0(?![\d.])|(?<![\d.])0 \[0, 0\]")
-ZERO = Interval(0.0, 0.0, 0.0)
-NEG_ZERO = Interval(-0.0, -0.0, -0.0)
+ZERO = Interval(low=0.0, best=0.0, high=0.0)
+NEG_ZERO = Interval(low=-0.0, best=-0.0, high=-0.0)
 
 
 @pytest.mark.parametrize("x", [math.inf, math.nan, -math.inf, -0.0, -1e-30])
 def test_number_formatters_never_print_inf_nan_or_minus_zero(x):
-    for cell in (text.num(x), text.span(x, x, x), text.rate(x, Interval(x, x, x)), text.estimate(x, None),
-                 tables.g(x), tables.g(x, 0), tables.iv(Interval(x, x, x)), tables.num_or_iv(x, None)):
+    for cell in (text.num(x), text.span(x, x, x), text.rate(x, Interval(low=x, best=x, high=x)), text.estimate(x, None),
+                 tables.g(x), tables.g(x, 0), tables.iv(Interval(low=x, best=x, high=x)), tables.num_or_iv(x, None)):
         assert not FORBIDDEN.search(cell), cell
     assert str(files._cell(x)) not in ("inf", "-inf", "nan", "-0.0", "-0")
 
@@ -180,18 +180,18 @@ def broken(answers):
     rates of exactly 0, -0.0 months, a perfect component's infinite Lambda."""
     req = answers.requirements
     today = dataclasses.replace(req.today, logical_error_per_cycle=0.0, logical_error_per_cycle_interval=ZERO,
-                                suppression_model_interval=Interval(math.inf, 3.0, math.inf))
+                                suppression_model_interval=Interval(low=3.0, best=math.inf, high=math.inf))
     mix = dataclasses.replace(req.mix, logical_error_per_cycle=0.0)
     req = dataclasses.replace(req, required_suppression=math.inf,
-                              required_suppression_interval=Interval(math.inf, 40.0, math.inf),
+                              required_suppression_interval=Interval(low=40.0, best=math.inf, high=math.inf),
                               today=today, mix=mix)
-    steps = tuple(dataclasses.replace(s, suppression=math.inf, suppression_interval=Interval(math.inf, 9.0, math.inf),
+    steps = tuple(dataclasses.replace(s, suppression=math.inf, suppression_interval=Interval(low=9.0, best=math.inf, high=math.inf),
                                       eps={d: 0.0 for d in s.eps}, eps_intervals={d: ZERO for d in s.eps})
                   for s in answers.roadmap.steps)
     rm = dataclasses.replace(answers.roadmap, steps=steps)
     rows = tuple(dataclasses.replace(r, months_earlier=-0.0, suppression_perfect=math.inf,
                                      intervals={**r.intervals, "months_earlier": NEG_ZERO,
-                                                "suppression_perfect": Interval(math.inf, math.inf, math.inf)})
+                                                "suppression_perfect": Interval(low=math.inf, best=math.inf, high=math.inf)})
                  for r in answers.sensitivity.rows)
     sens = dataclasses.replace(answers.sensitivity, rows=rows)
     return dataclasses.replace(answers, requirements=req, roadmap=rm, sensitivity=sens)
@@ -325,7 +325,7 @@ def _texts(fig):
 def test_every_plot_text_lies_inside_its_figure(answers, target):
     # a long Lambda interval in the budget title, as with few samples
     sens = dataclasses.replace(answers.sensitivity, suppression_today=2.111111,
-                               suppression_today_interval=Interval(2.111111, 1.234567, 3.456789))
+                               suppression_today_interval=Interval(low=1.234567, best=2.111111, high=3.456789))
     figs = plots.figures(dataclasses.replace(answers, sensitivity=sens), target=target)
     assert set(figs) == set(html.PLOT_SECTIONS)
     for name, fig in figs.items():
@@ -413,7 +413,7 @@ def tiny_out(tmp_path_factory) -> Path:
 @pytest.fixture
 def fake_verify(monkeypatch):
     """`planner verify` without sampling: the comparison runs on counts drawn from the model."""
-    import planner.planning.verify as pv
+    import planner.jobs.verify as pv
 
     def run(target, answers, *, out_dir, budget="quick", workers=None, console=None):
         points = pv.operating_points(answers)
@@ -435,7 +435,7 @@ def test_cli_verify_writes_files_and_refreshes_report(tiny_out, fake_verify, mon
     res = runner.invoke(app, ["verify", str(tiny_out)])
     assert res.exit_code == 0 and "planner run" in res.stderr, res.output  # says where the result goes
     # with a report.html in place, verify rewrites it with the verification section
-    from planner.planning import load_out_dir
+    from planner.jobs.review import load_out_dir
 
     monkeypatch.setattr(plots, "render_all", lambda answers, *, target: {})
     spec, stats = load_out_dir(tiny_out)

@@ -22,7 +22,7 @@ from typer.testing import CliRunner
 from planner.cli import app
 from planner.errors import InputError
 from planner.manifest import read_manifest, write_manifest, write_target_copy
-from planner.planning import load_out_dir
+from planner.jobs.review import load_out_dir
 from planner.store import HEADER, SampleStore
 
 runner = CliRunner()

@@ -15,7 +15,7 @@ from planner.errors import InputError
 from planner.fits import Z_SCORE
 from planner.precision import run_targeted, shot_caps, status_precision
 from planner.precision_alloc import allocate
-from planner.precision_answers import assess
+from planner.planning.precision import assess
 from planner.store import SampleStore
 from planner.sweep import StoppingRule, plan_sweep
 
@@ -210,7 +210,8 @@ def test_bad_precision_is_an_input_error(tiny: tuple[Path, object], tmp_path: Pa
 
 
 def test_target_variance_matches_precision() -> None:
-    from planner.precision_answers import AnswerPrecision, Assessment
+    from planner.planning.precision import AnswerPrecision, Assessment
 
-    a = Assessment((AnswerPrecision("x", "lambda", 2.0, 0.1, 0.05),), (), np.zeros((1, 0)), None, None)
+    a = Assessment(answers=(AnswerPrecision(name="x", kind="lambda", value=2.0, relative_half_width=0.1, target=0.05),),
+                   task_ids=(), sensitivity=np.zeros((1, 0)), report=None, model=None)
     assert a.target_variance()[0] == pytest.approx((0.05 * 2.0 / Z_SCORE) ** 2)

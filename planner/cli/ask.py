@@ -3,12 +3,17 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
 from planner.cli._common import one_line_errors, stderr_console, stdout_console
 from planner.cli.options import JsonOpt
+
+if TYPE_CHECKING:
+    from rich.console import Console
+
+    from planner.planning import Answers
 
 P_GOAL, P_CALC = "Goal", "Calculator (measured numbers, no DIR)"
 
@@ -23,7 +28,7 @@ def register(app: typer.Typer) -> None:
 @one_line_errors
 def ask_command(
     directory: Annotated[Path | None, typer.Argument(help="Out directory of a sweep.")] = None,
-    target: Annotated[float | None, typer.Option(
+    eps_target: Annotated[float | None, typer.Option(
         "--target", help="Logical error per cycle to reach (default: the goal in DIR/target.toml).",
         rich_help_panel=P_GOAL)] = None,
     distance: Annotated[int | None, typer.Option(
@@ -45,54 +50,73 @@ def ask_command(
     json: JsonOpt = False,
 ) -> None:
     from planner.errors import InputError
-    from planner.reports.tables import json_text, render_calculator, render_requirements
 
     if lambda_ is not None or eps is not None:
         if directory is not None:
             raise InputError("calculator mode (--lambda/--eps) takes no DIR")
-        missing = [n for n, v in (("--lambda", lambda_), ("--eps", eps), ("--distance", distance),
-                                  ("--target", target)) if v is None]
-        if missing:
-            raise InputError(f"calculator mode needs {', '.join(missing)}")
-        if qubits is not None:
-            raise InputError("--qubits is not used in calculator mode")
-        if save is not None:
-            raise InputError("--save is not used in calculator mode (there is no out directory)")
-        from planner.planning import calculate
-
-        ans = calculate(suppression=lambda_, eps=eps, distance=distance, eps_target=target)
-        if json:
-            typer.echo(json_text(ans.to_json()))
-        else:
-            render_calculator(ans, stdout_console())
+        _calculator(lambda_=lambda_, eps=eps, distance=distance, eps_target=eps_target, qubits=qubits,
+                    save=save, json=json)
         return
     if directory is None:
         raise InputError("give DIR (an out directory) or --lambda, --eps, --distance, --target")
-    from planner.planning import answer_all, load_out_dir, no_model_reason
-    from planner.planning.ask import what_if
+    _review(directory, eps_target=eps_target, distance=distance, qubits=qubits, save=save, json=json)
 
-    spec, stats = load_out_dir(directory)
-    # options equal to the goal ask the review's own question; the others make a what-if
-    asked = what_if(spec, eps_target=target, distance=distance, qubits=qubits)
+
+def _calculator(*, lambda_: float | None, eps: float | None, distance: int | None,
+                eps_target: float | None, qubits: int | None, save: Path | None, json: bool) -> None:
+    """Calculator mode: parse the measured numbers, call the calculator, render."""
+    from planner.errors import InputError
+    from planner.planning import calculate
+    from planner.reports.tables import json_text, render_calculator
+
+    missing = [n for n, v in (("--lambda", lambda_), ("--eps", eps), ("--distance", distance),
+                              ("--target", eps_target)) if v is None]
+    if missing:
+        raise InputError(f"calculator mode needs {', '.join(missing)}")
+    if qubits is not None:
+        raise InputError("--qubits is not used in calculator mode")
+    if save is not None:
+        raise InputError("--save is not used in calculator mode (there is no out directory)")
+    ans = calculate(suppression=lambda_, eps=eps, distance=distance, eps_target=eps_target)
+    if json:
+        typer.echo(json_text(ans.to_json()))
+    else:
+        render_calculator(ans, stdout_console())
+
+
+def _review(directory: Path, *, eps_target: float | None, distance: int | None, qubits: int | None,
+            save: Path | None, json: bool) -> None:
+    """With DIR: the review job answers; the requirement files (or the what-if) are written."""
+    from planner.jobs.review import review
+    from planner.planning import no_model_reason
+    from planner.reports.tables import json_text
+
     if save is not None:
         from planner.reports.whatif import check_save_path
 
-        md_path, csv_path = check_save_path(save, directory)
-    answers = answer_all(spec, stats, **asked)
+        paths = check_save_path(save, directory)
+    # options equal to the goal ask the review's own question; the others make a what-if
+    reviewed = review(directory, eps_target=eps_target, distance=distance, qubits=qubits)
+    answers, asked = reviewed.answers, reviewed.what_if
     if answers.requirements is None:
         if json:
             typer.echo(json_text({"requirements": None, "note": no_model_reason(answers.fits)}))
         else:
             stdout_console().print(no_model_reason(answers.fits))
         return
+    question = " ".join(f"--{'target' if k == 'eps_target' else k} {v:g}" for k, v in asked.items())
+    _write(directory, answers, asked, question, paths if save is not None else None,
+           stderr_console(quiet=json))
+    _render(directory, answers, asked, question, json)
+
+
+def _write(directory: Path, answers: Answers, asked: dict[str, Any], question: str,
+           paths: tuple[Path, Path] | None, chatter: Console) -> None:
     from planner.reports.files import lambda_today_model, write_requirements
     from planner.reports.whatif import default_name, write_what_if
 
-    chatter = stderr_console(quiet=json)
-    question = " ".join(f"--{'target' if k == 'eps_target' else k} {v:g}" for k, v in asked.items())
-    if save is not None:
-        written = write_what_if(answers.requirements, md_path, csv_path,
-                                question=question,
+    if paths is not None:
+        written = write_what_if(answers.requirements, *paths, question=question,
                                 lambda_today_model=lambda_today_model(answers), uncertainty=answers.uncertainty)
         chatter.print(f"wrote {', '.join(str(p) for p in written)}", markup=False, highlight=False)
     if not asked:
@@ -100,10 +124,15 @@ def ask_command(
                                      lambda_today_model=lambda_today_model(answers))
         chatter.print(f"wrote {', '.join(p.name for p in written)} under {directory}", markup=False,
                       highlight=False)
-    elif save is None:
+    elif paths is None:
         chatter.print(f"what-if ({question}): printed only, {directory}'s report files still answer "
                       f"the goal; to keep it: --save {directory / default_name(asked)}",
                       markup=False, highlight=False)
+
+
+def _render(directory: Path, answers: Answers, asked: dict[str, Any], question: str, json: bool) -> None:
+    from planner.reports.tables import json_text, render_requirements
+
     if json:
         doc = answers.requirements.to_json()
         doc["confidence"] = answers.fits.to_json()["confidence"]

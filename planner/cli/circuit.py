@@ -10,7 +10,6 @@ from typing import Annotated
 import typer
 
 from planner.cli._common import one_line_errors
-from planner.config import MAX_DISTANCE
 from planner.errors import InputError
 
 
@@ -37,16 +36,14 @@ def circuit_command(
         "e.g. --scale gate_2q=0.5; 1 is today, 0 is perfect.", rich_help_panel="Noise")] = None,
 ) -> None:
     from planner.circuits import build_memory_circuit
-    from planner.config import load_target, size_problem
+    from planner.config import distance_problem, load_target, size_problem
     from planner.noise import NoiseModel
     from planner.sweep import bases_for, rounds_for
 
     spec = load_target(target)
     d = _parse_int(distance, option="--distance", allowed="an odd integer >= 3", missing_ok=False)
-    if d is None or d < 3 or d % 2 == 0:
-        raise InputError(f"--distance: {distance} is not allowed: give an odd integer >= 3")
-    if d > MAX_DISTANCE:
-        raise InputError(f"--distance: {d} is too large: odd distances from 3 to {MAX_DISTANCE} are allowed")
+    if d is None or (problem := distance_problem(d)) is not None:
+        raise InputError(problem if d is not None else f"{distance} is not allowed", field="distance")
     r = _parse_int(rounds, option="--rounds", allowed="an integer >= 1", missing_ok=True)
     if r is None:
         r = rounds_for(spec, d)

@@ -20,24 +20,19 @@ def register(app: typer.Typer) -> None:
 
 @one_line_errors
 def fit_command(directory: DirArg, json: JsonOpt = False) -> None:
-    from planner.fits import fit_stats
-    from planner.planning import fit_model, load_out_dir
+    from planner.jobs.review import review
+    from planner.reports.files import write_fits
     from planner.reports.tables import json_text, render_fits
 
-    from planner.reports.files import write_fits
-
-    spec, stats = load_out_dir(directory)
-    report = fit_stats(stats)
-    has_lambda = any(lf.suppression is not None for lf in report.lambdas)
-    model = fit_model(report) if has_lambda else None
-    from planner.planning import answer_all
-
-    # fits.json holds every fitted figure, the model's and the answers' too, as `planner run` writes it
-    written = write_fits(answer_all(spec, stats), directory, target=spec)
+    # one fit: fits.json holds every fitted figure, the model's and the answers' too, as
+    # `planner run` writes it, and the table and --json show the same fit
+    reviewed = review(directory)
+    answers = reviewed.answers
+    written = write_fits(answers, directory, target=reviewed.target)
     stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {plain(directory)}")
     if json:
-        doc = report.to_json()
-        doc["model"] = model.to_json() if model else None
+        doc = answers.fits.to_json()
+        doc["model"] = answers.model.to_json() if answers.model else None
         typer.echo(json_text(doc))
         return
-    render_fits(report, stdout_console(), model)
+    render_fits(answers.fits, stdout_console(), answers.model)

@@ -21,7 +21,8 @@ def register(app: typer.Typer) -> None:
 
 @one_line_errors
 def sensitivity_command(directory: DirArg, json: JsonOpt = False) -> None:
-    from planner.planning import answer_all, load_out_dir, no_model_reason
+    from planner.jobs.review import load_out_dir
+    from planner.planning import answer_all, no_model_reason
     from planner.reports.jsondoc import json_text
     from planner.reports.tables import render_sensitivity
 

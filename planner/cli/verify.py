@@ -3,12 +3,17 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated, Any
+from typing import TYPE_CHECKING, Annotated
 
 import typer
 
 from planner.cli._common import one_line_errors, stderr_console, stdout_console
 from planner.cli.options import BudgetOpt, JsonOpt, QuietOpt, WorkersOpt
+
+if TYPE_CHECKING:
+    from planner.config import Target
+    from planner.planning import Answers
+    from planner.planning.verify import Verification
 
 DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep; samples go to DIR/verify/.")]
 
@@ -23,22 +28,23 @@ def register(app: typer.Typer) -> None:
 @one_line_errors
 def verify_command(directory: DirArg, json: JsonOpt = False, workers: WorkersOpt = None,
                    budget: BudgetOpt = "quick", quiet: QuietOpt = False) -> None:
+    from planner.jobs.review import review
+    from planner.jobs.verify import run_verification
     from planner.manifest import writable_dir
-    from planner.planning import answer_all, load_out_dir, no_model_reason
-    from planner.planning.verify import run_verification
+    from planner.planning import no_model_reason
     from planner.reports.tables import json_text, render_verify
 
-    spec, stats = load_out_dir(directory)
+    reviewed = review(directory)
+    target, answers = reviewed.target, reviewed.answers
     writable_dir(directory / "verify", option="DIR/verify")
-    answers = answer_all(spec, stats)
     if answers.model is None:
         note = no_model_reason(answers.fits)
         typer.echo(json_text({"verification": None, "note": note})) if json else stdout_console().print(note)
         return
     err = stderr_console(quiet=quiet or json)
-    result = run_verification(spec, answers, out_dir=directory, budget=budget, workers=workers,
+    result = run_verification(target, answers, out_dir=directory, budget=budget, workers=workers,
                               console=err)
-    written = [p.name for p in _write_files(result, answers, spec, directory)]
+    written = [p.name for p in _write_files(result, answers, target, directory)]
     own = [n for n in written if n.startswith("verify.")]
     err.print(f"wrote {', '.join(own)} under {directory}" + (
         f"; rewrote report.html with it (and the {len(written) - len(own) - 1} other report files, "
@@ -50,7 +56,7 @@ def verify_command(directory: DirArg, json: JsonOpt = False, workers: WorkersOpt
     render_verify(result, stdout_console())
 
 
-def _write_files(result: Any, answers: Any, spec: Any, directory: Path) -> list[Path]:
+def _write_files(result: Verification, answers: Answers, target: Target, directory: Path) -> list[Path]:
     """verify.md/.csv/.json; and, where the out directory already has a report.html, the whole
     report again (same answers as `planner run`), so the page shows the verification and its
     tables and plots agree with it. Without a report.html, `planner run` includes verify.json
@@ -58,5 +64,5 @@ def _write_files(result: Any, answers: Any, spec: Any, directory: Path) -> list[
     from planner.reports.files import write_all, write_verification
 
     if (directory / "report.html").is_file():
-        return write_all(answers, out_dir=directory, target=spec, verification=result)
+        return write_all(answers, out_dir=directory, target=target, verification=result)
     return write_verification(result, directory)

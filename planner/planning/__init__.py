@@ -1,4 +1,5 @@
-"""Planning: turning fits into requirements, roadmaps and sensitivities (never prints).
+"""Planning: turning fits into requirements, roadmaps and sensitivities (pure: never samples,
+never prints, never touches files; reading an out directory is :mod:`planner.jobs.review`).
 
 One computation for everyone: :func:`answer_all` gives the fits, the response model, the
 requirements for the goal (with bootstrap intervals), the roadmap and the sensitivity.
@@ -8,12 +9,11 @@ from __future__ import annotations
 
 import dataclasses
 from collections.abc import Sequence
-from pathlib import Path
 from typing import Any
 
 import sinter
 
-from planner.config import COMPONENTS, Target, load_target
+from planner.config import COMPONENTS, Target
 from planner.errors import InputError
 from planner.fits import CONFIDENCE, FitReport, fit_stats
 from planner.planning.ask import (
@@ -42,11 +42,11 @@ __all__ = [
     "Answers", "CalculatorAnswer", "FactorAnswer", "FitQuality", "MixAnswer", "Requirements",
     "ResponseModel", "Roadmap", "Sensitivity", "TodayAnswer", "Uncertainty", "answer_all",
     "build_roadmap", "calculate", "cheapest_mix", "fit_model", "largest_distance_within",
-    "OutDirSamples", "load_out_dir", "no_model_reason", "physical_qubits", "requirements", "sensitivity", "smallest_distance",
+    "no_model_reason", "physical_qubits", "requirements", "sensitivity", "smallest_distance",
 ]
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class Answers:
     """Everything planned from one out directory. ``model`` and the answers built on it are None
     when no scale point has a Lambda (``notes`` says why)."""
@@ -83,7 +83,8 @@ def answer_all(target: Target, stats: Sequence[sinter.TaskStats], *, seed: int =
     if not report.tasks:
         raise InputError("no samples with shots to fit")
     if not any(lf.suppression is not None for lf in report.lambdas):
-        return Answers(report, None, None, None, None, None, (no_model_reason(report),))
+        return Answers(fits=report, model=None, requirements=None, roadmap=None, sensitivity=None,
+                       uncertainty=None, notes=(no_model_reason(report),))
     model = fit_model(report)
     req = requirements(model, target, eps_target=eps_target, distance=distance, qubits=qubits, report=report)
     unc = bootstrap(stats, report, model, req, replicas=replicas, seed=seed,
@@ -94,61 +95,5 @@ def answer_all(target: Target, stats: Sequence[sinter.TaskStats], *, seed: int =
     rm = build_roadmap(target, model, seed=seed, models=models, eps_target=eps_target)
     if rm is not None and (far := distance_extrapolation_note(rm.goal_distance, report.sampled_distances)):
         rm = dataclasses.replace(rm, note="; ".join(n for n in (rm.note, far) if n))
-    return Answers(report, model, req, rm, sensitivity(model, target, models=models), unc)
-
-
-@dataclasses.dataclass(frozen=True)
-class OutDirSamples:
-    """An out directory's target copy and summed samples (only the manifest's tasks).
-
-    Unpacks as ``target, stats = load_out_dir(d)``. ``ignored_rows``: rows of tasks the manifest
-    does not list (another target's samples copied in); ``damaged_rows``: rows torn by an
-    interrupted write (set aside or skipped); ``notices``: what the store said about them.
-    """
-
-    target: Target
-    stats: list[sinter.TaskStats]
-    ignored_rows: int = 0
-    damaged_rows: int = 0
-    notices: tuple[str, ...] = ()
-
-    def __iter__(self) -> Any:
-        return iter((self.target, self.stats))
-
-
-def load_out_dir(directory: str | Path, *, notify: Any = "stderr") -> OutDirSamples:
-    """The target copy and the summed samples of an out directory (InputError if unusable).
-
-    Only the tasks the manifest lists are read; damaged rows of idle shards are set aside
-    first (see :mod:`planner.store`). ``notify``: called with each notice (default: one line
-    on stderr; None: quiet, the notices are on the result).
-    """
-    from planner.manifest import MANIFEST
-    from planner.store import SampleStore, print_notice
-
-    root = Path(directory)
-    if not root.is_dir():
-        raise InputError(f"{root}: no such out directory (run `planner sweep` or `planner run` first)")
-    tpath = root / "target.toml"
-    if not tpath.is_file():
-        raise InputError(f"{tpath}: missing: {root} is not a planner out directory")
-    if not (root / MANIFEST).is_file():
-        raise InputError(f"{root / MANIFEST}: missing: {root} is not a planner out directory "
-                         f"(samples without planner's manifest cannot be fitted; run `planner sweep "
-                         f"{tpath} --out {root}`)")
-    target = load_target(tpath)
-    store = SampleStore(root, notify=None)  # said below, once the answer is not an error
-    try:
-        store.repair()
-    except InputError as exc:  # e.g. a full disk: reading still works, the rows are skipped
-        store.note(f"could not repair the samples: {exc}")
-    read = store.read()
-    stats = [s for s in read.stats() if s.shots > 0]
-    if not stats:
-        other = f" ({read.ignored_rows} rows of other tasks ignored)" if read.ignored_rows else ""
-        raise InputError(f"{root / 'samples'}: no samples yet{other} (run `planner sweep {tpath}` first)")
-    say = print_notice if notify == "stderr" else notify
-    for message in store.notices if say is not None else ():
-        say(message)
-    return OutDirSamples(target=target, stats=stats, ignored_rows=read.ignored_rows,
-                         damaged_rows=read.damaged_rows, notices=tuple(store.notices))
+    return Answers(fits=report, model=model, requirements=req, roadmap=rm,
+                   sensitivity=sensitivity(model, target, models=models), uncertainty=unc)

@@ -9,37 +9,38 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
-import numpy as np
-from scipy.optimize import brentq, minimize
+from scipy.optimize import brentq
 
 from planner.config import COMPONENTS, Target
 from planner.errors import InputError
 from planner.fits import FitReport, Interval
+from planner.planning.limits import (
+    HEADROOM_LIMIT,
+    MAX_DISTANCE,
+    MAX_HALVINGS,
+    MIN_RATE,
+    TINY,
+    _below,
+    _fin,
+    _ivj,
+    check_distance,
+    check_rate,
+)
+from planner.planning.mix import MixAnswer, cheapest_mix, cost_shares, mix_cost
 from planner.planning.model import ResponseModel, largest_distance_within, physical_qubits, qubit_rule
 
-#: largest distance planner answers for: every --distance, every search and every qubit budget
-#: stops here. A distance-1001 surface code is two million physical qubits, and an answer there
-#: already rests on hundreds of factors of Lambda extrapolated beyond any sampled distance.
-MAX_DISTANCE = 1001
-#: smallest logical error per cycle planner takes as a goal or a measurement: a rate below it
-#: is beyond any reachable one (no computation runs 10^100 cycles)
-MIN_RATE = 1e-100
-#: model figures below this are not printed as numbers (they would underflow to 0): "below"
-TINY = 1e-300
-#: a lever that may get this many times worse and still meet the goal has unbounded headroom
-HEADROOM_LIMIT = 1024.0
-#: the cheapest-mix search lets a component improve at most 2^-MAX_HALVINGS
-MAX_HALVINGS = 30.0
+__all__ = [
+    "HEADROOM_LIMIT", "MAX_DISTANCE", "MAX_HALVINGS", "MIN_RATE", "TINY", "Boundary", "FactorAnswer",
+    "MixAnswer", "Requirements", "TodayAnswer", "check_distance", "check_rate", "cheapest_mix",
+    "choose_distance", "cost_shares", "distance_extrapolation_note", "find_boundary", "goal_distance",
+    "mix_cost", "required_suppression", "requirements", "smallest_distance", "solve_lever",
+    "today_answer", "what_if",
+]
 
-
-def _ivj(iv: Interval | None) -> dict[str, Any] | None:
-    return iv.to_json() if iv is not None else None
-
-
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class FactorAnswer:
     """The factor one lever (``joint`` or a component alone) needs to reach the goal."""
 
@@ -61,50 +62,7 @@ class FactorAnswer:
                 "suppression_factor_interval": _ivj(self.suppression_interval)}
 
 
-def _fin(x: float | None) -> float | None:
-    return None if x is None or not math.isfinite(x) else float(x)
-
-
-@dataclasses.dataclass(frozen=True)
-class MixAnswer:
-    """The cheapest set of factors: minimises sum_c cost_c * log2(1/s_c) subject to the goal.
-
-    ``cost_shares``: each component's part of :attr:`cost` (fractions summing to 1; empty when
-    the cost is 0). The ``*_interval(s)`` fields are bootstrap intervals (the mix re-solved on
-    each replica model), None until :func:`planner.planning.uncertainty.with_intervals` runs.
-    """
-
-    reachable: bool
-    scales: dict[str, float]
-    cost: float | None
-    suppression: float
-    logical_error_per_cycle: float | None
-    note: str = ""
-    extrapolation: tuple[str, ...] = ()
-    cost_shares: dict[str, float] = dataclasses.field(default_factory=dict)
-    scale_intervals: dict[str, Interval] = dataclasses.field(default_factory=dict)
-    cost_share_intervals: dict[str, Interval] = dataclasses.field(default_factory=dict)
-    cost_interval: Interval | None = None
-    suppression_interval: Interval | None = None
-
-    def changed(self) -> list[str]:
-        """Components the mix improves (factor below 1), in COMPONENTS order."""
-        return [c for c in COMPONENTS if self.scales.get(c, 1.0) < 1.0]
-
-    def to_json(self) -> dict[str, Any]:
-        return {"reachable": self.reachable, "scales": dict(self.scales), "cost_halvings": self.cost,
-                "suppression_factor": _fin(self.suppression),
-                "logical_error_per_cycle": _fin(self.logical_error_per_cycle), "note": self.note,
-                "extrapolation": list(self.extrapolation),
-                "halvings": {c: -math.log2(s) if s > 0 else None for c, s in self.scales.items()},
-                "cost_shares": dict(self.cost_shares),
-                "scale_intervals": {c: v.to_json() for c, v in self.scale_intervals.items()},
-                "cost_share_intervals": {c: v.to_json() for c, v in self.cost_share_intervals.items()},
-                "cost_halvings_interval": _ivj(self.cost_interval),
-                "suppression_factor_interval": _ivj(self.suppression_interval)}
-
-
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class TodayAnswer:
     """Today's device: Lambda (model and fitted) and the smallest code meeting the goal."""
 
@@ -133,7 +91,7 @@ class TodayAnswer:
                 "logical_error_per_cycle_at_distance_interval": _ivj(self.logical_error_per_cycle_interval)}
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class Requirements:
     """Everything ``planner ask`` answers for one goal at one distance (``code``: the swept code,
     which decides the qubit count)."""
@@ -179,19 +137,19 @@ def choose_distance(target: Target, *, distance: int | None = None, qubits: int 
     odd one whose code (the target's ``sweep.code``) fits in ``qubits`` or ``goal.max_qubits``,
     at most :data:`MAX_DISTANCE`."""
     if distance is not None and qubits is not None:
-        raise InputError("give --distance or --qubits, not both")
+        raise InputError("given together with a distance: give one of them, not both", field="qubits")
     if distance is not None:
         check_distance(distance)
         return distance, "given"
     code = target.sweep.code
-    name, limit = ("--qubits", qubits) if qubits is not None else ("goal.max_qubits", target.goal.max_qubits)
+    name, limit = ("qubits", qubits) if qubits is not None else ("goal.max_qubits", target.goal.max_qubits)
     if isinstance(limit, bool) or not isinstance(limit, int):
-        raise InputError(f"{name}: {limit!r} is not allowed: a whole number of physical qubits")
+        raise InputError(f"{limit!r} is not allowed: a whole number of physical qubits", field=name)
     source = f"{'from --qubits' if qubits is not None else 'from goal.max_qubits'} ({limit})"
     d = largest_distance_within(min(limit, physical_qubits(MAX_DISTANCE + 2, code) - 1), code)
     if d is None:
-        raise InputError(f"{name}: {limit} qubits is fewer than the {physical_qubits(3, code)} a "
-                         f"distance-3 {code} code needs ({qubit_rule(code)})")
+        raise InputError(f"{limit} qubits is fewer than the {physical_qubits(3, code)} a "
+                         f"distance-3 {code} code needs ({qubit_rule(code)})", field=name)
     if physical_qubits(MAX_DISTANCE + 2, code) <= limit:
         source += f", capped at d = {MAX_DISTANCE}, the largest planner answers for"
     return d, source
@@ -207,19 +165,6 @@ def goal_distance(target: Target) -> int:
     """
     found = largest_distance_within(target.goal.max_qubits, target.sweep.code) or 3
     return min(found, MAX_DISTANCE)
-
-
-def check_distance(distance: int, *, name: str = "--distance") -> None:
-    """Refuse a distance planner does not answer for (odd, 3 <= d <= :data:`MAX_DISTANCE`)."""
-    if isinstance(distance, bool) or not isinstance(distance, int) or distance < 3 or distance % 2 == 0 \
-            or distance > MAX_DISTANCE:
-        raise InputError(f"{name}: {distance} is not allowed: give an odd integer 3 <= d <= {MAX_DISTANCE}")
-
-
-def check_rate(name: str, value: float) -> None:
-    """Refuse a logical error per cycle outside [:data:`MIN_RATE`, 0.5)."""
-    if not (MIN_RATE <= value < 0.5):
-        raise InputError(f"{name}: {value!r} is not allowed: a per-cycle error rate {MIN_RATE:g} <= eps < 0.5")
 
 
 def what_if(target: Target, *, eps_target: float | None = None, distance: int | None = None,
@@ -243,11 +188,6 @@ def what_if(target: Target, *, eps_target: float | None = None, distance: int | 
     return asked
 
 
-def _below(x: float) -> float | None:
-    """``x``, or None when it is too small to print (it would read as 0)."""
-    return x if x >= TINY else None
-
-
 def _scaled(comp: str, f: float) -> dict[str, float]:
     return {c: (f if comp in ("joint", c) else 1.0) for c in COMPONENTS}
 
@@ -264,103 +204,62 @@ def smallest_distance(model: ResponseModel, scales: Mapping[str, float] | None, 
     return None
 
 
-def _solve_lever(model: ResponseModel, lever: str, *, distance: int, eps_target: float) -> FactorAnswer:
-    ln_t = math.log(eps_target)
-    h = lambda f: model.ln_eps(_scaled(lever, f), distance) - ln_t  # noqa: E731
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class Boundary:
+    """Where a monotone ``h(f)`` (ln eps minus ln goal, increasing in the factor ``f``) crosses 0.
+
+    ``kind``: ``needed`` (``factor`` < 1 meets the goal), ``headroom`` (met today; ``factor`` >= 1
+    is how much worse it may get), ``unbounded`` (met even :data:`HEADROOM_LIMIT` times worse:
+    ``factor`` None) or ``unreachable`` (not met even at ``lowest``: ``factor`` None).
+    """
+
+    kind: str
+    factor: float | None
+
+
+def find_boundary(h: Callable[[float], float], *, lowest: float = 0.0) -> Boundary:
+    """The one boundary search of planning: the factor where ``h`` changes sign.
+
+    >>> round(find_boundary(lambda f: f - 0.25).factor, 12)
+    0.25
+    >>> find_boundary(lambda f: f - 3.0).kind, find_boundary(lambda f: -1.0).kind
+    ('headroom', 'unbounded')
+    >>> find_boundary(lambda f: 1.0).kind
+    'unreachable'
+    """
     if h(1.0) <= 0:
-        # met today: report the headroom (how much worse this lever could get)
+        # met today: the headroom (how much worse the factor could get)
         top = 1.0
         while top < HEADROOM_LIMIT and h(top * 2) <= 0:
             top *= 2
         if top >= HEADROOM_LIMIT:
-            # no finite answer to print (1 would read as "no headroom"): say so instead
-            return FactorAnswer(lever, True, None, model.suppression(None),
-                                note=f"goal already met today; {lever} may get more than "
-                                     f"x{HEADROOM_LIMIT:g} worse (the goal barely depends on it)")
-        f = brentq(h, top, top * 2, xtol=1e-12, rtol=1e-10)
-        return FactorAnswer(lever, True, f, model.suppression(_scaled(lever, f)),
-                            note=f"goal already met today; headroom: {lever} may get x{f:.2f} worse",
-                            extrapolation=tuple(model.extrapolation(_scaled(lever, f))))
-    lo = 0.0 if lever != "joint" else 1e-12
-    if not h(lo) <= 0:
+            return Boundary(kind="unbounded", factor=None)
+        return Boundary(kind="headroom", factor=float(brentq(h, top, top * 2, xtol=1e-12, rtol=1e-10)))
+    if not h(lowest) <= 0:
+        return Boundary(kind="unreachable", factor=None)
+    return Boundary(kind="needed", factor=float(brentq(h, lowest, 1.0, xtol=1e-14, rtol=1e-12)))
+
+
+def solve_lever(model: ResponseModel, lever: str, *, distance: int, eps_target: float) -> FactorAnswer:
+    """The factor ``lever`` (``joint`` or one component alone) needs to meet ``eps_target`` at
+    ``distance`` on ``model`` (or, met today, the headroom)."""
+    ln_t = math.log(eps_target)
+    found = find_boundary(lambda f: model.ln_eps(_scaled(lever, f), distance) - ln_t,
+                          lowest=0.0 if lever != "joint" else 1e-12)
+    f = found.factor
+    if found.kind == "unbounded":
+        # no finite answer to print (1 would read as "no headroom"): say so instead
+        return FactorAnswer(lever=lever, reachable=True, factor=None, suppression=model.suppression(None),
+                            note=f"goal already met today; {lever} may get more than "
+                                 f"x{HEADROOM_LIMIT:g} worse (the goal barely depends on it)")
+    if found.kind == "unreachable":
         lam = model.suppression(_scaled(lever, 0.0))
         why = (f"not reachable alone: with {lever} perfect, Lambda = {lam:.3g}" if lever != "joint"
                else "not reachable: the model never meets the goal at this distance")
-        return FactorAnswer(lever, False, None, lam, note=why)
-    f = brentq(h, lo, 1.0, xtol=1e-14, rtol=1e-12)
-    return FactorAnswer(lever, True, f, model.suppression(_scaled(lever, f)),
-                        extrapolation=tuple(model.extrapolation(_scaled(lever, f))))
-
-
-def mix_cost(scales: Mapping[str, float], costs: Mapping[str, float]) -> float:
-    """sum_c cost_c * log2(1/s_c): the number of cost-weighted halvings of error.
-
-    >>> mix_cost({"gate_2q": 0.25, "readout": 0.5}, {"gate_2q": 1.0, "readout": 3.0})
-    5.0
-    """
-    return float(sum(costs.get(c, 1.0) * -math.log2(s) for c, s in scales.items() if s < 1))
-
-
-def cost_shares(scales: Mapping[str, float], costs: Mapping[str, float]) -> dict[str, float]:
-    """Each improved component's fraction of :func:`mix_cost` (empty when nothing improves).
-
-    >>> cost_shares({"gate_2q": 0.25, "readout": 0.5, "reset": 1.0}, {"gate_2q": 1.0, "readout": 3.0})
-    {'gate_2q': 0.4, 'readout': 0.6}
-    """
-    total = mix_cost(scales, costs)
-    if total <= 0:
-        return {}
-    return {c: costs.get(c, 1.0) * -math.log2(s) / total for c, s in scales.items() if s < 1}
-
-
-def cheapest_mix(model: ResponseModel, *, distance: int, eps_target: float, costs: Mapping[str, float],
-                 starts: tuple[dict[str, float], ...] = (), default_starts: bool = True) -> MixAnswer:
-    """Minimise sum_c cost_c log2(1/s_c) over s_c in (0, 1] with eps_distance(s) <= eps_target.
-
-    ``starts`` seed the optimiser; ``default_starts=False`` uses only them (the bootstrap re-solves
-    each replica from the original answer, which is close, to stay fast)."""
-    ln_t = math.log(eps_target)
-    today = {c: 1.0 for c in COMPONENTS}
-    if model.ln_eps(today, distance) <= ln_t:
-        return MixAnswer(True, today, 0.0, model.suppression(today),
-                         _below(model.logical_error_per_cycle(today, distance)), note="goal already met today")
-    levers = [c for c in COMPONENTS if model.weights[c] > 0 or model.curvature[c] > 0]
-    if not levers:
-        return MixAnswer(False, today, None, model.suppression(today), math.nan, note="model has no levers")
-    cost = np.array([costs.get(c, 1.0) for c in levers])
-
-    def scales_of(u: np.ndarray) -> dict[str, float]:
-        s = dict(today)
-        s.update({c: float(2.0 ** -ui) for c, ui in zip(levers, u)})
-        return s
-
-    def slack(u: np.ndarray) -> float:
-        return ln_t - model.ln_eps(scales_of(u), distance)
-
-    best: np.ndarray | None = None
-    x0s = [np.array([-math.log2(max(st.get(c, 1.0), 2 ** -MAX_HALVINGS)) for c in levers]) for st in starts]
-    if default_starts or not x0s:
-        x0s.append(np.full(len(levers), 1.0))
-        x0s.append(np.full(len(levers), 4.0))
-    for x0 in x0s:
-        r = minimize(lambda u: float(cost @ u), x0, jac=lambda u: cost, method="SLSQP",
-                     bounds=[(0.0, MAX_HALVINGS)] * len(levers),
-                     constraints=[{"type": "ineq", "fun": slack}], options={"maxiter": 200, "ftol": 1e-12})
-        u = np.clip(r.x, 0.0, MAX_HALVINGS)
-        if slack(u) >= -1e-9 and (best is None or cost @ u < cost @ best):
-            best = u
-    if best is None:
-        return MixAnswer(False, today, None, model.suppression(today), math.nan,
-                         note="not reachable: no mix of factors meets the goal at this distance")
-    # land exactly on the goal: pull the mix back along the line to today until the constraint binds
-    if slack(best) > 1e-12 and slack(best * 0) < 0:
-        t = brentq(lambda a: slack(best * a), 0.0, 1.0, xtol=1e-14)
-        best = best * t
-    s = scales_of(best)
-    s = {c: (1.0 if v > 1 - 1e-12 else v) for c, v in s.items()}
-    return MixAnswer(True, s, mix_cost(s, costs), model.suppression(s),
-                     model.logical_error_per_cycle(s, distance),
-                     extrapolation=tuple(model.extrapolation(s)), cost_shares=cost_shares(s, costs))
+        return FactorAnswer(lever=lever, reachable=False, factor=None, suppression=lam, note=why)
+    note = f"goal already met today; headroom: {lever} may get x{f:.2f} worse" if found.kind == "headroom" else ""
+    return FactorAnswer(lever=lever, reachable=True, factor=f, suppression=model.suppression(_scaled(lever, f)),
+                        note=note, extrapolation=tuple(model.extrapolation(_scaled(lever, f))))
 
 
 def required_suppression(model: ResponseModel, *, distance: int, eps_target: float) -> float | None:
@@ -388,8 +287,9 @@ def today_answer(model: ResponseModel, report: FitReport | None, *, distance: in
         note = f"goal not met by any distance up to {MAX_DISTANCE}"
     else:
         note = "" if qubits <= max_qubits else f"needs {qubits} qubits, more than {budget_name} = {max_qubits}"
-    return TodayAnswer(lam, fitted, above, d, qubits, bool(d and qubits <= max_qubits), _below(eps_at),
-                       note, max_qubits=max_qubits)
+    return TodayAnswer(suppression_model=lam, suppression_fitted=fitted, above_threshold=above, distance=d,
+                       physical_qubits=qubits, within_max_qubits=bool(d and qubits <= max_qubits),
+                       logical_error_per_cycle=_below(eps_at), note=note, max_qubits=max_qubits)
 
 
 def distance_extrapolation_note(distance: int, sampled: Sequence[int]) -> str:
@@ -413,10 +313,10 @@ def requirements(model: ResponseModel, target: Target, *, eps_target: float | No
                  report: FitReport | None = None) -> Requirements:
     """All answers for one goal (default: the target's goal) at one distance."""
     eps = float(eps_target if eps_target is not None else target.goal.logical_error_per_cycle)
-    check_rate("--target" if eps_target is not None else "goal.logical_error_per_cycle", eps)
+    check_rate("eps_target" if eps_target is not None else "goal.logical_error_per_cycle", eps)
     d, source = choose_distance(target, distance=distance, qubits=qubits)
-    joint = _solve_lever(model, "joint", distance=d, eps_target=eps)
-    comps = tuple(_solve_lever(model, c, distance=d, eps_target=eps) for c in COMPONENTS)
+    joint = solve_lever(model, "joint", distance=d, eps_target=eps)
+    comps = tuple(solve_lever(model, c, distance=d, eps_target=eps) for c in COMPONENTS)
     starts = tuple(_scaled(a.lever, a.factor) for a in (joint, *comps)
                    if a.reachable and a.factor is not None and a.factor < 1)
     mix = cheapest_mix(model, distance=d, eps_target=eps, costs={c: target.cost(c) for c in COMPONENTS},
@@ -435,5 +335,7 @@ def requirements(model: ResponseModel, target: Target, *, eps_target: float | No
                          budget_name=budget[1])
     if today.logical_error_per_cycle is None:
         notes.append(f"eps per cycle today at d = {d} is below {TINY:g}: beyond any reachable, not printed")
-    return Requirements(eps, d, physical_qubits(d, code), source, required, joint, comps, mix, today,
-                        model.form, model.quality.summary(), tuple(notes), code=code)
+    return Requirements(eps_target=eps, distance=d, physical_qubits=physical_qubits(d, code),
+                        distance_source=source, required_suppression=required, joint=joint, components=comps,
+                        mix=mix, today=today, model_form=model.form, model_quality=model.quality.summary(),
+                        notes=tuple(notes), code=code)

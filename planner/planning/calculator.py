@@ -17,11 +17,11 @@ import math
 from typing import Any
 
 from planner.errors import InputError
-from planner.planning.ask import MAX_DISTANCE, check_distance, check_rate
+from planner.planning.limits import MAX_DISTANCE, check_distance, check_rate
 from planner.planning.model import physical_qubits
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class CalculatorAnswer:
     suppression: float
     eps_measured: float
@@ -39,9 +39,12 @@ class CalculatorAnswer:
     def to_json(self) -> dict[str, Any]:
         return {"distance": self.distance, "physical_qubits": self.physical_qubits,
                 "logical_error_per_cycle": self.logical_error_per_cycle, "reachable": self.reachable,
+                "required_suppression_factor": self.required_suppression,
+                "required_suppression_factor_at_distance": self.measured_distance,
+                "prefactor_a": self.prefactor, "suppression_factor": self.suppression,
+                # the calculator's first words for the same numbers, kept for scripts that read them
                 "required_lambda": self.required_suppression,
-                "required_lambda_at_distance": self.measured_distance,
-                "prefactor_a": self.prefactor, "lambda": self.suppression,
+                "required_lambda_at_distance": self.measured_distance, "lambda": self.suppression,
                 "measured_logical_error_per_cycle": self.eps_measured,
                 "target_logical_error_per_cycle": self.eps_target, "note": self.note}
 
@@ -58,37 +61,41 @@ def calculate(*, suppression: float, eps: float, distance: int, eps_target: floa
     """Smallest odd distance meeting ``eps_target`` from a measured Lambda and eps at ``distance``.
 
     Works in logarithms, so no intermediate overflows; a distance beyond
-    :data:`~planner.planning.ask.MAX_DISTANCE` is "not reachable" (exit 0), inputs out of range
+    :data:`~planner.planning.limits.MAX_DISTANCE` is "not reachable" (exit 0), inputs out of range
     raise :class:`~planner.errors.InputError`.
     """
     if not (0 < suppression <= MAX_LAMBDA):
-        raise InputError(f"--lambda: {suppression!r} is not allowed: a suppression factor "
-                         f"0 < Lambda <= {MAX_LAMBDA:g}")
-    check_rate("--eps", eps)
-    check_rate("--target", eps_target)
+        raise InputError(f"{suppression!r} is not allowed: a suppression factor", field="suppression",
+                         allowed=f"0 < Lambda <= {MAX_LAMBDA:g}")
+    check_rate("eps", eps)
+    check_rate("eps_target", eps_target)
     check_distance(distance)
     k = (distance + 1) / 2
     ln_lam = math.log(suppression)
     ln_prefactor = math.log(eps) + k * ln_lam
     if ln_prefactor > math.log(MAX_PREFACTOR):
-        raise InputError(f"--eps: {eps:g} at --distance {distance} with --lambda {suppression:g} is not "
+        raise InputError(f"{eps:g} at distance {distance} with Lambda {suppression:g} is not "
                          f"allowed: it implies a prefactor A = eps * Lambda^((d+1)/2) = 10^"
-                         f"{ln_prefactor / math.log(10):.0f}, above {MAX_PREFACTOR:g}; no device has that")
+                         f"{ln_prefactor / math.log(10):.0f}, above {MAX_PREFACTOR:g}; no device has that",
+                         field="eps")
     prefactor = math.exp(ln_prefactor)
     # (A / eps_target)^(1/k) = Lambda * (eps / eps_target)^(1/k)
     required = math.exp(ln_lam + (math.log(eps) - math.log(eps_target)) / k)
+    given = dict(suppression=suppression, eps_measured=eps, measured_distance=distance, eps_target=eps_target,
+                 required_suppression=required, prefactor=prefactor)
+
+    def unreachable(note: str) -> CalculatorAnswer:
+        return CalculatorAnswer(**given, reachable=False, distance=None, physical_qubits=None,
+                                logical_error_per_cycle=None, note=note)
+
     if suppression <= 1:
-        return CalculatorAnswer(suppression, eps, distance, eps_target, False, None, None, None,
-                                required, prefactor,
-                                note=f"not reachable: Lambda = {suppression:g} <= 1 means the device is "
-                                     "at or above threshold, so a larger code does not lower the error")
+        return unreachable(f"not reachable: Lambda = {suppression:g} <= 1 means the device is "
+                           "at or above threshold, so a larger code does not lower the error")
     steps = math.log(eps / eps_target) / ln_lam  # factors of Lambda needed beyond distance
     if distance + 2 * steps > MAX_DISTANCE + 2:
-        return CalculatorAnswer(suppression, eps, distance, eps_target, False, None, None, None,
-                                required, prefactor,
-                                note=f"not reachable: needs d = {distance + 2 * steps:.3g} or more, beyond "
-                                     f"{MAX_DISTANCE}, the largest planner answers for (Lambda = "
-                                     f"{suppression:.8g} is too close to 1 for this target)")
+        return unreachable(f"not reachable: needs d = {distance + 2 * steps:.3g} or more, beyond "
+                           f"{MAX_DISTANCE}, the largest planner answers for (Lambda = "
+                           f"{suppression:.8g} is too close to 1 for this target)")
     d = max(3, distance + 2 * math.ceil(steps - 1e-12))
     if d % 2 == 0:
         d += 1
@@ -103,10 +110,8 @@ def calculate(*, suppression: float, eps: float, distance: int, eps_target: floa
     while at(d) > eps_target * (1 + 1e-12):
         d += 2
     if d > MAX_DISTANCE:
-        return CalculatorAnswer(suppression, eps, distance, eps_target, False, None, None, None,
-                                required, prefactor,
-                                note=f"not reachable: needs a distance beyond {MAX_DISTANCE}, the largest "
-                                     "planner answers for")
+        return unreachable(f"not reachable: needs a distance beyond {MAX_DISTANCE}, the largest "
+                           "planner answers for")
     note = "goal already met at the measured distance" if eps <= eps_target else ""
-    return CalculatorAnswer(suppression, eps, distance, eps_target, True, d, physical_qubits(d), at(d),
-                            required, prefactor, note)
+    return CalculatorAnswer(**given, reachable=True, distance=d, physical_qubits=physical_qubits(d),
+                            logical_error_per_cycle=at(d), note=note)

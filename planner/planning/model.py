@@ -24,6 +24,7 @@ import numpy as np
 from scipy.optimize import nnls
 
 from planner.config import COMPONENTS
+from planner.errors import InputError
 from planner.fits import Z_SCORE, FitReport, LambdaFit
 
 FORMS = ("linear", "quadratic")
@@ -38,7 +39,7 @@ CODES = ("surface", "repetition")
 
 def _check_code(code: str) -> None:
     if code not in CODES:
-        raise ValueError(f"code must be one of {CODES}, got {code!r}")
+        raise InputError(f"{code!r} is not a code planner plans for", field="code", allowed=", ".join(CODES))
 
 
 def physical_qubits(distance: int, code: str = "surface") -> int:
@@ -100,7 +101,7 @@ class ModelData:
     def from_fits(cls, report: FitReport) -> ModelData:
         rows = [lf for lf in report.lambdas if lf.suppression is not None]
         if not rows:
-            raise ValueError("no scale point has a Lambda")
+            raise InputError("no scale point has a Lambda: sample at least two distances", field="samples")
         return cls(
             scales=np.array([[lf.scales.get(c, 1.0) for c in COMPONENTS] for lf in rows], float),
             inv_lambda=np.array([1 / lf.suppression.best for lf in rows]),
@@ -163,7 +164,7 @@ class ResponseModel:
         scales = scales or {}
         bad = set(scales) - set(COMPONENTS)
         if bad:
-            raise ValueError(f"unknown components {sorted(bad)}")
+            raise InputError(f"unknown components {sorted(bad)}", field="scales", allowed=", ".join(COMPONENTS))
         return {c: float(scales.get(c, 1.0)) for c in COMPONENTS}
 
     def terms(self, scales: Mapping[str, float] | None = None) -> dict[str, float]:
@@ -278,54 +279,66 @@ def _loo(x: np.ndarray, y: np.ndarray, sigma: np.ndarray) -> np.ndarray:
     return np.array(z)
 
 
-def fit_response(data: ModelData, *, form: str | None = None, held_out: bool = True) -> ResponseModel:
-    """Fit the response model; ``form=None`` picks linear unless held-out points call for curvature."""
-    if form is not None and form not in FORMS:
-        raise ValueError(f"form must be one of {FORMS}")
-    groups, lumped = _columns(data.scales)
-    y, sig = data.inv_lambda, data.inv_sigma
-    candidates = [form] if form else list(FORMS)
-    results = {}
-    for f in candidates:
-        x = _design(data.scales, groups, f)
-        coef = _solve(x, y, sig)
-        res = (y - x @ coef) / sig
-        results[f] = (x, coef, res, _loo(x, y, sig) if held_out else np.array([]))
-    chosen = candidates[0]
-    if form is None:
-        lin_loo, quad_loo = results["linear"][3], results["quadratic"][3]
-        if lin_loo.size and np.max(np.abs(lin_loo)) > LOO_LIMIT and \
-                quad_loo.size and np.sum(quad_loo**2) < np.sum(lin_loo**2):
-            chosen = "quadratic"
-    x, coef, res, loo = results[chosen]
-    ng = len(groups)
+def _pick_form(results: Mapping[str, tuple[np.ndarray, ...]]) -> str:
+    """Linear, unless it misses a held-out point by more than :data:`LOO_LIMIT` sigma and the
+    quadratic form predicts the held-out points better."""
+    lin_loo, quad_loo = results["linear"][3], results["quadratic"][3]
+    if lin_loo.size and np.max(np.abs(lin_loo)) > LOO_LIMIT and \
+            quad_loo.size and np.sum(quad_loo**2) < np.sum(lin_loo**2):
+        return "quadratic"
+    return "linear"
+
+
+def _split_columns(coef: np.ndarray, groups: list[list[int]],
+                   form: str) -> tuple[dict[str, float], dict[str, float]]:
+    """Weights and curvatures per component; a lumped column's coefficient applies to the mean
+    scale of its components, so it is split evenly between them."""
     weights = {c: 0.0 for c in COMPONENTS}
     curvature = {c: 0.0 for c in COMPONENTS}
+    ng = len(groups)
     for gi, g in enumerate(groups):
-        for j in g:  # a lumped column's coefficient applies to the mean scale: split evenly
+        for j in g:
             weights[COMPONENTS[j]] = float(coef[gi]) / len(g)
-            if chosen == "quadratic":
+            if form == "quadratic":
                 curvature[COMPONENTS[j]] = float(coef[ng + gi]) / len(g)
-    # prefactor: weighted least squares, min-norm where under-determined
-    xa = np.column_stack([np.ones(len(data.ln_a)), data.scales])
-    wa = 1 / data.ln_a_sigma
-    acoef, *_ = np.linalg.lstsq(xa * wa[:, None], data.ln_a * wa, rcond=None)
-    nfree = int(np.count_nonzero(coef > 0))
-    dof = len(y) - nfree
-    i_worst = int(np.argmax(np.abs(res)))
-    quality = FitQuality(
+    return weights, curvature
+
+
+def _quality(data: ModelData, coef: np.ndarray, res: np.ndarray, loo: np.ndarray) -> FitQuality:
+    dof = len(res) - int(np.count_nonzero(coef > 0))
+    return FitQuality(
         chi2_per_dof=float(np.sum(res**2) / dof) if dof > 0 else None,
         max_abs_residual=float(np.max(np.abs(res))),
         loo_max_abs_residual=float(np.max(np.abs(loo))) if loo.size else None,
         loo_chi2_per_point=float(np.mean(loo**2)) if loo.size else None,
-        num_points=len(y), worst_point=data.labels[i_worst])
+        num_points=len(res), worst_point=data.labels[int(np.argmax(np.abs(res)))])
+
+
+def fit_response(data: ModelData, *, form: str | None = None, held_out: bool = True) -> ResponseModel:
+    """Fit the response model; ``form=None`` picks linear unless held-out points call for curvature."""
+    if form is not None and form not in FORMS:
+        raise InputError(f"{form!r} is not a model form", field="form", allowed=", ".join(FORMS))
+    groups, lumped = _columns(data.scales)
+    y, sig = data.inv_lambda, data.inv_sigma
+    results = {}
+    for f in [form] if form else list(FORMS):
+        x = _design(data.scales, groups, f)
+        coef = _solve(x, y, sig)
+        results[f] = (x, coef, (y - x @ coef) / sig, _loo(x, y, sig) if held_out else np.array([]))
+    chosen = form or _pick_form(results)
+    _, coef, res, loo = results[chosen]
+    weights, curvature = _split_columns(coef, groups, chosen)
+    # prefactor: weighted least squares, min-norm where under-determined
+    xa = np.column_stack([np.ones(len(data.ln_a)), data.scales])
+    wa = 1 / data.ln_a_sigma
+    acoef, *_ = np.linalg.lstsq(xa * wa[:, None], data.ln_a * wa, rcond=None)
     return ResponseModel(
         form=chosen, weights=weights, curvature=curvature,
         ln_a_coef={c: float(acoef[1 + j]) for j, c in enumerate(COMPONENTS)},
         ln_a_const=float(acoef[0]),
         sampled_min={c: float(data.scales[:, j].min()) for j, c in enumerate(COMPONENTS)},
         sampled_max={c: float(data.scales[:, j].max()) for j, c in enumerate(COMPONENTS)},
-        unsampled=lumped, quality=quality)
+        unsampled=lumped, quality=_quality(data, coef, res, loo))
 
 
 def fit_model(report: FitReport, *, form: str | None = None) -> ResponseModel:

@@ -199,7 +199,7 @@ def milestone_years(model: ResponseModel, rates: RateSet, *, milestone: float, h
     return first_crossing(t, milestone - model.suppression_array(rates.scales(t)))
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class RoadmapStep:
     date: dt.date
     years: float
@@ -225,7 +225,7 @@ class RoadmapStep:
                 "extrapolation": list(self.extrapolation)}
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class DatedEvent:
     """When something happens: a central date and, with spreads, a range (None = beyond horizon)."""
 
@@ -241,7 +241,7 @@ class DatedEvent:
                 "fraction_of_scenarios_reached": self.fraction_reached}
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class Roadmap:
     start: dt.date
     step: str
@@ -287,7 +287,41 @@ def _event(what: str, start: dt.date, central: float | None, sampled: Sequence[f
         lo_y, hi_y = np.quantile(arr, [q, 1 - q], method="inverted_cdf")  # no interpolation across inf
         low = years_to_date(start, float(lo_y)) if np.isfinite(lo_y) else None
         high = years_to_date(start, float(hi_y)) if np.isfinite(hi_y) else None
-    return DatedEvent(what, years_to_date(start, central) if central is not None else None, low, high, frac)
+    return DatedEvent(what=what, date=years_to_date(start, central) if central is not None else None, low=low,
+                      high=high, fraction_reached=frac)
+
+
+def _steps(target: Target, model: ResponseModel, central: RateSet, *, eps: float, dmax: int,
+           cands: Sequence[int]) -> list[RoadmapStep]:
+    """The central roadmap, step by step, up to the first step that meets the goal."""
+    rm = target.roadmap
+    per = STEPS_PER_YEAR[rm.step]
+    steps = []
+    for i in range(int(rm.horizon_years * per) + 1):
+        t = i / per
+        s = dict(zip(COMPONENTS, central.scales(np.array([t]))[0].tolist()))
+        d = smallest_distance(model, s, eps)
+        d = d if d is not None and d <= dmax else None
+        steps.append(RoadmapStep(date=years_to_date(rm.start, t), years=t, scales=s,
+                                 suppression=model.suppression(s),
+                                 eps={c: model.logical_error_per_cycle(s, c) for c in cands}, distance=d,
+                                 physical_qubits=physical_qubits(d, target.sweep.code) if d else None,
+                                 extrapolation=tuple(model.extrapolation(s))))
+        if d is not None:
+            break
+    return steps
+
+
+def _scenarios(target: Target, model: ResponseModel, central: RateSet, models: Sequence[ResponseModel], *,
+               seed: int, num_scenarios: int) -> list[tuple[RateSet, ResponseModel]]:
+    """Sampled (rates, model) pairs: the rates drawn from their spreads, the models taken in turn
+    from the bootstrap replicas (none when nothing is uncertain)."""
+    rm = target.roadmap
+    rng = np.random.default_rng(seed)
+    spread = any(r.spread > 0 for r in rm.rates.values())
+    n = num_scenarios if (spread or models) else 0
+    return [(central.sample(rm.rates, rng, coherence_spread=rm.coherence_growth_spread),
+             models[i % len(models)] if models else model) for i in range(n)]
 
 
 def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_scenarios: int = 200,
@@ -299,26 +333,10 @@ def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_sc
     eps = float(eps_target if eps_target is not None else target.goal.logical_error_per_cycle)
     dmax = goal_distance(target)
     central = RateSet.from_rates(rm.rates, target=target)
-    per = STEPS_PER_YEAR[rm.step]
     cands = _candidates(dmax)
     t_goal = goal_years(model, central, eps_target=eps, max_distance=dmax, horizon_years=rm.horizon_years)
-    steps = []
-    for i in range(int(rm.horizon_years * per) + 1):
-        t = i / per
-        s = dict(zip(COMPONENTS, central.scales(np.array([t]))[0].tolist()))
-        d = smallest_distance(model, s, eps)
-        d = d if d is not None and d <= dmax else None
-        steps.append(RoadmapStep(years_to_date(rm.start, t), t, s, model.suppression(s),
-                                 {c: model.logical_error_per_cycle(s, c) for c in cands}, d,
-                                 physical_qubits(d, target.sweep.code) if d else None,
-                                 extrapolation=tuple(model.extrapolation(s))))
-        if d is not None:
-            break
-    steps = _with_intervals(steps, models, cands)
-    rng = np.random.default_rng(seed)
-    spread = any(r.spread > 0 for r in rm.rates.values())
-    n = num_scenarios if (spread or models) else 0
-    scen = [(central.sample(rm.rates, rng, coherence_spread=rm.coherence_growth_spread), models[i % len(models)] if models else model) for i in range(n)]
+    steps = _with_intervals(_steps(target, model, central, eps=eps, dmax=dmax, cands=cands), models, cands)
+    scen = _scenarios(target, model, central, models, seed=seed, num_scenarios=num_scenarios)
     goal = _event("goal", rm.start, t_goal,
                   [goal_years(m, r, eps_target=eps, max_distance=dmax, horizon_years=rm.horizon_years)
                    for r, m in scen])
@@ -330,8 +348,9 @@ def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_sc
         f"goal not met within {rm.horizon_years:g} years and {target.goal.max_qubits} qubits at these rates"
     if not rm.rates and not rm.coherence_growth_per_year:
         note = (note + "; " if note else "") + "no rates given: nothing improves"
-    return Roadmap(rm.start, rm.step, eps, target.goal.max_qubits, cands, tuple(steps), goal, miles, n, note,
-                   goal_distance=dmax, num_replicas=len(models))
+    return Roadmap(start=rm.start, step=rm.step, eps_target=eps, max_qubits=target.goal.max_qubits,
+                   candidate_distances=cands, steps=tuple(steps), goal=goal, milestones=miles,
+                   num_scenarios=len(scen), note=note, goal_distance=dmax, num_replicas=len(models))
 
 
 def _with_intervals(steps: list[RoadmapStep], models: Sequence[ResponseModel],

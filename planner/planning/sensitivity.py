@@ -34,7 +34,7 @@ def _ivj(iv: Interval | None) -> dict[str, Any] | None:
     return iv.to_json() if iv is not None else None
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class ComponentSensitivity:
     component: str
     share: float
@@ -59,7 +59,7 @@ class ComponentSensitivity:
                 "months_earlier_interval": iv("months_earlier")}
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class Sensitivity:
     suppression_today: float
     rows: tuple[ComponentSensitivity, ...]  # most limiting first
@@ -108,8 +108,10 @@ def _rows(model: ResponseModel, target: Target) -> dict[str, ComponentSensitivit
                 note = "goal not met within the horizon either way"
         elif rm is None:
             note = "no roadmap: months not computed"
-        rows[c] = ComponentSensitivity(c, share, elasticity, model.suppression({c: 0.5}),
-                                       model.suppression({c: 0.0}), months, note)
+        rows[c] = ComponentSensitivity(component=c, share=share, elasticity=elasticity,
+                                       suppression_halved=model.suppression({c: 0.5}),
+                                       suppression_perfect=model.suppression({c: 0.0}), months_earlier=months,
+                                       note=note)
     return rows
 
 
@@ -128,8 +130,9 @@ def sensitivity(model: ResponseModel, target: Target, *, models: Sequence[Respon
         rows.append(dataclasses.replace(row, intervals=ivs))
     rows.sort(key=lambda r: (-r.share, -(r.months_earlier or 0.0)))
     lam = model.suppression(None)
-    return Sensitivity(lam, tuple(rows), FASTER_POINTS, model.form, model.quality.summary(),
-                       "unsampled components share a lumped weight: " + ", ".join(model.unsampled)
+    return Sensitivity(suppression_today=lam, rows=tuple(rows), faster_points=FASTER_POINTS, model_form=model.form,
+                       model_quality=model.quality.summary(),
+                       note="unsampled components share a lumped weight: " + ", ".join(model.unsampled)
                        if model.unsampled else "",
                        suppression_today_interval=replica_interval(lam, [m.suppression(None) for m in models]),
                        num_replicas=len(models))

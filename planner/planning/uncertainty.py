@@ -27,23 +27,31 @@ import numpy as np
 import sinter
 
 from planner.config import COMPONENTS
-from planner.fits import CONFIDENCE, FitReport, Interval, fit_tasks, weighted_line, zero_error_upper
+from planner.fits import (
+    CONFIDENCE,
+    FitReport,
+    Interval,
+    fit_tasks,
+    per_cycle_rate,
+    suppression_line,
+    zero_error_upper,
+)
 from planner.planning.ask import (
     TINY,
     Requirements,
     _scaled,
-    _solve_lever,
     cheapest_mix,
     cost_shares,
     required_suppression,
     smallest_distance,
+    solve_lever,
 )
 from planner.planning.model import ModelData, ResponseModel, fit_response
 
 DEFAULT_REPLICAS = 200
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class Uncertainty:
     """Bootstrap intervals and the replica models (for the roadmap and the sensitivity).
 
@@ -59,8 +67,10 @@ class Uncertainty:
     models: tuple[ResponseModel, ...]
 
     def to_json(self) -> dict[str, Any]:
-        return {"replicas": self.replicas, "confidence": CONFIDENCE,
-                "intervals": {k: v.to_json() for k, v in self.intervals.items()},
+        intervals = {k: v.to_json() for k, v in self.intervals.items()}
+        if "required_lambda" in intervals:  # the JSON word is suppression_factor; the old key stays
+            intervals["required_suppression_factor"] = intervals["required_lambda"]
+        return {"replicas": self.replicas, "confidence": CONFIDENCE, "intervals": intervals,
                 "reachable_fraction": dict(self.reachable_fraction)}
 
 
@@ -83,21 +93,13 @@ def replica_models(stats: Sequence[sinter.TaskStats], report: FitReport, model: 
     for _ in range(replicas):
         p = rng.beta(errors + 0.5, shots - errors + 0.5)
         hits = rng.binomial(shots, p)
-        rate = np.where(hits > 0, hits / shots, upper0)
-        with np.errstate(invalid="ignore"):
-            cyc = np.where(rate < 0.5, (1 - np.abs(1 - 2 * rate) ** (1 / rounds)) / 2, 0.5)
-        inv, lna = [], []
-        for lf in points:
-            ks, ys, ss = [], [], []
-            for d in lf.distances:
-                idx = group_of[(lf.axis, lf.factor, d)]
-                ks.append((d + 1) / 2)
-                ys.append(math.log(max(float(cyc[idx].mean()), 1e-300)))
-                ss.append(sig[(lf.axis, lf.factor, d)])
-            line = weighted_line(ks, ys, ss)
-            inv.append(math.exp(line.slope))
-            lna.append(line.intercept)
-        data = dataclasses.replace(base, inv_lambda=np.array(inv), ln_a=np.array(lna))
+        cyc = np.minimum(per_cycle_rate(np.where(hits > 0, hits / shots, upper0), rounds=rounds), 0.5)
+        lines = [suppression_line(lf.distances,
+                                  [math.log(max(float(cyc[group_of[(lf.axis, lf.factor, d)]].mean()), 1e-300))
+                                   for d in lf.distances],
+                                  [sig[(lf.axis, lf.factor, d)] for d in lf.distances]) for lf in points]
+        data = dataclasses.replace(base, inv_lambda=np.exp([line.slope for line in lines]),
+                                   ln_a=np.array([line.intercept for line in lines]))
         out.append(fit_response(data, form=model.form, held_out=False))
     return out
 
@@ -120,7 +122,81 @@ def replica_interval(best: float | None, values: Sequence[float | None]) -> Inte
     # no interpolation across an infinite value (inf - inf); exact sample quantiles otherwise
     method = "linear" if np.all(np.isfinite(vals)) else "inverted_cdf"
     lo, hi = np.quantile(vals, [q, 1 - q], method=method)
-    return Interval(float(best), float(min(lo, best)), float(max(hi, best)))
+    return Interval(low=float(min(lo, best)), best=float(best), high=float(max(hi, best)))
+
+
+class _Draws:
+    """The replica values of every quantity (``values[key]``) and how many replicas reached it."""
+
+    def __init__(self) -> None:
+        self.values: dict[str, list[float | None]] = defaultdict(list)
+        self.reached: dict[str, int] = defaultdict(int)
+
+    def add(self, key: str, value: float | None, *, counts: bool = False) -> None:
+        self.values[key].append(value)
+        if counts:
+            self.reached[key] += 1
+
+
+def _draw_levers(draws: _Draws, m: ResponseModel, answer: Requirements) -> None:
+    """Each lever's factor, and the Lambda meaning the same as the best answer's, on replica ``m``."""
+    d, eps = answer.distance, answer.eps_target
+    for best_answer in (answer.joint, *answer.components):
+        lever = best_answer.lever
+        a = solve_lever(m, lever, distance=d, eps_target=eps)
+        # a replica with unbounded headroom (factor None) has no number to add: the interval
+        # is over the others and the reached fraction says how many
+        if a.reachable and a.factor is not None:
+            draws.add("joint_factor" if lever == "joint" else f"factor.{lever}", a.factor, counts=True)
+        # the same quantity as the best answer: Lambda at the solution, or with the lever perfect
+        # (unbounded headroom: nothing needs to change, so Lambda today)
+        if best_answer.reachable and best_answer.factor is None:
+            draws.add(f"lambda.{lever}", m.suppression(None))
+        elif best_answer.reachable:
+            draws.add(f"lambda.{lever}", a.suppression if a.reachable and a.factor is not None else None)
+        elif lever != "joint":
+            draws.add(f"lambda.{lever}", m.suppression(_scaled(lever, 0.0)))
+
+
+def _draw_today(draws: _Draws, m: ResponseModel, answer: Requirements) -> None:
+    d, eps = answer.distance, answer.eps_target
+    draws.add("lambda_today", m.suppression(None))
+    draws.add("today_eps", m.logical_error_per_cycle(None, d))
+    draws.add("required_lambda", required_suppression(m, distance=d, eps_target=eps))
+    td = smallest_distance(m, None, eps)
+    if td is not None:
+        draws.add("today_distance", td, counts=True)
+
+
+def _draw_mix(draws: _Draws, m: ResponseModel, answer: Requirements, costs: Mapping[str, float]) -> None:
+    mm = cheapest_mix(m, distance=answer.distance, eps_target=answer.eps_target, costs=costs,
+                      starts=(answer.mix.scales,), default_starts=False)
+    if not mm.reachable:
+        return
+    draws.reached["mix"] += 1
+    draws.add("mix.cost", mm.cost)
+    draws.add("mix.lambda", mm.suppression)
+    shares = cost_shares(mm.scales, costs)
+    for c in COMPONENTS:
+        draws.add(f"mix.factor.{c}", mm.scales[c])
+        draws.add(f"mix.share.{c}", shares.get(c, 0.0))
+
+
+def _best_values(answer: Requirements) -> dict[str, float | None]:
+    """The original answer's value of every quantity the replicas draw."""
+    mix = answer.mix
+    best: dict[str, float | None] = {
+        "joint_factor": answer.joint.factor, "lambda_today": answer.today.suppression_model,
+        "today_distance": answer.today.distance, "today_eps": answer.today.logical_error_per_cycle,
+        "required_lambda": answer.required_suppression}
+    best.update({f"factor.{a.lever}": a.factor for a in answer.components})
+    best.update({f"lambda.{a.lever}": a.suppression for a in (answer.joint, *answer.components)
+                 if a.reachable or a.lever != "joint"})
+    if mix.reachable:
+        best.update({"mix.cost": mix.cost, "mix.lambda": mix.suppression})
+        best.update({f"mix.factor.{c}": mix.scales[c] for c in COMPONENTS})
+        best.update({f"mix.share.{c}": mix.cost_shares.get(c, 0.0) for c in COMPONENTS})
+    return best
 
 
 def bootstrap(stats: Sequence[sinter.TaskStats], report: FitReport, model: ResponseModel,
@@ -129,69 +205,26 @@ def bootstrap(stats: Sequence[sinter.TaskStats], report: FitReport, model: Respo
     """Intervals on the requirement answers: factors and the Lambda they reach, today's Lambda,
     eps and distance, the required Lambda, and the cheapest mix (re-solved on every replica)."""
     models = replica_models(stats, report, model, replicas=replicas, seed=seed)
-    d, eps = answer.distance, answer.eps_target
     costs = costs if costs is not None else {}
-    vals: dict[str, list[float | None]] = defaultdict(list)
-    reached: dict[str, int] = defaultdict(int)
-    levers = {a.lever: a for a in (answer.joint, *answer.components)}
-    mix = answer.mix
+    draws = _Draws()
     for m in models:
-        for lever, best_answer in levers.items():
-            a = _solve_lever(m, lever, distance=d, eps_target=eps)
-            key = "joint_factor" if lever == "joint" else f"factor.{lever}"
-            # a replica with unbounded headroom (factor None) has no number to add: the interval
-            # is over the others and the reached fraction says how many
-            if a.reachable and a.factor is not None:
-                vals[key].append(a.factor)
-                reached[key] += 1
-            # the same quantity as the best answer: Lambda at the solution, or with the lever perfect
-            # (unbounded headroom: nothing needs to change, so Lambda today)
-            if best_answer.reachable and best_answer.factor is None:
-                vals[f"lambda.{lever}"].append(m.suppression(None))
-            elif best_answer.reachable:
-                vals[f"lambda.{lever}"].append(a.suppression if a.reachable and a.factor is not None else None)
-            elif lever != "joint":
-                vals[f"lambda.{lever}"].append(m.suppression(_scaled(lever, 0.0)))
-        vals["lambda_today"].append(m.suppression(None))
-        vals["today_eps"].append(m.logical_error_per_cycle(None, d))
-        vals["required_lambda"].append(required_suppression(m, distance=d, eps_target=eps))
-        td = smallest_distance(m, None, eps)
-        if td is not None:
-            vals["today_distance"].append(td)
-            reached["today_distance"] += 1
-        if mix.reachable:
-            mm = cheapest_mix(m, distance=d, eps_target=eps, costs=costs, starts=(mix.scales,),
-                              default_starts=False)
-            if mm.reachable:
-                reached["mix"] += 1
-                vals["mix.cost"].append(mm.cost)
-                vals["mix.lambda"].append(mm.suppression)
-                shares = cost_shares(mm.scales, costs)
-                for c in COMPONENTS:
-                    vals[f"mix.factor.{c}"].append(mm.scales[c])
-                    vals[f"mix.share.{c}"].append(shares.get(c, 0.0))
-    best: dict[str, float | None] = {
-        "joint_factor": answer.joint.factor, "lambda_today": answer.today.suppression_model,
-        "today_distance": answer.today.distance, "today_eps": answer.today.logical_error_per_cycle,
-        "required_lambda": answer.required_suppression}
-    best.update({f"factor.{a.lever}": a.factor for a in answer.components})
-    best.update({f"lambda.{k}": a.suppression for k, a in levers.items() if a.reachable or k != "joint"})
-    if mix.reachable:
-        best.update({"mix.cost": mix.cost, "mix.lambda": mix.suppression})
-        best.update({f"mix.factor.{c}": mix.scales[c] for c in COMPONENTS})
-        best.update({f"mix.share.{c}": mix.cost_shares.get(c, 0.0) for c in COMPONENTS})
+        _draw_levers(draws, m, answer)
+        _draw_today(draws, m, answer)
+        if answer.mix.reachable:
+            _draw_mix(draws, m, answer, costs)
+    best = _best_values(answer)
     intervals = {}
     for k, b in best.items():
-        iv = replica_interval(b, vals.get(k, []))
+        iv = replica_interval(b, draws.values.get(k, []))
         if iv is not None and iv.low < TINY and k == "today_eps":
             iv = None  # the low end underflows: a 0 there would be no bound at all
         if iv is not None:
             intervals[k] = iv
-    frac = {k: reached.get(k, 0) / replicas for k in best
+    frac = {k: draws.reached.get(k, 0) / replicas for k in best
             if k in ("joint_factor", "today_distance") or k.startswith("factor.")}
-    if mix.reachable:
-        frac["mix"] = reached.get("mix", 0) / replicas
-    return Uncertainty(replicas, intervals, frac, tuple(models))
+    if answer.mix.reachable:
+        frac["mix"] = draws.reached.get("mix", 0) / replicas
+    return Uncertainty(replicas=replicas, intervals=intervals, reachable_fraction=frac, models=tuple(models))
 
 
 def with_intervals(answer: Requirements, unc: Uncertainty) -> Requirements:

@@ -1,4 +1,5 @@
-"""Checking the answers on the simulator: sample at the proposed operating points and compare.
+"""Checking the answers on the simulator: the operating points to sample and the comparison of
+what was sampled there with the prediction (the sampling is :mod:`planner.jobs.verify`).
 
 The operating points are the joint-factor answer and the cheapest mix; they are sampled at the
 two largest sampled distances (capped at :data:`MAX_VERIFY_DISTANCE` so it stays affordable) and
@@ -11,26 +12,26 @@ from __future__ import annotations
 import dataclasses
 import math
 from collections.abc import Sequence
-from pathlib import Path
 from typing import Any
 
 import numpy as np
 import sinter
 
-from planner.config import COMPONENTS, Target
-from planner.fits import CONFIDENCE, Interval, fit_stats
+from planner.config import COMPONENTS
+from planner.errors import InputError
+from planner.fits import CONFIDENCE, FitReport, Interval, fit_stats
 
 MAX_VERIFY_DISTANCE = 7
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class OperatingPoint:
     label: str
     scales: dict[str, float]
     factor: float
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class VerifyRow:
     """Predicted vs sampled at one (operating point, distance) or, with ``distance=None``, Lambda."""
 
@@ -52,7 +53,7 @@ class VerifyRow:
                 "zero_errors": self.zero_errors, "holds": self.holds}
 
 
-@dataclasses.dataclass(frozen=True)
+@dataclasses.dataclass(frozen=True, kw_only=True)
 class Verification:
     points: tuple[OperatingPoint, ...]
     distances: tuple[int, ...]
@@ -70,19 +71,22 @@ class Verification:
 
     @classmethod
     def from_json(cls, doc: Any) -> Verification:
-        """The inverse of :meth:`to_json` (as written to ``verify.json``); ValueError if ``doc``
+        """The inverse of :meth:`to_json` (as written to ``verify.json``); InputError (a ValueError) if ``doc``
         is not one. Missing numbers (JSON null: non-finite) come back as nan, or as -inf / +inf
         for an interval's low / high end."""
         try:
-            points = tuple(OperatingPoint(str(p["label"]), {str(k): float(v) for k, v in p["scales"].items()},
-                                          float(p["factor"])) for p in doc["points"])
-            rows = tuple(VerifyRow(str(r["label"]), str(r["quantity"]),
-                                   None if r["d"] is None else int(r["d"]), _interval(r["predicted"]),
-                                   None if r["sampled"] is None else _interval(r["sampled"]),
-                                   bool(r["zero_errors"])) for r in doc["rows"])
-            return cls(points, tuple(int(d) for d in doc["distances"]), rows, str(doc.get("note", "")))
+            points = tuple(OperatingPoint(label=str(p["label"]),
+                                          scales={str(k): float(v) for k, v in p["scales"].items()},
+                                          factor=float(p["factor"])) for p in doc["points"])
+            rows = tuple(VerifyRow(label=str(r["label"]), quantity=str(r["quantity"]),
+                                   distance=None if r["d"] is None else int(r["d"]),
+                                   predicted=_interval(r["predicted"]),
+                                   sampled=None if r["sampled"] is None else _interval(r["sampled"]),
+                                   zero_errors=bool(r["zero_errors"])) for r in doc["rows"])
+            return cls(points=points, distances=tuple(int(d) for d in doc["distances"]), rows=rows,
+                       note=str(doc.get("note", "")))
         except (KeyError, TypeError, ValueError, AttributeError) as exc:
-            raise ValueError(f"not a verification document ({type(exc).__name__}: {exc})") from None
+            raise InputError(f"not a verification document ({type(exc).__name__}: {exc})") from None
 
     def is_current(self, answers: Any) -> bool:
         """Whether this verification was made against ``answers``: the same operating points and
@@ -112,7 +116,7 @@ def _interval(doc: Any) -> Interval:
     def f(key: str, missing: float) -> float:
         v = doc[key]
         return missing if v is None else float(v)
-    return Interval(f("best", math.nan), f("low", -math.inf), f("high", math.inf))
+    return Interval(low=f("low", -math.inf), best=f("best", math.nan), high=f("high", math.inf))
 
 
 def operating_points(answers: Any) -> tuple[OperatingPoint, ...]:
@@ -123,9 +127,9 @@ def operating_points(answers: Any) -> tuple[OperatingPoint, ...]:
     pts = []
     if req.joint.reachable and req.joint.factor is not None:
         f = req.joint.factor
-        pts.append(OperatingPoint("verify-joint", {c: f for c in COMPONENTS}, f))
+        pts.append(OperatingPoint(label="verify-joint", scales={c: f for c in COMPONENTS}, factor=f))
     if req.mix.reachable and any(v < 1 for v in req.mix.scales.values()):
-        pts.append(OperatingPoint("verify-mix", dict(req.mix.scales), 1.0))
+        pts.append(OperatingPoint(label="verify-mix", scales=dict(req.mix.scales), factor=1.0))
     return tuple(pts)
 
 
@@ -141,61 +145,62 @@ def verify_distances(sampled: Sequence[int]) -> tuple[int, ...]:
 
 def _predicted(models: Sequence[Any], best: float, values: list[float]) -> Interval:
     if not values:
-        return Interval(best, best, best)
+        return Interval(low=best, best=best, high=best)
     q = (1 - CONFIDENCE) / 2
     lo, hi = np.quantile(np.array(values), [q, 1 - q])
-    return Interval(best, float(min(lo, best)), float(max(hi, best)))
+    return Interval(low=float(min(lo, best)), best=best, high=float(max(hi, best)))
 
 
 def _same_scales(a: dict[str, float], b: dict[str, float]) -> bool:
     return all(math.isclose(a.get(c, 1.0), b.get(c, 1.0), rel_tol=1e-9, abs_tol=1e-12) for c in COMPONENTS)
 
 
+def _sampled_at(stats: Sequence[sinter.TaskStats], points: Sequence[OperatingPoint]) -> FitReport | None:
+    """Fits of the samples taken at ``points`` (a task of another point or label is left out)."""
+    def at_a_point(meta: Any) -> bool:
+        return isinstance(meta, dict) and any(
+            meta.get("axis") == p.label and _same_scales(meta.get("scales", {}), p.scales) for p in points)
+
+    keep = [s for s in stats if at_a_point(s.json_metadata)]
+    return fit_stats(keep) if keep else None
+
+
+def _eps_row(answers: Any, point: OperatingPoint, d: int, report: FitReport | None) -> VerifyRow:
+    """Predicted vs sampled eps per cycle at one point and distance."""
+    models = answers.uncertainty.models if answers.uncertainty else ()
+    best = answers.model.logical_error_per_cycle(point.scales, d)
+    pred = _predicted(models, best, [m.logical_error_per_cycle(point.scales, d) for m in models])
+    got = next((x for x in (report.distances if report else ()) if x.axis == point.label and x.distance == d),
+               None)
+    return VerifyRow(label=point.label, quantity="logical_error_per_cycle", distance=d, predicted=pred,
+                     sampled=got.per_cycle if got else None, zero_errors=bool(got and got.zero_errors))
+
+
+def _lambda_row(answers: Any, point: OperatingPoint, report: FitReport | None) -> VerifyRow:
+    """Predicted vs sampled Lambda at one point."""
+    models = answers.uncertainty.models if answers.uncertainty else ()
+    best = answers.model.suppression(point.scales)
+    pred = _predicted(models, best, [m.suppression(point.scales) for m in models])
+    lf = next((x for x in (report.lambdas if report else ()) if x.axis == point.label), None)
+    return VerifyRow(label=point.label, quantity="suppression_factor", distance=None, predicted=pred,
+                     sampled=lf.suppression if lf else None, zero_errors=bool(lf and lf.uses_zero_error_points))
+
+
+def _rows_at(answers: Any, point: OperatingPoint, distances: Sequence[int],
+             report: FitReport | None) -> list[VerifyRow]:
+    """Predicted vs sampled eps at each distance and, with two distances, Lambda at one point."""
+    rows = [_eps_row(answers, point, d, report) for d in distances]
+    if len(distances) >= 2:
+        rows.append(_lambda_row(answers, point, report))
+    return rows
+
+
 def compare(answers: Any, points: Sequence[OperatingPoint], distances: Sequence[int],
             stats: Sequence[sinter.TaskStats]) -> Verification:
     """Predicted (model, bootstrap interval) vs sampled (fits of ``stats``) at each point."""
-    model = answers.model
-    models = answers.uncertainty.models if answers.uncertainty else ()
-    keep = [s for s in stats if isinstance(s.json_metadata, dict) and any(
-        s.json_metadata.get("axis") == p.label and _same_scales(s.json_metadata.get("scales", {}), p.scales)
-        for p in points)]
-    report = fit_stats(keep) if keep else None
-    rows = []
-    for p in points:
-        for d in distances:
-            best = model.logical_error_per_cycle(p.scales, d)
-            pred = _predicted(models, best, [m.logical_error_per_cycle(p.scales, d) for m in models])
-            got = next((x for x in (report.distances if report else ()) if x.axis == p.label and x.distance == d), None)
-            rows.append(VerifyRow(p.label, "logical_error_per_cycle", d, pred,
-                                  got.per_cycle if got else None, bool(got and got.zero_errors)))
-        if len(distances) >= 2:
-            best = model.suppression(p.scales)
-            pred = _predicted(models, best, [m.suppression(p.scales) for m in models])
-            lf = next((x for x in (report.lambdas if report else ()) if x.axis == p.label), None)
-            rows.append(VerifyRow(p.label, "suppression_factor", None, pred,
-                                  lf.suppression if lf else None, bool(lf and lf.uses_zero_error_points)))
+    report = _sampled_at(stats, points)
+    rows = [row for p in points for row in _rows_at(answers, p, distances, report)]
     note = "" if points else "no reachable operating point to verify"
     if len(distances) < 2:
         note = (note + "; " if note else "") + "one samplable distance: Lambda not verified"
-    return Verification(tuple(points), tuple(distances), tuple(rows), note)
-
-
-def run_verification(target: Target, answers: Any, *, out_dir: Path, budget: str = "quick",
-                     workers: int | None = None, console: Any = None) -> Verification:
-    """Sample the operating points into ``out_dir/verify`` (resumable) and compare."""
-    from planner.sampling import run_sweep
-    from planner.store import SampleStore
-    from planner.sweep import BUDGETS, tasks_for_scales
-
-    points = operating_points(answers)
-    distances = verify_distances(answers.fits.sampled_distances)
-    if budget not in BUDGETS:
-        from planner.errors import InputError
-
-        raise InputError(f"--budget: {budget!r} is not a budget; allowed: {', '.join(BUDGETS)}")
-    store = SampleStore(Path(out_dir) / "verify")
-    tasks = [t for p in points
-             for t in tasks_for_scales(target, p.scales, distances=distances, label=p.label, factor=p.factor)]
-    if tasks:
-        run_sweep(tasks, store=store, rule=BUDGETS[budget], workers=workers, console=console)
-    return compare(answers, points, distances, store.stats())
+    return Verification(points=tuple(points), distances=tuple(distances), rows=tuple(rows), note=note)

@@ -47,7 +47,7 @@ def lever_note(a: FactorAnswer) -> str:
     reachable alone" note (the Lambda column carries it with its interval).
 
     >>> from planner.planning import FactorAnswer
-    >>> lever_note(FactorAnswer("idle", False, None, 1.9, note="not reachable alone: with idle perfect, Lambda = 1.9"))
+    >>> lever_note(FactorAnswer(lever="idle", reachable=False, factor=None, suppression=1.9, note="not reachable alone: with idle perfect, Lambda = 1.9"))
     'not reachable alone: even with idle perfect, Lambda stays below the Lambda needed'
     """
     if not a.reachable and a.lever != "joint":

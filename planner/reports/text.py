@@ -44,7 +44,6 @@ from planner.reports.formats import (
     join_notes,
     num,
     overflow_notes,
-    percent,
     rate,
     scales_text,
     span,
@@ -102,7 +101,7 @@ def _replica_note(uncertainty: Uncertainty | None) -> str:
     intervals are over the replicas where they do).
 
     >>> from planner.planning import Uncertainty
-    >>> _replica_note(Uncertainty(200, {}, {"factor.gate_2q": 0.47, "joint_factor": 1.0, "mix": 0.87}, ()))
+    >>> _replica_note(Uncertainty(replicas=200, intervals={}, reachable_fraction={"factor.gate_2q": 0.47, "joint_factor": 1.0, "mix": 0.87}, models=()))
     'Bootstrap intervals over 200 replica models of the fit. Replicas on which an answer exists, where not all (its interval is over those): gate_2q alone 47%, cheapest mix 87%.'
     """
     if uncertainty is None:

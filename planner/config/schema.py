@@ -1,0 +1,208 @@
+"""The target file's schema: frozen pydantic models of each section, numbers taken as TOML
+numbers only (never converted from text)."""
+
+from __future__ import annotations
+
+import datetime as _dt
+import hashlib
+import json
+import unicodedata
+from pathlib import Path
+from typing import Annotated, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, Strict, field_validator
+
+from planner.config.limits import (
+    COMPONENTS,
+    MAX_DISTANCES,
+    MAX_NAME_LENGTH,
+    MAX_QUBITS,
+    MAX_SCALES,
+    MAX_START,
+    MIN_START,
+    distance_problem,
+)
+
+
+def _plain_text(value: str) -> str:
+    """User text that ends up in terminals and reports: bounded, no control characters."""
+    if not value.strip():
+        raise ValueError("must not be empty")
+    if len(value) > MAX_NAME_LENGTH:
+        raise ValueError(f"is {len(value):,} characters long: at most {MAX_NAME_LENGTH} are allowed")
+    # control characters (a terminal escape, a newline) and invisible format characters (a
+    # right-to-left override) would change what a terminal or a report shows
+    bad = next((ch for ch in value if unicodedata.category(ch) in ("Cc", "Cf")), None)
+    if bad is not None:
+        raise ValueError(f"contains the control character {bad!r}: use printable text only")
+    return value
+
+
+class _Frozen(BaseModel):
+    model_config = ConfigDict(frozen=True, extra="forbid", strict=False)
+
+
+# numbers are TOML numbers: a quoted "4.5e-3" or a boolean is refused, never converted
+Number = Annotated[float, Strict(), Field(allow_inf_nan=False)]
+Integer = Annotated[int, Strict()]
+Probability = Annotated[Number, Field(ge=0.0, le=1.0)]
+Positive = Annotated[Number, Field(gt=0.0)]
+
+
+class Preset(_Frozen):
+    """A published noise model instead of a measured budget (for comparison with the literature).
+
+    ``sd6``: uniform depolarizing at p on every operation; ``si1000``: the superconducting-inspired
+    model of Gidney, Newman, Fowler, Broughton, Quantum 5, 605 (2021), CZ-native.
+    """
+
+    model: Literal["sd6", "si1000"]
+    p: Annotated[Number, Field(gt=0.0, le=0.1)]
+
+
+class Errors(_Frozen):
+    """Error probabilities per operation. Gate errors are total Pauli error probabilities, or
+    average gate infidelities from randomized benchmarking (``*_infidelity``, converted with
+    r = p * D / (D + 1))."""
+
+    gate_1q: Probability | None = None
+    gate_2q: Probability | None = None
+    gate_1q_infidelity: Probability | None = None
+    gate_2q_infidelity: Probability | None = None
+    readout: Probability = 0.0
+    reset: Probability = 0.0
+    idle_excess: Probability = 0.0
+    idle_measure_excess: Probability = 0.0
+
+
+class Coherence(_Frozen):
+    t1_us: Positive
+    t2_us: Positive
+
+
+class Durations(_Frozen):
+    gate_1q_ns: Annotated[Number, Field(ge=0.0)]
+    gate_2q_ns: Annotated[Number, Field(ge=0.0)]
+    measure_ns: Annotated[Number, Field(ge=0.0)]
+    reset_ns: Annotated[Number, Field(ge=0.0)]
+
+
+class Device(_Frozen):
+    name: str
+    native_2q: Literal["cz", "cx"] = "cz"
+    preset: Preset | None = None
+    errors: Errors = Errors()
+    coherence: Coherence | None = None
+    durations: Durations | None = None
+
+    @field_validator("name")
+    @classmethod
+    def _name(cls, v: str) -> str:
+        return _plain_text(v)
+
+
+class Goal(_Frozen):
+    logical_error_per_cycle: Annotated[Number, Field(gt=0.0, lt=0.5)]
+    max_qubits: Annotated[Integer, Field(ge=5, le=MAX_QUBITS)] = 10_000
+
+
+class Sweep(_Frozen):
+    code: Literal["surface", "repetition"] = "surface"
+    distances: tuple[Integer, ...]
+    bases: tuple[Literal["z", "x"], ...] = ("z", "x")
+    rounds: Annotated[Integer, Field(ge=1)] | None = None
+    joint_scales: tuple[Positive, ...] = (1.0,)
+    component_scales: tuple[Positive, ...] = ()
+    components: tuple[Literal[COMPONENTS], ...] | None = None  # type: ignore[valid-type]
+    decoder: Literal["pymatching", "pymatching-correlated"] = "pymatching"
+
+    @field_validator("distances")
+    @classmethod
+    def _odd_distances(cls, v: tuple[int, ...]) -> tuple[int, ...]:
+        if not v:
+            raise ValueError("needs at least one distance")
+        for d in v:
+            if (problem := distance_problem(d)) is not None:
+                raise ValueError(f"distance {problem}")
+        v = tuple(sorted(set(v)))
+        if len(v) > MAX_DISTANCES:
+            raise ValueError(f"{len(v)} distances: at most {MAX_DISTANCES} are allowed")
+        return v
+
+    @field_validator("bases")
+    @classmethod
+    def _bases(cls, v: tuple[str, ...]) -> tuple[str, ...]:
+        if not v:
+            raise ValueError("needs at least one basis ('z' or 'x')")
+        return tuple(dict.fromkeys(v))
+
+    @field_validator("joint_scales", "component_scales")
+    @classmethod
+    def _sorted_scales(cls, v: tuple[float, ...]) -> tuple[float, ...]:
+        v = tuple(sorted(set(v)))
+        if len(v) > MAX_SCALES:
+            raise ValueError(f"{len(v):,} scale factors: at most {MAX_SCALES} are allowed")
+        return v
+
+    @field_validator("components")
+    @classmethod
+    def _components(cls, v: tuple[str, ...] | None) -> tuple[str, ...] | None:
+        if v is not None and not v:
+            raise ValueError("is empty: list the components that get their own scale axis "
+                             f"({', '.join(COMPONENTS)}), or leave the key out for all of them")
+        return v
+
+
+class Rate(_Frozen):
+    """Expected improvement of one component: the fraction of its error removed per year, or
+    the time for its error to halve. ``spread`` is the one-sigma uncertainty of ``per_year``
+    (or of ``halving_years``)."""
+
+    per_year: Annotated[Number, Field(ge=0.0, lt=1.0)] | None = None
+    halving_years: Positive | None = None
+    spread: Annotated[Number, Field(ge=0.0)] = 0.0
+
+
+class Roadmap(_Frozen):
+    start: Annotated[_dt.date, Field(ge=MIN_START, le=MAX_START)]
+    horizon_years: Annotated[Number, Field(gt=0.0, le=50.0)] = 15.0
+    step: Literal["quarter", "year"] = "quarter"
+    rates: dict[Literal[COMPONENTS], Rate] = {}  # type: ignore[valid-type]
+    milestones: tuple[Positive, ...] = (2.0, 4.0)
+    #: T1 and T2 both grow by this fraction per year (0.2 = +20%/yr); it lowers the twirled part
+    #: of the idle and idle_measure errors, on top of their own rates
+    coherence_growth_per_year: Annotated[Number, Field(ge=0.0, le=10.0)] = 0.0
+    coherence_growth_spread: Annotated[Number, Field(ge=0.0)] = 0.0
+
+
+class Target(_Frozen):
+    device: Device
+    goal: Goal
+    sweep: Sweep
+    costs: dict[Literal[COMPONENTS], Positive] = {}  # type: ignore[valid-type]
+    roadmap: Roadmap | None = None
+
+    #: where the target was read from and a hash of its bytes (set by the loader)
+    source: str = Field(default="<memory>", exclude=True)
+    sha256: str = Field(default="", exclude=True)
+
+    @property
+    def name(self) -> str:
+        return Path(self.source).stem if self.source != "<memory>" else self.device.name
+
+    @property
+    def components(self) -> tuple[str, ...]:
+        """Components with their own scale axis in the sweep (all by default)."""
+        return tuple(self.sweep.components) if self.sweep.components else COMPONENTS
+
+    @property
+    def sampling_sha256(self) -> str:
+        """Hash of what decides the samples (the device and the sweep sections). Editing the goal,
+        the costs or the roadmap leaves it unchanged, so existing samples stay usable."""
+        doc = self.model_dump(include={"device", "sweep"}, mode="json")
+        return hashlib.sha256(json.dumps(doc, sort_keys=True).encode()).hexdigest()
+
+    def cost(self, component: str) -> float:
+        return float(self.costs.get(component, 1.0))
+
+
