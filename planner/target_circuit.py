@@ -1,0 +1,89 @@
+"""One grid point's noisy circuit from a target: what ``planner circuit`` prints and the sweep samples.
+
+Sits at the sweep stage (it needs the target's round and basis defaults); checks every argument and
+raises :class:`~planner.errors.InputError` naming the parameter (``distance``, ``rounds``,
+``basis``, ``scales``), which the command line maps to its option.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+from collections.abc import Mapping
+
+import stim
+
+from planner.circuits import build_memory_circuit
+from planner.config import COMPONENTS, MAX_DISTANCE, Target, size_problem
+from planner.errors import InputError
+from planner.noise import NoiseModel
+from planner.sweep import bases_for, rounds_for
+
+__all__ = ["build_circuit", "check_scales"]
+
+
+def check_scales(scales: Mapping[str, float]) -> dict[str, float]:
+    """``scales`` checked: known component names, finite factors >= 0 (1 is today, 0 is perfect).
+
+    >>> check_scales({"gate_2q": 0.5})
+    {'gate_2q': 0.5}
+    >>> check_scales({"gate2q": 0.5})
+    Traceback (most recent call last):
+    ...
+    planner.errors.InputError: scales: unknown component 'gate2q'; did you mean 'gate_2q'? (components: gate_1q, gate_2q, readout, reset, idle, idle_measure)
+    """
+    out: dict[str, float] = {}
+    for name, factor in scales.items():
+        if name not in COMPONENTS:
+            near = difflib.get_close_matches(name, COMPONENTS, n=1, cutoff=0.5)
+            hint = f"; did you mean '{near[0]}'?" if near else ""
+            raise InputError(f"unknown component {name!r}{hint} (components: {', '.join(COMPONENTS)})",
+                             field="scales")
+        if not math.isfinite(factor) or factor < 0:
+            raise InputError(f"{name}={factor!r}: factor must be a finite number >= 0", field="scales")
+        out[name] = float(factor)
+    return out
+
+
+def build_circuit(target: Target, *, distance: int, basis: str | None = None, rounds: int | None = None,
+                  scales: Mapping[str, float] | None = None) -> stim.Circuit:
+    """The noisy memory circuit of ``target`` at one grid point, exactly as the sweep samples it.
+
+    ``distance``: odd, 3 to ``MAX_DISTANCE``; ``basis``: "z" or "x" (default: the target's first
+    basis; the repetition code has "z" only); ``rounds``: default the target's ``sweep.rounds``,
+    else the distance; ``scales``: component -> factor on today's error (1 is today, 0 is perfect).
+
+    >>> from planner.config import EXAMPLE_TOML, parse_target
+    >>> c = build_circuit(parse_target(EXAMPLE_TOML), distance=3, scales={"gate_2q": 0.5})
+    >>> c.num_detectors, c.num_observables
+    (24, 1)
+    >>> build_circuit(parse_target(EXAMPLE_TOML), distance=4)
+    Traceback (most recent call last):
+    ...
+    planner.errors.InputError: distance: 4 is not allowed: give an odd integer >= 3
+    """
+    if isinstance(distance, bool) or not isinstance(distance, int) or distance < 3 or distance % 2 == 0:
+        raise InputError(f"{distance} is not allowed: give an odd integer >= 3", field="distance")
+    if distance > MAX_DISTANCE:
+        raise InputError(f"{distance} is too large: odd distances from 3 to {MAX_DISTANCE} are allowed",
+                         field="distance")
+    if rounds is None:
+        r = rounds_for(target, distance)
+    elif isinstance(rounds, bool) or not isinstance(rounds, int) or rounds < 1:
+        raise InputError(f"{rounds} is not allowed: give an integer >= 1", field="rounds")
+    else:
+        r = rounds
+    problem = size_problem(code=target.sweep.code, distance=distance, rounds=r)
+    if problem is not None:
+        raise InputError(problem, field="rounds" if rounds is not None else "distance")
+    allowed = bases_for(target)
+    b = allowed[0] if basis is None else basis.strip().lower()
+    if b not in allowed:
+        raise InputError(f"{basis!r} is not allowed for the {target.sweep.code} code: allowed "
+                         f"{', '.join(repr(x) for x in allowed)}", field="basis")
+    factors = check_scales(scales or {})
+    try:
+        model = NoiseModel.from_target(target).with_scales(factors)
+    except ValueError as exc:  # a scaled probability outside its meaningful range
+        raise InputError(str(exc), field="scales") from None
+    return build_memory_circuit(model, code=target.sweep.code, distance=distance, rounds=r, basis=b)
