@@ -1,6 +1,6 @@
 """Hardening of the report files, the verify output and the cosmetics (issue 9).
 
-Most tests plan from synthetic counts (planner.planning.synthetic: binomial draws from a known
+Most tests plan from synthetic counts (tests.helpers.synthetic: binomial draws from a known
 model), so they take seconds; the CLI tests share one tiny real sweep (two distances, one basis,
 two joint points, the 'quick' budget).
 """
@@ -30,7 +30,7 @@ from planner.fits import Interval
 from planner.planning import answer_all
 from planner.planning.calculator import CalculatorAnswer
 from planner.planning.roadmap import build_roadmap, years_to_date
-from planner.planning.synthetic import shot_rate, synthetic_stats
+from tests.helpers.synthetic import shot_rate, synthetic_stats
 from planner.planning.verify import compare, operating_points, verify_distances
 from planner.reports import files, html, plots, tables, text
 
