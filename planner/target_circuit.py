@@ -45,6 +45,26 @@ def check_scales(scales: Mapping[str, float]) -> dict[str, float]:
     return out
 
 
+def _is_int(x: object) -> bool:
+    return isinstance(x, int) and not isinstance(x, bool)
+
+
+def _checked_rounds(target: Target, *, distance: int, rounds: int | None) -> int:
+    """The rounds to build at ``distance`` (the target's default when None), after checking both."""
+    if not _is_int(distance) or distance < 3 or distance % 2 == 0:
+        raise InputError(f"{distance} is not allowed: give an odd integer >= 3", field="distance")
+    if distance > MAX_DISTANCE:
+        raise InputError(f"{distance} is too large: odd distances from 3 to {MAX_DISTANCE} are allowed",
+                         field="distance")
+    if rounds is not None and (not _is_int(rounds) or rounds < 1):
+        raise InputError(f"{rounds} is not allowed: give an integer >= 1", field="rounds")
+    r = rounds_for(target, distance) if rounds is None else rounds
+    problem = size_problem(code=target.sweep.code, distance=distance, rounds=r)
+    if problem is not None:
+        raise InputError(problem, field="rounds" if rounds is not None else "distance")
+    return r
+
+
 def build_circuit(target: Target, *, distance: int, basis: str | None = None, rounds: int | None = None,
                   scales: Mapping[str, float] | None = None) -> stim.Circuit:
     """The noisy memory circuit of ``target`` at one grid point, exactly as the sweep samples it.
@@ -62,20 +82,7 @@ def build_circuit(target: Target, *, distance: int, basis: str | None = None, ro
     ...
     planner.errors.InputError: distance: 4 is not allowed: give an odd integer >= 3
     """
-    if isinstance(distance, bool) or not isinstance(distance, int) or distance < 3 or distance % 2 == 0:
-        raise InputError(f"{distance} is not allowed: give an odd integer >= 3", field="distance")
-    if distance > MAX_DISTANCE:
-        raise InputError(f"{distance} is too large: odd distances from 3 to {MAX_DISTANCE} are allowed",
-                         field="distance")
-    if rounds is None:
-        r = rounds_for(target, distance)
-    elif isinstance(rounds, bool) or not isinstance(rounds, int) or rounds < 1:
-        raise InputError(f"{rounds} is not allowed: give an integer >= 1", field="rounds")
-    else:
-        r = rounds
-    problem = size_problem(code=target.sweep.code, distance=distance, rounds=r)
-    if problem is not None:
-        raise InputError(problem, field="rounds" if rounds is not None else "distance")
+    r = _checked_rounds(target, distance=distance, rounds=rounds)
     allowed = bases_for(target)
     b = allowed[0] if basis is None else basis.strip().lower()
     if b not in allowed:
