@@ -13,6 +13,7 @@ import collections
 import dataclasses
 import logging
 import math
+import os
 import re
 import threading
 import time
@@ -44,7 +45,56 @@ MIN_TAIL_CHUNK_S = 0.25  # ... but not less than this
 CACHE_CIRCUITS = 8
 RESUBMITS = 3  # a chunk whose workers all died (KilledWorker) is resubmitted, same chunk id
 
-_ADDRESS = re.compile(r"^(?:(?:tcp|tls|ucx|ws|wss|inproc)://)?[\w.\-\[\]:]+:\d{1,5}$")
+_ADDRESS = re.compile(r"^(?:(?P<scheme>[a-z]+)://)?(?P<host>\[[^\]]*\]|[A-Za-z0-9_.\-]+)"
+                      r":(?P<port>\d+)$")
+_SCHEMES = ("tcp", "tls", "ucx", "ws", "wss")
+
+#: environment variables that tune the cluster engine (seconds / a logging level name)
+CONNECT_TIMEOUT_ENV = "PLANNER_CLUSTER_TIMEOUT"
+WORKER_TIMEOUT_ENV = "PLANNER_WORKER_TIMEOUT"
+LOG_LEVEL_ENV = "PLANNER_DASK_LOG_LEVEL"
+CONNECT_TIMEOUT_S = 30.0  # a scheduler answers within this, or the address is wrong
+WORKER_TIMEOUT_S = 300.0  # no running worker for this long: give up (chunks done are kept)
+NOTE_EVERY_S = 10.0  # how often "waiting for workers" is repeated while waiting
+
+
+class ClusterError(InputError):
+    """The cluster cannot do the job (unreachable, not a scheduler, no workers): one line, exit 2."""
+
+
+def _env_seconds(name: str, default: float) -> float:
+    text = os.environ.get(name, "").strip()
+    if not text:
+        return default
+    try:
+        value = float(text)
+    except ValueError:
+        value = math.nan
+    if not (math.isfinite(value) and value > 0):
+        raise InputError(f"{name}: {text!r} is not allowed: seconds > 0 (e.g. 30)")
+    return value
+
+
+def connect_timeout() -> float:
+    """Seconds a scheduler address has to answer (env ``PLANNER_CLUSTER_TIMEOUT``, default 30)."""
+    return _env_seconds(CONNECT_TIMEOUT_ENV, CONNECT_TIMEOUT_S)
+
+
+def worker_timeout() -> float:
+    """Seconds without a running worker before giving up (env ``PLANNER_WORKER_TIMEOUT``,
+    default 300)."""
+    return _env_seconds(WORKER_TIMEOUT_ENV, WORKER_TIMEOUT_S)
+
+
+def dask_log_level() -> int:
+    """Level for dask's own log lines (env ``PLANNER_DASK_LOG_LEVEL``: debug, info, warning,
+    error, critical; default critical: planner says what went wrong in its own words)."""
+    text = os.environ.get(LOG_LEVEL_ENV, "").strip().upper() or "CRITICAL"
+    level = logging.getLevelName(text)
+    if not isinstance(level, int):
+        raise InputError(f"{LOG_LEVEL_ENV}: {text.lower()!r} is not a log level: debug, info, "
+                         "warning, error or critical")
+    return level
 
 
 @dataclasses.dataclass(frozen=True)
@@ -56,20 +106,38 @@ class ClusterSpec:
 
 
 def parse_cluster(text: str) -> ClusterSpec:
-    """``local:N`` or a scheduler address (``tcp://host:8786``, ``host:8786``).
+    """``local:N`` or a scheduler address (``tcp://host:8786``, ``host:8786``, ``tcp://[::1]:8786``).
 
     >>> parse_cluster("local:2"), parse_cluster("tcp://10.0.0.5:8786").address
     (ClusterSpec(local_workers=2, address=None), 'tcp://10.0.0.5:8786')
     """
+    import ipaddress
+
+    from planner.sampling import check_workers
+
     text = text.strip()
     if text.startswith("local"):
-        m = re.fullmatch(r"local:(\d+)", text)
+        m = re.fullmatch(r"local:(\d{1,12})", text)
         if not m or int(m[1]) < 1:
             raise InputError(f"--cluster: {text!r}: use local:N with N >= 1 worker processes")
-        return ClusterSpec(local_workers=int(m[1]))
-    if not _ADDRESS.match(text):
-        raise InputError(f"--cluster: {text!r} is neither local:N nor a scheduler address "
+        return ClusterSpec(local_workers=check_workers(int(m[1]), option="--cluster local:N"))
+    m = _ADDRESS.match(text)
+    if not m:
+        raise InputError(f"--cluster: {text[:80]!r} is neither local:N nor a scheduler address "
                          "like tcp://host:8786")
+    if m["scheme"] is not None and m["scheme"] not in _SCHEMES:
+        raise InputError(f"--cluster: {text[:80]!r}: the scheme {m['scheme']}:// is not a dask "
+                         f"protocol ({', '.join(_SCHEMES)})")
+    host = m["host"]
+    if host.startswith("["):
+        try:
+            ipaddress.IPv6Address(host[1:-1])
+        except ValueError:
+            raise InputError(f"--cluster: {text[:80]!r}: {host} is not an IPv6 address in brackets "
+                             "(e.g. tcp://[::1]:8786)") from None
+    port = int(m["port"])
+    if not 1 <= port <= 65535:
+        raise InputError(f"--cluster: {text[:80]!r}: port {port} is not allowed (1 ... 65535)")
     return ClusterSpec(address=text)
 
 
@@ -179,30 +247,180 @@ class _Progress:
         return max(1, min(want, unclaimed))
 
 
+def _probe_scheduler(address: str, timeout: float) -> None:
+    """Ask ``address`` who it is, within ``timeout`` seconds: a ClusterError unless a dask
+    scheduler answers. (distributed's own connect waits forever on a port that accepts a TCP
+    connection and then says nothing.)"""
+    import asyncio
+    import socket
+
+    from distributed.comm import connect as comm_connect
+
+    m = _ADDRESS.match(address)
+    if m and (m["scheme"] or "tcp") in ("tcp", "tls", "ws", "wss"):
+        try:  # a plain TCP connection first: "nothing listens" and "wrong listener" differ
+            socket.create_connection((m["host"].strip("[]"), int(m["port"])), timeout=timeout).close()
+        except OSError as exc:
+            raise ClusterError(f"--cluster: cannot reach a dask scheduler at {address} "
+                               f"({exc.strerror or exc}); check that it runs and the address") from None
+
+    from distributed.security import Security
+
+    args = Security().get_connection_args("client")  # TLS settings from the dask config, if any
+
+    async def ask() -> Any:
+        comm = await comm_connect(address, timeout=timeout, **args)
+        try:
+            await comm.write({"op": "identity", "reply": True})
+            return await comm.read()
+        finally:
+            comm.abort()
+
+    try:
+        answer = asyncio.run(asyncio.wait_for(ask(), timeout))
+    except (TimeoutError, asyncio.TimeoutError):
+        raise ClusterError(f"--cluster: {address} accepted a connection but no dask scheduler "
+                           f"answered within {timeout:g} s; check the host and the port (the "
+                           f"scheduler's, usually 8786; {CONNECT_TIMEOUT_ENV} sets the wait)") from None
+    except (OSError, ValueError) as exc:
+        raise ClusterError(f"--cluster: cannot reach a dask scheduler at {address} ({exc}); "
+                           "check that it runs and the address") from None
+    except Exception as exc:  # noqa: BLE001 - whatever a stranger on that port sends back
+        raise ClusterError(f"--cluster: {address} is not a dask scheduler (it answered "
+                           f"{type(exc).__name__}); check the host and the port") from None
+    if not isinstance(answer, dict) or answer.get("type") != "Scheduler":
+        raise ClusterError(f"--cluster: {address} answered, but not as a dask scheduler; check "
+                           "the port (the scheduler's, usually 8786, not the dashboard's)")
+
+
+@dataclasses.dataclass(frozen=True)
+class WorkerCount:
+    """Workers the scheduler knows, by state."""
+
+    running: int
+    paused: int
+    other: int
+
+    @classmethod
+    def from_info(cls, info: dict[str, Any]) -> WorkerCount:
+        """From ``scheduler_info()`` / the scheduler's identity.
+
+        >>> WorkerCount.from_info({"workers": {"a": {"status": "running"}, "b": {"status": "paused"}}})
+        WorkerCount(running=1, paused=1, other=0)
+        """
+        states = [str(w.get("status", "running")) for w in (info.get("workers") or {}).values()]
+        running = states.count("running")
+        paused = states.count("paused")
+        return cls(running=running, paused=paused, other=len(states) - running - paused)
+
+    def describe(self) -> str:
+        if self.paused:
+            return (f"{self.paused} worker(s) paused by their memory limit"
+                    + (f", {self.other} closing" if self.other else ""))
+        if self.other:
+            return f"{self.other} worker(s) closing or not yet started"
+        return "no workers"
+
+
+class WorkerWatch:
+    """Notices when a cluster has had no running worker for too long.
+
+    ``check()`` is called often; it asks the scheduler at most once a second, prints "waiting
+    for workers" every :data:`NOTE_EVERY_S` while none runs, and raises :class:`ClusterError`
+    after ``timeout`` seconds without one.
+    """
+
+    def __init__(self, client: Any, console: Console, *, timeout: float, where: str) -> None:
+        self.client = client
+        self.console = console
+        self.timeout = timeout
+        self.where = where
+        self._asked = -math.inf
+        self._since: float | None = None
+        self._noted = -math.inf
+        self.running = 1
+
+    def count(self) -> WorkerCount:
+        return WorkerCount.from_info(self.client.sync(self.client.scheduler.identity))
+
+    def check(self, *, force: bool = False) -> int:
+        """Running workers now (cached up to a second); raise after the timeout with none."""
+        now = time.monotonic()
+        if not force and now - self._asked < 1.0:
+            return self.running
+        self._asked = now
+        try:
+            count = self.count()
+        except Exception as exc:  # noqa: BLE001 - a lost scheduler surfaces here
+            raise ClusterError(f"--cluster: lost the dask scheduler at {self.where} "
+                               f"({type(exc).__name__}); finished chunks are saved: run the same "
+                               "command again when it is back") from None
+        self.running = count.running
+        if count.running:
+            if self._since is not None:
+                self.console.print(f"dask workers are back: {count.running} running", soft_wrap=True)
+            self._since = None
+            return count.running
+        if self._since is None:
+            self._since = now
+        waited = now - self._since
+        if waited >= self.timeout:
+            raise ClusterError(f"--cluster: no dask worker has been running for {waited:.0f} s at "
+                               f"{self.where} ({count.describe()}); finished chunks are saved: start "
+                               "workers (or give them more memory) and run the same command again "
+                               f"({WORKER_TIMEOUT_ENV} sets the wait)")
+        if now - self._noted >= NOTE_EVERY_S:
+            self._noted = now
+            self.console.print(f"waiting for dask workers at {self.where}: {count.describe()} "
+                               f"(giving up in {self.timeout - waited:.0f} s)", soft_wrap=True)
+        return 0
+
+
 @contextmanager
 def connect(spec: ClusterSpec, console: Console) -> Iterator[Any]:
-    """A dask Client for ``spec``; a LocalCluster is started here and closed on exit."""
+    """A dask Client for ``spec``; a LocalCluster is started here and closed on exit.
+
+    A scheduler address is probed first (a ClusterError within :func:`connect_timeout` seconds
+    when nothing answers as a scheduler); then the client waits for a running worker, saying so
+    every few seconds, for at most :func:`worker_timeout` seconds.
+    """
+    level = dask_log_level()
+    timeout = connect_timeout()
+    wait = worker_timeout()
     from distributed import Client, LocalCluster
 
-    if spec.local_workers is not None:
-        console.print(f"starting a local dask cluster: {spec.local_workers} worker processes, "
-                      "1 thread each")
-        with LocalCluster(n_workers=spec.local_workers, threads_per_worker=1, processes=True,
-                          dashboard_address=None, silence_logs=logging.ERROR) as cluster, \
-                Client(cluster) as client:
+    loggers = [logging.getLogger(n) for n in ("distributed", "tornado", "asyncio")]
+    before = [lg.level for lg in loggers]
+    for lg in loggers:
+        lg.setLevel(level)
+    try:
+        if spec.local_workers is not None:
+            console.print(f"starting a local dask cluster: {spec.local_workers} worker processes, "
+                          "1 thread each", soft_wrap=True)
+            # the worker processes load planner.orphans: they exit when this process dies
+            with LocalCluster(n_workers=spec.local_workers, threads_per_worker=1, processes=True,
+                              dashboard_address=":0", silence_logs=level,
+                              preload=["planner.orphans"]) as cluster, \
+                    Client(cluster, timeout=f"{timeout}s") as client:
+                yield client
+            return
+        assert spec.address is not None
+        _probe_scheduler(spec.address, timeout)
+        try:
+            client = Client(spec.address, timeout=f"{timeout}s")
+        except (OSError, TimeoutError) as exc:
+            raise ClusterError(f"--cluster: cannot reach a dask scheduler at {spec.address} "
+                               f"({exc})") from None
+        try:
+            watch = WorkerWatch(client, console, timeout=wait, where=rich.markup.escape(spec.address))
+            while not watch.check(force=True):
+                time.sleep(0.5)
             yield client
-        return
-    try:
-        client = Client(spec.address, timeout="20s")
-    except (OSError, TimeoutError) as exc:
-        raise InputError(f"--cluster: cannot reach a dask scheduler at {spec.address} ({exc})") from None
-    try:
-        if not client.scheduler_info().get("workers"):
-            console.print(f"waiting for dask workers to join {rich.markup.escape(spec.address)} ...")
-            client.wait_for_workers(1)
-        yield client
+        finally:
+            client.close()
     finally:
-        client.close()
+        for lg, lv in zip(loggers, before):
+            lg.setLevel(lv)
 
 
 def _workers(client: Any) -> int:
@@ -218,17 +436,31 @@ def run_on_cluster(items: Sequence[WorkItem], *, spec: str | ClusterSpec, rule: 
     if isinstance(spec, str):
         spec = parse_cluster(spec)
     with connect(spec, console) as client:
-        drive_chunks(client, items, sink)
+        drive_chunks(client, items, sink, console=console)
 
 
-def drive_chunks(client: Any, items: Sequence[WorkItem], sink: ChunkSink) -> None:
+def drive_chunks(client: Any, items: Sequence[WorkItem], sink: ChunkSink, *,
+                 console: Console | None = None, timeout: float | None = None) -> None:
+    """Run ``items`` as chunks on ``client``'s cluster until each meets what it has left.
+
+    While no worker runs (all gone, or all paused by their memory limit) it says so every few
+    seconds and gives up after ``timeout`` seconds (default :func:`worker_timeout`) with a
+    :class:`ClusterError`; every chunk finished before is already in ``sink``.
+    """
     from distributed import as_completed
+    from rich.console import Console
 
+    watch = WorkerWatch(client, console if console is not None else Console(stderr=True),
+                        timeout=timeout if timeout is not None else worker_timeout(),
+                        where=str(getattr(client, "scheduler", None) and client.scheduler.address))
     tasks = [_Progress(item=it, text=str(it.task.circuit)) for it in items]  # largest first
     futures: dict[str, tuple[Any, _Progress, int]] = {}  # chunk id -> (future, task, attempt)
+    by_key: dict[str, str] = {}  # future key -> chunk id
     written: set[str] = set()
-    # bind to this client's loop: another Client may be the process default (tests, notebooks)
-    done = as_completed(loop=client.loop, with_results=False)
+    # bind to this client's loop: another Client may be the process default (tests, notebooks).
+    # Results are fetched as each chunk finishes (a few numbers each): fetching them later could
+    # wait forever when the worker holding one is gone and no worker is left to recompute it
+    done = as_completed(loop=client.loop, with_results=True, raise_errors=False)
 
     def submit(tp: _Progress, shots: int, chunk_id: str, attempt: int) -> None:
         fut = client.submit(sample_chunk, chunk_id=chunk_id, strong_id=tp.item.strong_id,
@@ -237,10 +469,11 @@ def drive_chunks(client: Any, items: Sequence[WorkItem], sink: ChunkSink) -> Non
                             priority=tp.item.size)
         tp.in_flight[chunk_id] = shots
         futures[chunk_id] = (fut, tp, attempt)
+        by_key[fut.key] = chunk_id
         done.add(fut)
 
     def fill() -> None:
-        n = _workers(client)
+        n = max(1, watch.running)
         slots = IN_FLIGHT_PER_WORKER * n - len(futures)
         while slots > 0:
             # a chunk is at most a small share of all the work left, so the sweep ends evenly
@@ -254,25 +487,21 @@ def drive_chunks(client: Any, items: Sequence[WorkItem], sink: ChunkSink) -> Non
             submit(tp, tp.next_chunk_shots(cap), new_chunk_id(), 0)
             slots -= 1
 
-    fill()
-    for fut in done:
-        chunk_id = next((c for c, (f, _, _) in futures.items() if f is fut), None)
-        if chunk_id is None:  # cancelled and forgotten already
-            continue
+    def finished(fut: Any, res: Any) -> None:
+        chunk_id = by_key.pop(fut.key, None)
+        if chunk_id is None or chunk_id not in futures:  # cancelled and forgotten already
+            return
         _, tp, attempt = futures.pop(chunk_id)
         shots = tp.in_flight.pop(chunk_id)
+        fut.release()
         if fut.status == "cancelled":
-            continue
-        try:
-            res: ChunkResult = fut.result()
-        except Exception as exc:  # noqa: BLE001 - lost workers surface here; anything else re-raises
-            if type(exc).__name__ in ("KilledWorker", "CommClosedError") and attempt < RESUBMITS:
+            return
+        if isinstance(res, BaseException):
+            # lost workers surface here: rerun the chunk (same id); anything else re-raises
+            if type(res).__name__ in ("KilledWorker", "CommClosedError") and attempt < RESUBMITS:
                 submit(tp, shots, chunk_id, attempt + 1)
-                continue
-            _cancel_all(futures)
-            raise
-        finally:
-            fut.release()
+                return
+            raise res
         if res.chunk_id not in written:  # a chunk that somehow came back twice counts once
             written.add(res.chunk_id)
             tp.shots += res.shots
@@ -288,8 +517,25 @@ def drive_chunks(client: Any, items: Sequence[WorkItem], sink: ChunkSink) -> Non
             for c in list(tp.in_flight):
                 f, _, _ = futures.pop(c)
                 tp.in_flight.pop(c)
+                by_key.pop(f.key, None)
                 f.cancel()
+
+    try:
+        watch.check(force=True)
         fill()
+        while futures:
+            with done.thread_condition:  # as distributed's own iterator waits, with a timeout
+                if not done.has_ready():
+                    done.thread_condition.wait(timeout=0.25)
+            batch = done.next_batch(block=False) if done.has_ready() else []
+            for fut, res in batch:
+                finished(fut, res)
+            watch.check()  # says "waiting for workers"; raises once it has waited too long
+            if batch:
+                fill()
+    except BaseException:
+        _cancel_all(futures)
+        raise
 
 
 def _cancel_all(futures: dict[str, tuple[Any, Any, int]]) -> None:

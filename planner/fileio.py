@@ -11,6 +11,7 @@ import contextlib
 import errno
 import os
 import tempfile
+from collections.abc import Callable
 from pathlib import Path
 
 from planner.errors import InputError
@@ -61,17 +62,18 @@ def remove_quietly(path: Path | str) -> None:
         os.unlink(path)
 
 
-def atomic_write(path: Path, data: bytes) -> None:
+def atomic_write(path: Path, data: bytes, *, error: Callable[..., InputError] = write_error) -> None:
     """Replace ``path`` with ``data`` via a temporary file beside it (fsynced, then renamed).
 
     Readers see the old or the new file, never half of one; on any failure the temporary file
-    is removed and the old file is left as it was (InputError naming ``path``).
+    is removed and the old file is left as it was (``error(path, exc, what=...)``: the
+    InputError naming ``path``).
     """
     path = Path(path)
     try:
         fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}-", suffix=".tmp")
     except OSError as exc:
-        raise write_error(path, exc) from None
+        raise error(path, exc) from None
     try:
         try:
             os.fchmod(fd, 0o666 & ~umask())  # mkstemp makes 0600; other jobs and users read these
@@ -82,7 +84,7 @@ def atomic_write(path: Path, data: bytes) -> None:
         os.replace(tmp, path)
     except OSError as exc:
         remove_quietly(tmp)
-        raise write_error(path, exc, what="the old file is unchanged") from None
+        raise error(path, exc, what="the old file is unchanged") from None
     except BaseException:
         remove_quietly(tmp)
         raise

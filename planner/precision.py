@@ -16,6 +16,7 @@ Entry points are import-safe (sinter starts workers with ``spawn``).
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import math
 import time
@@ -32,7 +33,8 @@ from planner.manifest import Manifest, prepare_out_dir, read_manifest, resolved_
 from planner.precision_alloc import Allocation, allocate
 from planner.precision_answers import (DEFAULT_FOCUS, AnswerPrecision, Assessment, assess,
                                        check_focus, describe, task_label)
-from planner.sampling import WorkItem, out_dir_of, target_bytes_of, default_workers, run_local
+from planner.sampling import (WorkItem, _sampling_lock, check_workers, default_workers, out_dir_of,
+                              run_local, target_bytes_of)
 from planner.store import SampleStore
 from planner.sweep import StoppingRule
 
@@ -116,34 +118,43 @@ def shot_caps(*, stats: Sequence[sinter.TaskStats | None], costs: Sequence[float
 
 
 class _Engine:
-    """One sampling engine for the whole run: local sinter, or one dask connection."""
+    """One sampling engine for the whole run: local sinter, or one dask connection.
+
+    A scheduler address is reached on entering (before the out directory is written); a local
+    dask cluster is started on the first round that samples.
+    """
 
     def __init__(self, *, workers: int | None, cluster: str | None, console: Console) -> None:
+        from planner.cluster import parse_cluster
+
         self.workers = workers or default_workers()
-        self.cluster = cluster
+        self.spec = parse_cluster(cluster) if cluster is not None else None
         self.console = console
-        self._conn: Any = None
+        self._stack = contextlib.ExitStack()
         self._client: Any = None
 
-    def __enter__(self) -> _Engine:
-        if self.cluster is not None:
-            from planner.cluster import connect, parse_cluster
+    def _connect(self) -> Any:
+        if self._client is None and self.spec is not None:
+            from planner.cluster import connect
 
-            self._conn = connect(parse_cluster(self.cluster), self.console)
-            self._client = self._conn.__enter__()
+            self._client = self._stack.enter_context(connect(self.spec, self.console))
+        return self._client
+
+    def __enter__(self) -> _Engine:
+        if self.spec is not None and self.spec.address is not None:
+            self._connect()
         return self
 
-    def __exit__(self, *exc: object) -> None:
-        if self._conn is not None:
-            self._conn.__exit__(*exc)
+    def __exit__(self, *exc: Any) -> None:
+        self._stack.__exit__(*exc)
 
     def run(self, items: Sequence[WorkItem], sink: Any) -> None:
         if not items:
             return
-        if self._client is not None:
+        if self.spec is not None:
             from planner.cluster import drive_chunks
 
-            drive_chunks(self._client, items, sink)
+            drive_chunks(self._connect(), items, sink, console=self.console)
         else:
             run_local(items, workers=self.workers, sink=sink)
 
@@ -152,8 +163,7 @@ def _validate(precision: float, workers: int | None, max_cpu: float, min_errors:
     if not (isinstance(precision, int | float) and 0 < precision < 1):
         raise InputError(f"--precision: {precision!r} is not allowed: a relative half-width "
                          "0 < REL < 1 (e.g. 0.05 for +-5%)")
-    if workers is not None and workers < 1:
-        raise InputError(f"--workers: {workers} is not allowed (>= 1)")
+    check_workers(workers)
     if not max_cpu > 0:
         raise InputError(f"max CPU seconds per task must be > 0, got {max_cpu!r}")
     if min_errors < 1:
@@ -183,89 +193,92 @@ def run_targeted(tasks: Sequence[sinter.Task], *, store: SampleStore, target: Ta
     ids = [t.strong_id() for t in resolved]
     if len(set(ids)) != len(ids):
         raise ValueError("two tasks have the same strong id (identical circuit, decoder and metadata)")
-    if write_manifest:
-        manifest = Manifest.for_sweep(
-            target_sha256=target.sha256, target_name=target.name, tasks=resolved,
-            sample_sha256=target.sampling_sha256, budget=f"precision {precision:g}",
-            max_errors=budget_cap.max_errors if budget_cap else None,
-            max_shots=budget_cap.max_shots if budget_cap else None)
-        prepare_out_dir(out_dir_of(store), target_bytes=target_bytes_of(target), manifest=manifest)
-    priors = [prior_cost_per_shot(t) for t in resolved]
-    store.repair()
-    counts = {"shots": 0, "errors": 0, "chunks": 0, "seconds": 0.0}
-    rounds = 0
-    assessment: Assessment | None = None
-    capped: set[str] = set()
-    notes: list[str] = []
-    with store.writer() as writer, _Engine(workers=workers, cluster=cluster, console=console) as engine:
+    engine = _Engine(workers=workers, cluster=cluster, console=console)
+    with _sampling_lock(out_dir_of(store), shared=False) as stack:
+        stack.enter_context(engine)  # a scheduler address is reached before the manifest
+        if write_manifest:
+            manifest = Manifest.for_sweep(
+                target_sha256=target.sha256, target_name=target.name, tasks=resolved,
+                sample_sha256=target.sampling_sha256, budget=f"precision {precision:g}",
+                max_errors=budget_cap.max_errors if budget_cap else None,
+                max_shots=budget_cap.max_shots if budget_cap else None)
+            prepare_out_dir(out_dir_of(store), target_bytes=target_bytes_of(target), manifest=manifest)
+        priors = [prior_cost_per_shot(t) for t in resolved]
+        store.repair()
+        counts = {"shots": 0, "errors": 0, "chunks": 0, "seconds": 0.0}
+        rounds = 0
+        assessment: Assessment | None = None
+        capped: set[str] = set()
+        notes: list[str] = []
+        with store.writer() as writer:
 
-        def sink(stats: sinter.TaskStats, chunk_id: str | None) -> None:
-            writer.append(stats, chunk_id=chunk_id)
-            counts["shots"] += stats.shots
-            counts["errors"] += stats.errors
-            counts["chunks"] += 1
-            counts["seconds"] += stats.seconds
+            def sink(stats: sinter.TaskStats, chunk_id: str | None) -> None:
+                writer.append(stats, chunk_id=chunk_id)
+                counts["shots"] += stats.shots
+                counts["errors"] += stats.errors
+                counts["chunks"] += 1
+                counts["seconds"] += stats.seconds
 
-        planned_rounds = first_passes = 0
-        stale = True  # samples were added since the last assessment
-        while rounds < max_rounds:
-            have = store.stats_by_id()
-            cur = [have.get(sid) for sid in ids]
-            costs = [cost_per_shot(s, p) for s, p in zip(cur, priors)]
-            caps = shot_caps(stats=cur, costs=costs, max_cpu_seconds_per_task=max_cpu_seconds_per_task,
-                             budget_cap=budget_cap)
-            # first pass: every task to min_errors (or its cap)
-            first = []
-            for t, (task, sid, s) in enumerate(zip(resolved, ids, cur)):
-                shots, errors = (s.shots, s.errors) if s else (0, 0)
-                if errors < min_errors and shots < caps[t]:
-                    first.append(WorkItem(task=task, strong_id=sid, shots_left=int(caps[t] - shots),
-                                          errors_left=min_errors - errors))
-            if first and first_passes < 2:  # a second pass covers tasks whose prior cost was off
+            planned_rounds = first_passes = 0
+            stale = True  # samples were added since the last assessment
+            while rounds < max_rounds:
+                have = store.stats_by_id()
+                cur = [have.get(sid) for sid in ids]
+                costs = [cost_per_shot(s, p) for s, p in zip(cur, priors)]
+                caps = shot_caps(stats=cur, costs=costs, max_cpu_seconds_per_task=max_cpu_seconds_per_task,
+                                 budget_cap=budget_cap)
+                # first pass: every task to min_errors (or its cap)
+                first = []
+                for t, (task, sid, s) in enumerate(zip(resolved, ids, cur)):
+                    shots, errors = (s.shots, s.errors) if s else (0, 0)
+                    if errors < min_errors and shots < caps[t]:
+                        first.append(WorkItem(task=task, strong_id=sid, shots_left=int(caps[t] - shots),
+                                              errors_left=min_errors - errors))
+                if first and first_passes < 2:  # a second pass covers tasks whose prior cost was off
+                    rounds += 1
+                    first_passes += 1
+                    stale = True
+                    first.sort(key=lambda it: -it.size)
+                    console.print(f"round {rounds}: first pass, {len(first)} of {len(ids)} tasks to "
+                                  f"{min_errors} errors each (or their cap)")
+                    engine.run(first, sink)
+                    continue
+                stats_now = [s for s in cur if s is not None and s.shots > 0]
+                assessment = assess(stats_now, target, precision=precision, focus=focus)
+                stale = False
+                _print_assessment(console, assessment, rounds)
+                if assessment.met or not assessment.answers:
+                    break
+                index = {sid: t for t, sid in enumerate(ids)}
+                cols = [index[sid] for sid in assessment.task_ids]
+                alloc = allocate(shots=[cur[t].shots for t in cols],
+                                 rates=[max(cur[t].errors, 0.5) / cur[t].shots for t in cols],
+                                 cost_per_shot=[costs[t] for t in cols],
+                                 sensitivity=assessment.sensitivity,
+                                 target_variance=assessment.target_variance(),
+                                 max_shots=[caps[t] for t in cols], min_errors=min_errors)
+                capped |= {task_label(resolved[cols[j]].json_metadata) for j in alloc.capped}
+                if alloc.total_shots == 0:
+                    notes.append("stopped: the tasks that would still help are at their cap "
+                                 f"({', '.join(sorted(capped)) or 'none'})")
+                    console.print(f"[yellow]{notes[-1]}[/]")
+                    break
+                spent = sum(s.seconds for s in stats_now)
+                fraction = CAUTIOUS_FRACTION if planned_rounds == 0 and alloc.cpu_seconds > 2 * spent else 1.0
+                items = [WorkItem(task=resolved[cols[j]], strong_id=ids[cols[j]],
+                                  shots_left=max(1, math.ceil(fraction * x)), errors_left=NO_ERROR_LIMIT)
+                         for j, x in enumerate(alloc.extra_shots) if x > 0]
+                items.sort(key=lambda it: -it.size)
                 rounds += 1
-                first_passes += 1
+                planned_rounds += 1
+                console.print(f"round {rounds}: {sum(it.shots_left for it in items):,} shots on "
+                              f"{len(items)} tasks, about {fraction * alloc.cpu_seconds:.1f} CPU-s"
+                              + ("" if alloc.met else f"; {len(alloc.unmet)} answer(s) cannot reach "
+                                 "the target within the caps"))
+                engine.run(items, sink)
                 stale = True
-                first.sort(key=lambda it: -it.size)
-                console.print(f"round {rounds}: first pass, {len(first)} of {len(ids)} tasks to "
-                              f"{min_errors} errors each (or their cap)")
-                engine.run(first, sink)
-                continue
-            stats_now = [s for s in cur if s is not None and s.shots > 0]
-            assessment = assess(stats_now, target, precision=precision, focus=focus)
-            stale = False
-            _print_assessment(console, assessment, rounds)
-            if assessment.met or not assessment.answers:
-                break
-            index = {sid: t for t, sid in enumerate(ids)}
-            cols = [index[sid] for sid in assessment.task_ids]
-            alloc = allocate(shots=[cur[t].shots for t in cols],
-                             rates=[max(cur[t].errors, 0.5) / cur[t].shots for t in cols],
-                             cost_per_shot=[costs[t] for t in cols],
-                             sensitivity=assessment.sensitivity,
-                             target_variance=assessment.target_variance(),
-                             max_shots=[caps[t] for t in cols], min_errors=min_errors)
-            capped |= {task_label(resolved[cols[j]].json_metadata) for j in alloc.capped}
-            if alloc.total_shots == 0:
-                notes.append("stopped: the tasks that would still help are at their cap "
-                             f"({', '.join(sorted(capped)) or 'none'})")
-                console.print(f"[yellow]{notes[-1]}[/]")
-                break
-            spent = sum(s.seconds for s in stats_now)
-            fraction = CAUTIOUS_FRACTION if planned_rounds == 0 and alloc.cpu_seconds > 2 * spent else 1.0
-            items = [WorkItem(task=resolved[cols[j]], strong_id=ids[cols[j]],
-                              shots_left=max(1, math.ceil(fraction * x)), errors_left=NO_ERROR_LIMIT)
-                     for j, x in enumerate(alloc.extra_shots) if x > 0]
-            items.sort(key=lambda it: -it.size)
-            rounds += 1
-            planned_rounds += 1
-            console.print(f"round {rounds}: {sum(it.shots_left for it in items):,} shots on "
-                          f"{len(items)} tasks, about {fraction * alloc.cpu_seconds:.1f} CPU-s"
-                          + ("" if alloc.met else f"; {len(alloc.unmet)} answer(s) cannot reach "
-                             "the target within the caps"))
-            engine.run(items, sink)
-            stale = True
-        else:
-            notes.append(f"stopped after {max_rounds} rounds")
+            else:
+                notes.append(f"stopped after {max_rounds} rounds")
     after = store.stats_by_id()
     final = [after[sid] for sid in ids if sid in after and after[sid].shots > 0]
     if stale and final:

@@ -6,11 +6,12 @@ Entry points are import-safe (sinter starts its workers with ``spawn``): nothing
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import os
 import re
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -108,22 +109,77 @@ def default_workers() -> int:
         return os.cpu_count() or 1
 
 
+#: worker processes per core at most (more only queue for the same cores) and in all
+WORKERS_PER_CORE = 4
+MAX_WORKERS = 1024
+
+
+def max_workers() -> int:
+    """The most worker processes one machine may be asked for: 4 per core, at most 1024."""
+    return min(MAX_WORKERS, WORKERS_PER_CORE * (os.cpu_count() or 1))
+
+
+def check_workers(workers: int | None, *, option: str = "--workers") -> int | None:
+    """``workers`` if a machine can hold that many processes, else an InputError naming ``option``.
+
+    >>> check_workers(None), check_workers(1)
+    (None, 1)
+    """
+    if workers is None:
+        return None
+    if workers < 1:
+        raise InputError(f"{option}: {workers} is not allowed (>= 1)")
+    if workers > max_workers():
+        raise InputError(f"{option}: {workers} worker processes is more than this machine can run "
+                         f"(at most {max_workers()}: {WORKERS_PER_CORE} per core, "
+                         f"{os.cpu_count() or 1} cores here)")
+    return workers
+
+
+#: seconds between progress lines when stderr is a log file or a pipe, not a terminal
+LOG_PROGRESS_EVERY_S = 15.0
+
+
 class SweepProgress:
-    """One progress bar on stderr: fraction of the stopping rule reached, summed over tasks."""
+    """Progress on stderr: fraction of the stopping rule reached, summed over tasks.
+
+    On a terminal a live bar; in a log (stderr not a terminal) a whole line every
+    :data:`LOG_PROGRESS_EVERY_S` seconds and one at the end, never cut to the console width.
+    """
 
     def __init__(self, items: Sequence[WorkItem], rule: StoppingRule, console: Console) -> None:
         self.rule = rule
+        self.console = console
         self.start = {it.strong_id: (rule.max_shots - it.shots_left, rule.max_errors - it.errors_left)
                       for it in items}
         self.now = dict(self.start)
+        self.total = len(items)
         self.shots = 0
         self.errors = 0
         self.t0 = time.monotonic()
+        self._live = console.is_terminal and not console.quiet
+        self._logged = self.t0
         self._bar = Progress(TextColumn("[bold]sampling[/]"), BarColumn(), TaskProgressColumn(),
                              TextColumn("{task.fields[counts]}"), TimeRemainingColumn(),
-                             console=console, disable=console.quiet, transient=False)
+                             console=console, disable=not self._live, transient=False)
         self._id = self._bar.add_task("sweep", total=float(len(items)), counts="",
                                       completed=self._done())
+
+    def _counts(self) -> str:
+        rate = self.shots / max(time.monotonic() - self.t0, 1e-9)
+        left = sum(1 for s, e in self.now.values() if self._fraction(s, e) < 1.0)
+        return (f"{self.shots:,} shots, {self.errors:,} errors, {rate:,.0f} shots/s, "
+                f"{left} tasks left")
+
+    def log_line(self) -> str:
+        """The progress as one plain line (for logs)."""
+        share = self._done() / self.total if self.total else 1.0
+        return f"sampling: {100 * share:.0f}% of the budget, {self._counts()}"
+
+    def _log(self) -> None:
+        self._logged = time.monotonic()
+        if not self.console.quiet:
+            self.console.print(self.log_line(), soft_wrap=True, markup=False, highlight=False)
 
     def _fraction(self, shots: int, errors: int) -> float:
         return min(1.0, max(shots / self.rule.max_shots, errors / self.rule.max_errors))
@@ -136,25 +192,32 @@ class SweepProgress:
         self.now[stats.strong_id] = (s + stats.shots, e + stats.errors)
         self.shots += stats.shots
         self.errors += stats.errors
-        rate = self.shots / max(time.monotonic() - self.t0, 1e-9)
-        left = sum(1 for s, e in self.now.values() if self._fraction(s, e) < 1.0)
-        self._bar.update(self._id, completed=self._done(),
-                         counts=f"{self.shots:,} shots, {self.errors:,} errors, {rate:,.0f} shots/s, "
-                                f"{left} tasks left")
+        if self._live:
+            self._bar.update(self._id, completed=self._done(), counts=self._counts())
+        elif time.monotonic() - self._logged >= LOG_PROGRESS_EVERY_S:
+            self._log()
 
     def __enter__(self) -> SweepProgress:
-        self._bar.start()
+        if self._live:
+            self._bar.start()
         return self
 
-    def __exit__(self, *exc: object) -> None:
-        self._bar.stop()
+    def __exit__(self, exc_type: object, *exc: object) -> None:
+        if self._live:
+            self._bar.stop()
+        elif exc_type is None and self.shots:
+            self._log()
 
 
 def run_local(items: Sequence[WorkItem], *, workers: int, sink: ChunkSink) -> None:
     """Sample with ``sinter.iter_collect``, each task capped at what it has left; every stats
     entry sinter reports (one finished batch) goes to ``sink`` at once."""
+    from planner.orphans import GuardToken
+
     tasks = [_capped(it) for it in items]
-    for progress in sinter.iter_collect(num_workers=workers, tasks=tasks, hint_num_tasks=len(tasks)):
+    # the token makes each worker exit when this process dies (see planner.orphans)
+    for progress in sinter.iter_collect(num_workers=workers, tasks=tasks, hint_num_tasks=len(tasks),
+                                        custom_decoders={GuardToken.NAME: GuardToken()}):
         for stats in progress.new_stats:
             if stats.shots:
                 sink(stats, None)
@@ -187,69 +250,110 @@ def run_sweep(tasks: Sequence[sinter.Task], *, store: SampleStore, rule: Stoppin
     console = console if console is not None else Console(stderr=True)
     if shard is not None and cluster is not None:
         raise InputError("--shard and --cluster cannot be combined: a shard job samples locally")
-    if workers is not None and workers < 1:
-        raise InputError(f"--workers: {workers} is not allowed (>= 1)")
+    check_workers(workers)
+    spec = None
+    if cluster is not None:
+        from planner.cluster import parse_cluster
+
+        spec = parse_cluster(cluster)
     resolved = [resolved_task(t) for t in tasks]
     ids = [t.strong_id() for t in resolved]
     if len(set(ids)) != len(ids):
         raise ValueError("two tasks have the same strong id (identical circuit, decoder and metadata)")
-    if target is not None:
-        manifest = Manifest.for_sweep(target_sha256=target.sha256, target_name=target.name,
-                                      sample_sha256=target.sampling_sha256,
-                                      tasks=resolved, budget=budget, max_errors=rule.max_errors,
-                                      max_shots=rule.max_shots)
-        prepare_out_dir(out_dir_of(store), target_bytes=target_bytes_of(target), manifest=manifest)
-    if shard is not None:
-        mine = shard_share(ids, shard)
-        keep = [k for k, sid in enumerate(ids) if sid in mine]
-        resolved, ids = [resolved[k] for k in keep], [ids[k] for k in keep]
-    t0 = time.monotonic()
-    store.repair()
-    have = store.stats_by_id()
-    items = []
-    for task, sid in zip(resolved, ids):
-        shots_left, errors_left = remaining(have.get(sid), rule)
-        if shots_left:
-            items.append(WorkItem(task=task, strong_id=sid, shots_left=shots_left, errors_left=errors_left))
-    items.sort(key=lambda it: -it.size)
-    where = f" (shard {shard[0]}/{shard[1]})" if shard else ""
-    if not items:
-        console.print(f"all {len(ids)} tasks{where} already meet the stopping rule "
-                      f"({rule.max_errors} errors or {rule.max_shots:,} shots): nothing to sample")
-        return SweepSummary(tasks=len(ids), already_done=len(ids), sampled_tasks=0, new_shots=0,
-                            new_errors=0, new_chunks=0, wall_seconds=time.monotonic() - t0,
-                            complete=True, shard_file=None, totals=_totals(have, ids))
-    console.print(f"sampling {len(items)} of {len(ids)} tasks{where} until {rule.max_errors:,} "
-                  f"errors or {rule.max_shots:,} shots each ({len(ids) - len(items)} already "
-                  f"there) -> {rich.markup.escape(str(out_dir_of(store)))}")
-    counts = {"shots": 0, "errors": 0, "chunks": 0}
-    shard_name = sharded_name(index=shard[0], count=shard[1]) if shard else None
-    with store.writer(shard_name) as writer, SweepProgress(items, rule, console) as bar:
+    out = out_dir_of(store)
+    with _sampling_lock(out, shared=shard is not None) as stack:
+        if spec is not None and spec.address is not None:
+            # reach the cluster before the manifest is written: a wrong address leaves nothing
+            client = stack.enter_context(_connect(spec, console))
+        if target is not None:
+            manifest = Manifest.for_sweep(target_sha256=target.sha256, target_name=target.name,
+                                          sample_sha256=target.sampling_sha256,
+                                          tasks=resolved, budget=budget, max_errors=rule.max_errors,
+                                          max_shots=rule.max_shots)
+            prepare_out_dir(out, target_bytes=target_bytes_of(target), manifest=manifest)
+        if shard is not None:
+            mine = shard_share(ids, shard)
+            keep = [k for k, sid in enumerate(ids) if sid in mine]
+            resolved, ids = [resolved[k] for k in keep], [ids[k] for k in keep]
+        t0 = time.monotonic()
+        store.repair()
+        have = store.stats_by_id()
+        items = []
+        for task, sid in zip(resolved, ids):
+            shots_left, errors_left = remaining(have.get(sid), rule)
+            if shots_left:
+                items.append(WorkItem(task=task, strong_id=sid, shots_left=shots_left,
+                                      errors_left=errors_left))
+        items.sort(key=lambda it: -it.size)
+        where = f" (shard {shard[0]}/{shard[1]})" if shard else ""
+        if not items:
+            console.print(f"all {len(ids)} tasks{where} already meet the stopping rule "
+                          f"({rule.max_errors} errors or {rule.max_shots:,} shots): nothing to sample",
+                          soft_wrap=True)
+            return SweepSummary(tasks=len(ids), already_done=len(ids), sampled_tasks=0, new_shots=0,
+                                new_errors=0, new_chunks=0, wall_seconds=time.monotonic() - t0,
+                                complete=True, shard_file=None, totals=_totals(have, ids))
+        if spec is not None and spec.local_workers is not None:
+            client = stack.enter_context(_connect(spec, console))  # started only when needed
+        console.print(f"sampling {len(items)} of {len(ids)} tasks{where} until {rule.max_errors:,} "
+                      f"errors or {rule.max_shots:,} shots each ({len(ids) - len(items)} already "
+                      f"there) -> {rich.markup.escape(str(out))}", soft_wrap=True)
+        counts = {"shots": 0, "errors": 0, "chunks": 0}
+        shard_name = sharded_name(index=shard[0], count=shard[1]) if shard else None
+        with store.writer(shard_name) as writer, SweepProgress(items, rule, console) as bar:
 
-        def sink(stats: sinter.TaskStats, chunk_id: str | None) -> None:
-            writer.append(stats, chunk_id=chunk_id)
-            counts["shots"] += stats.shots
-            counts["errors"] += stats.errors
-            counts["chunks"] += 1
-            bar.add(stats)
+            def sink(stats: sinter.TaskStats, chunk_id: str | None) -> None:
+                writer.append(stats, chunk_id=chunk_id)
+                counts["shots"] += stats.shots
+                counts["errors"] += stats.errors
+                counts["chunks"] += 1
+                bar.add(stats)
 
-        if cluster is not None:
-            from planner.cluster import run_on_cluster
+            if spec is not None:
+                from planner.cluster import drive_chunks
 
-            run_on_cluster(items, spec=cluster, rule=rule, sink=sink, console=console)
-        else:
-            run_local(items, workers=workers or default_workers(), sink=sink)
-        shard_file = writer.path
-    after = store.stats_by_id()
+                drive_chunks(client, items, sink, console=console)
+            else:
+                run_local(items, workers=workers or default_workers(), sink=sink)
+            shard_file = writer.path
+        after = store.stats_by_id()
     complete = all(remaining(after.get(sid), rule) == (0, 0) for sid in ids)
     wall = time.monotonic() - t0
     console.print(f"sampled {counts['shots']:,} shots ({counts['errors']:,} errors) in "
                   f"{counts['chunks']} chunks, {wall:.1f} s -> {rich.markup.escape(str(shard_file))}"
-                  + ("" if complete else "; some tasks are not yet complete: run again to top up"))
+                  + ("" if complete else "; some tasks are not yet complete: run again to top up"),
+                  soft_wrap=True)
     return SweepSummary(tasks=len(ids), already_done=len(ids) - len(items), sampled_tasks=len(items),
                         new_shots=counts["shots"], new_errors=counts["errors"],
                         new_chunks=counts["chunks"], wall_seconds=wall, complete=complete,
                         shard_file=shard_file, totals=_totals(after, ids))
+
+
+def _connect(spec: object, console: Console) -> contextlib.AbstractContextManager[object]:
+    from planner.cluster import connect
+
+    return connect(spec, console)  # type: ignore[arg-type]
+
+
+@contextlib.contextmanager
+def _sampling_lock(out: Path, *, shared: bool) -> Iterator[contextlib.ExitStack]:
+    """Create ``out`` if needed and hold its sampling lock (see :mod:`planner.lock`); yields an
+    ExitStack closed before the lock is released. A directory this call created is removed
+    again when the job fails and leaves it empty (an unreachable cluster leaves nothing)."""
+    from planner.lock import out_dir_lock
+    from planner.manifest import writable_dir
+
+    created = not out.exists()
+    writable_dir(out)
+    ok = False
+    try:
+        with out_dir_lock(out, shared=shared), contextlib.ExitStack() as stack:
+            yield stack
+        ok = True
+    finally:
+        if created and not ok:
+            with contextlib.suppress(OSError):
+                out.rmdir()  # only if empty
 
 
 def _totals(have: dict[str, sinter.TaskStats], ids: Sequence[str]) -> tuple[sinter.TaskStats, ...]:

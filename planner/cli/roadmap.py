@@ -23,7 +23,8 @@ def register(app: typer.Typer) -> None:
 def roadmap_command(directory: DirArg, json: JsonOpt = False) -> None:
     from planner.errors import InputError
     from planner.planning import answer_all, load_out_dir, no_model_reason
-    from planner.reports.tables import json_text, render_roadmap
+    from planner.reports.jsondoc import json_text
+    from planner.reports.tables import render_roadmap
 
     spec, stats = load_out_dir(directory)
     if spec.roadmap is None:

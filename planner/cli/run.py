@@ -29,11 +29,14 @@ def run_command(
     quiet: QuietOpt = False,
 ) -> None:
     from planner.config import load_target
+    from planner.sampling import check_workers
 
+    check_workers(workers)
     spec = load_target(target)  # validate before anything heavy is imported
     check_precision(precision)
     from planner.planning import answer_all
     from planner.reports import tables
+    from planner.lock import out_dir_lock
     from planner.manifest import writable_dir
     from planner.reports.files import write_all
     from planner.cli.sweep import sample
@@ -45,6 +48,8 @@ def run_command(
     started = time.monotonic()
     plan = plan_sweep(spec, budget=budget or "quick")
     out_dir = writable_dir(out if out is not None else default_out_dir(spec))
+    with out_dir_lock(out_dir):  # refuse now, before any chatter, if a sweep samples there
+        pass
     rule = f"{plan.rule.max_errors} errors or {plan.rule.max_shots:,} shots per task"
     how = (f"precision {precision:g}" + (f", each task capped at {rule}" if budget else "")
            if precision is not None else f"budget '{plan.budget}' ({rule})")

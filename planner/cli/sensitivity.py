@@ -22,7 +22,8 @@ def register(app: typer.Typer) -> None:
 @one_line_errors
 def sensitivity_command(directory: DirArg, json: JsonOpt = False) -> None:
     from planner.planning import answer_all, load_out_dir, no_model_reason
-    from planner.reports.tables import json_text, render_sensitivity
+    from planner.reports.jsondoc import json_text
+    from planner.reports.tables import render_sensitivity
 
     spec, stats = load_out_dir(directory)
     answers = answer_all(spec, stats)
@@ -30,10 +31,10 @@ def sensitivity_command(directory: DirArg, json: JsonOpt = False) -> None:
         note = no_model_reason(answers.fits)
         typer.echo(json_text({"sensitivity": None, "note": note})) if json else stdout_console().print(note)
         return
+    from planner.reports.cells import lumped_components
     from planner.reports.files import write_sensitivity
 
-    written = write_sensitivity(answers.sensitivity, directory,
-                                lumped=answers.model.unsampled if answers.model is not None else ())
+    written = write_sensitivity(answers.sensitivity, directory, lumped=lumped_components(answers))
     stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {plain(directory)}")
     if json:
         typer.echo(json_text(answers.sensitivity.to_json()))

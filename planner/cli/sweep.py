@@ -14,7 +14,9 @@ from planner.cli.options import (BudgetOpt, OutOpt, PrecisionOpt, QuietOpt, Work
 
 ClusterOpt = Annotated[str | None, typer.Option(
     "--cluster", metavar="ADDRESS", help="Sample on dask: a scheduler address (tcp://host:8786) "
-    "or local:N for a local cluster of N single-threaded worker processes.",
+    "or local:N for a local cluster of N single-threaded worker processes. Waits: "
+    "PLANNER_CLUSTER_TIMEOUT (s, default 30), PLANNER_WORKER_TIMEOUT (s, default 300); dask's "
+    "own log lines: PLANNER_DASK_LOG_LEVEL (default critical).",
     rich_help_panel="Sampling")]
 ShardOpt = Annotated[str | None, typer.Option(
     "--shard", metavar="K/N", help="Take job K's share (1..N) of the tasks and write "
@@ -41,10 +43,11 @@ def sweep_command(
 ) -> None:
     from planner.config import load_target
     from planner.errors import InputError
-    from planner.sampling import parse_shard
+    from planner.sampling import check_workers, parse_shard
 
     # check option syntax before anything slow happens
     shard_kn = parse_shard(shard) if shard is not None else None
+    check_workers(workers)
     if cluster is not None:
         from planner.cluster import parse_cluster
 

@@ -10,14 +10,23 @@ from __future__ import annotations
 
 import base64
 import html
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING
 
 from planner.config import Target
 from planner.fits import CONFIDENCE
 from planner.planning.uncertainty import replica_interval
 from planner.reports import text
+from planner.reports.formats import INTERVAL_NOTE, POINT_VALUE, estimate, num
+from planner.reports.table import Table
+
+if TYPE_CHECKING:
+    from planner.planning import Answers
+    from planner.planning.verify import Verification
+
+#: a (field, value) row of the page's key-value tables
+Pair = tuple[str, str | int]
 
 CAVEATS = (
     "Projections are model-based: they come from simulated memory experiments with a Pauli noise "
@@ -65,12 +74,12 @@ code { background: #f3f3f6; padding: 0 0.2em; }
 """
 
 
-def esc(x: Any) -> str:
+def esc(x: object) -> str:
     return html.escape(str(x), quote=True)
 
 
-def table_html(t: text.TextTable, *, level: int = 3) -> str:
-    """A :class:`~planner.reports.text.TextTable` as HTML (lead lines, table, notes, caveat)."""
+def table_html(t: Table, *, level: int = 3) -> str:
+    """A :class:`~planner.reports.table.Table` as HTML (lead lines, table, notes, caveat)."""
     out = [f"<h{level}>{esc(t.title)}</h{level}>"]
     out += [f'<p class="lead">{esc(x)}</p>' for x in t.lead]
     out.append("<table><thead><tr>" + "".join(f"<th>{esc(h)}</th>" for h in t.headers) + "</tr></thead><tbody>")
@@ -82,41 +91,41 @@ def table_html(t: text.TextTable, *, level: int = 3) -> str:
     return "\n".join(out)
 
 
-def _pairs(rows: Sequence[tuple[str, Any]]) -> str:
+def _pairs(rows: Sequence[Pair]) -> str:
     return "<table><tbody>" + "".join(f"<tr><th>{esc(k)}</th><td>{esc(v)}</td></tr>" for k, v in rows) + \
         "</tbody></table>"
 
 
-def device_rows(target: Target) -> list[tuple[str, Any]]:
+def device_rows(target: Target) -> list[Pair]:
     """What the target file says about the device, as (field, value) pairs with units."""
     d = target.device
-    rows: list[tuple[str, Any]] = [("device", d.name), ("native two-qubit gate", d.native_2q)]
+    rows: list[Pair] = [("device", d.name), ("native two-qubit gate", d.native_2q)]
     if d.preset is not None:
-        rows.append(("noise preset", f"{d.preset.model} at p = {text.num(d.preset.p)}"))
+        rows.append(("noise preset", f"{d.preset.model} at p = {num(d.preset.p)}"))
         return rows
     for key, value in d.errors.model_dump().items():
         if value is not None:
             unit = "average gate infidelity" if key.endswith("_infidelity") else "probability"
-            rows.append((f"errors.{key} ({unit})", text.num(value)))
+            rows.append((f"errors.{key} ({unit})", num(value)))
     if d.coherence is not None:
-        rows += [("T1 (us)", text.num(d.coherence.t1_us)), ("T2 (us)", text.num(d.coherence.t2_us))]
+        rows += [("T1 (us)", num(d.coherence.t1_us)), ("T2 (us)", num(d.coherence.t2_us))]
     if d.durations is not None:
-        rows += [(f"durations.{k} (ns)", text.num(v)) for k, v in d.durations.model_dump().items()]
+        rows += [(f"durations.{k} (ns)", num(v)) for k, v in d.durations.model_dump().items()]
     return rows
 
 
-def sampling_rows(answers: Any, target: Target, out_dir: Path | None) -> list[tuple[str, Any]]:
+def sampling_rows(answers: Answers, target: Target, out_dir: Path | None) -> list[Pair]:
     """The sweep grid, the budget recorded in the out directory and what was sampled."""
     from planner.manifest import read_manifest
 
     sw = target.sweep
     tasks = answers.fits.tasks
-    rows: list[tuple[str, Any]] = [
+    rows: list[Pair] = [
         ("code, decoder", f"{sw.code}, {sw.decoder}"),
         ("distances sampled", ", ".join(map(str, answers.fits.sampled_distances))),
         ("bases", ", ".join(sw.bases)),
-        ("joint scale factors", ", ".join(text.num(x) for x in sw.joint_scales)),
-        ("component scale factors", ", ".join(text.num(x) for x in sw.component_scales) or "none"),
+        ("joint scale factors", ", ".join(num(x) for x in sw.joint_scales)),
+        ("component scale factors", ", ".join(num(x) for x in sw.component_scales) or "none"),
         ("components with own axis", ", ".join(target.components) if sw.component_scales else "none"),
     ]
     manifest = None
@@ -137,29 +146,29 @@ def sampling_rows(answers: Any, target: Target, out_dir: Path | None) -> list[tu
     return rows
 
 
-def model_rows(answers: Any) -> list[tuple[str, Any]]:
+def model_rows(answers: Answers) -> list[Pair]:
     """The response model: its form, fit quality and weights (with bootstrap intervals over the
     replica models when there are any)."""
     m = answers.model
     if m is None:
         return [("response model", "none: " + "; ".join(answers.notes))]
     q = m.quality
-    rows: list[tuple[str, Any]] = [
+    rows: list[Pair] = [
         ("form", f"{m.form}: 1/Lambda = sum over components of w_c s_c"
          + (" + v_c s_c^2" if m.form == "quadratic" else "") + "; ln A linear in the s_c; "
          "eps_d = A Lambda^(-(d+1)/2)"),
         ("fit quality", q.summary()),
         ("points fitted", q.num_points),
-        ("chi2 per degree of freedom", text.num(q.chi2_per_dof)),
-        ("largest |residual| (sigma)", text.num(q.max_abs_residual)),
-        ("held-out largest |residual| (sigma)", text.num(q.loo_max_abs_residual)),
+        ("chi2 per degree of freedom", num(q.chi2_per_dof)),
+        ("largest |residual| (sigma)", num(q.max_abs_residual)),
+        ("held-out largest |residual| (sigma)", num(q.loo_max_abs_residual)),
         ("worst point", q.worst_point),
     ]
     replicas = answers.uncertainty.models if answers.uncertainty is not None else ()
-    how = "bootstrap interval" if replicas else text.POINT_VALUE
+    how = "bootstrap interval" if replicas else POINT_VALUE
     for c, w in m.weights.items():
         iv = replica_interval(w, [r.weights[c] for r in replicas]) if replicas else None
-        rows.append((f"weight w_{c} (1/Lambda per unit scale; {how})", text.estimate(w, iv)))
+        rows.append((f"weight w_{c} (1/Lambda per unit scale; {how})", estimate(w, iv)))
     if m.unsampled:
         rows.append(("lumped (no own axis, weight split evenly)", ", ".join(m.unsampled)))
     return rows
@@ -173,50 +182,47 @@ def figure_html(name: str, data: bytes) -> str:
             f"({esc(f'{CONFIDENCE:.0%}')} intervals)</figcaption></figure>")
 
 
-def report_html(answers: Any, *, target: Target, pngs: Mapping[str, bytes],
-                out_dir: Path | None = None, verification: Any = None,
-                verification_note: str = "") -> str:
+def _stage_sections(tables: Mapping[str, Sequence[Table]], plots_of: Callable[[str], list[str]],
+                    verification: Verification | None, verification_note: str) -> list[str]:
+    """Each stage's heading, tables and plots, in the order of the flow."""
+    body = [table_html(t) for t in tables.get("fits", ())] + plots_of("fits")
+    if "requirements" in tables:
+        body += ["<h2>Requirements</h2>", *(table_html(t) for t in tables["requirements"])]
+    if verification is not None or verification_note:
+        body.append("<h2>Verification on the simulator</h2>")
+        body += [f"<p>{esc(verification_note)}</p>"] if verification_note else []
+        body += [table_html(t) for t in text.verify_tables(verification)] if verification is not None else []
+    for key, heading in (("roadmap", "Roadmap"), ("sensitivity", "Sensitivity")):
+        if key in tables:
+            body += [f"<h2>{heading}</h2>", *(table_html(t) for t in tables[key]), *plots_of(key)]
+    others = plots_of("other")
+    return body + (["<h2>Other plots</h2>", *others] if others else [])
+
+
+def report_html(answers: Answers, *, target: Target, pngs: Mapping[str, bytes],
+                out_dir: Path | None = None, verification: Verification | None = None,
+                verification_note: str = "", tables: Mapping[str, Sequence[Table]] | None = None) -> str:
     """The page as text (``pngs``: PNG bytes by plot name, from plots.render_all). Order: the
     caveats, device and goal, sampling, then each stage's tables with its plots under them.
     ``verification``: the result of ``planner verify`` (a section after the requirements);
-    ``verification_note``: said in that section instead (e.g. the result is out of date)."""
+    ``verification_note``: said in that section instead (e.g. the result is out of date);
+    ``tables``: the report's tables by stage (:func:`planner.reports.text.report_tables`, the ones
+    the Markdown files hold; built here when not given)."""
     goal = target.goal
+    tables = text.report_tables(answers) if tables is None else tables
     plots_of = lambda section: [figure_html(n, d) for n, d in pngs.items()  # noqa: E731
                                 if PLOT_SECTIONS.get(n, "other") == section]
     body = [f"<h1>Error-budget report: {esc(target.device.name)}</h1>",
             f"<p>Target <code>{esc(target.name)}</code>, sha256 <code>{esc(target.sha256[:16])}</code>. "
-            f"{esc(text.INTERVAL_NOTE)}</p>",
+            f"{esc(INTERVAL_NOTE)}</p>",
             '<div class="caveats"><strong>Caveats</strong><ul>'
             + "".join(f"<li>{esc(c)}</li>" for c in CAVEATS) + "</ul></div>",
             "<h2>Device and goal</h2>", _pairs(device_rows(target)),
-            _pairs([("goal: logical error per cycle", text.num(goal.logical_error_per_cycle)),
+            _pairs([("goal: logical error per cycle", num(goal.logical_error_per_cycle)),
                     ("goal: largest code (physical qubits)", goal.max_qubits)]),
             "<h2>Sampling</h2>", _pairs(sampling_rows(answers, target, out_dir)),
-            "<h2>Fits and model</h2>", _pairs(model_rows(answers))]
-    body += [table_html(t) for t in text.fits_tables(answers.fits)]
-    body += plots_of("fits")
-    if answers.requirements is not None:
-        body.append("<h2>Requirements</h2>")
-        body += [table_html(t) for t in text.requirements_tables(
-            answers.requirements, uncertainty=answers.uncertainty)]
-    if verification is not None or verification_note:
-        body.append("<h2>Verification on the simulator</h2>")
-        if verification_note:
-            body.append(f"<p>{esc(verification_note)}</p>")
-        if verification is not None:
-            body += [table_html(t) for t in text.verify_tables(verification)]
-    if answers.roadmap is not None:
-        body.append("<h2>Roadmap</h2>")
-        body += [table_html(t) for t in text.roadmap_tables(answers.roadmap)]
-        body += plots_of("roadmap")
-    if answers.sensitivity is not None:
-        lumped = answers.model.unsampled if answers.model is not None else ()
-        body.append("<h2>Sensitivity</h2>")
-        body += [table_html(t) for t in text.sensitivity_tables(answers.sensitivity, lumped=lumped)]
-        body += plots_of("sensitivity")
-    others = plots_of("other")
-    if others:
-        body += ["<h2>Other plots</h2>", *others]
+            "<h2>Fits and model</h2>", _pairs(model_rows(answers)),
+            *_stage_sections(tables, plots_of, verification, verification_note)]
     if answers.notes:
         body.append("<h2>Notes</h2><ul>" + "".join(f"<li>{esc(n)}</li>" for n in answers.notes) + "</ul>")
     return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"

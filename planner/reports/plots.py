@@ -8,14 +8,38 @@ inside the functions (it is slow to import and only reports need it).
 
 from __future__ import annotations
 
-import io
+import datetime as dt
 import math
-from typing import Any
+from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from planner.config import COMPONENTS, Target
 from planner.fits import CONFIDENCE, FitReport
+from planner.reports.cells import goal_distance
+from planner.reports.formats import estimate, percent
+from planner.reports.plotkit import (  # noqa: F401  (png_bytes, wrap, nice_log_ticks: re-exported)
+    errbar,
+    figure,
+    fit_titles,
+    fixed_ticks,
+    nice_log_ticks,
+    plain_log,
+    png_bytes,
+    shade,
+    title,
+    wrap,
+)
+
+if TYPE_CHECKING:
+    from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
+
+    from planner.fits import LambdaFit, Threshold
+    from planner.planning.roadmap import DatedEvent, RateSet
+    from planner.planning.sensitivity import ComponentSensitivity
+    from planner.planning import Answers, ResponseModel, Roadmap, Sensitivity
 
 #: colours of the axes of the sweep (own choice: distinct in print and for common colour blindness)
 COLOURS = {"joint": "#1d3557", "gate_1q": "#e76f51", "gate_2q": "#2a9d8f", "readout": "#8338ec",
@@ -24,155 +48,40 @@ GOAL_COLOUR = "#b5179e"
 THRESHOLD_COLOUR = "#9d0208"
 #: fitted lines are extended towards the goal at most to this distance
 MAX_PLOT_DISTANCE = 101
-DPI = 110
 CL = f"{CONFIDENCE:.0%}"
-
-
-def _figure(width: float, height: float, *, ncols: int = 1, nrows: int = 1, **kw: Any) -> tuple[Any, Any]:
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=(width, height), dpi=DPI, layout="constrained")
-    axes = fig.subplots(nrows=nrows, ncols=ncols, squeeze=False, **kw)
-    return fig, axes
-
-
-def wrap(text: str, *, width_in: float, fontsize: float = 12.0) -> str:
-    """``text`` broken into lines that fit ``width_in`` inches at ``fontsize`` points (a
-    conservative 0.62 em per character), so no title is cut at the figure's edge.
-
-    >>> t = wrap("Error budget: Lambda today 2.111 [2.081, 2.15] (error bars: 95% bootstrap)", width_in=4.0, fontsize=10)
-    >>> print(t)
-    Error budget: Lambda today
-    2.111 [2.081, 2.15] (error bars: 95%
-    bootstrap)
-    """
-    # a value and its interval "best [low, high]" are never split over two lines
-    return _wrap_chars(text, max(int(0.92 * width_in * 72 / (0.62 * fontsize)), 20))
-
-
-def _title(ax: Any, text: str, *, fontsize: float = 12.0) -> None:
-    """A title wrapped to its column's share of the figure (:func:`fit_titles` makes sure)."""
-    fig = ax.get_figure()
-    ncols = ax.get_subplotspec().get_gridspec().ncols if ax.get_subplotspec() is not None else 1
-    ax.set_title(wrap(text, width_in=fig.get_figwidth() / ncols, fontsize=fontsize), fontsize=fontsize)
-
-
-def fit_titles(fig: Any, *, tries: int = 4) -> Any:
-    """Wrap the titles (and the figure's suptitle) until each lies inside the figure once laid
-    out: a title is centred over its axes, which long tick labels push aside, so only the drawn
-    extent tells whether it is cut at the edge."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-
-    canvas = FigureCanvasAgg(fig)
-    titles = [ax.title for ax in fig.axes] + ([fig._suptitle] if getattr(fig, "_suptitle", None) else [])
-    for _ in range(tries):
-        canvas.draw()
-        renderer = canvas.get_renderer()
-        width = fig.bbox.width
-        changed = False
-        for t in titles:
-            text = t.get_text()
-            if not text:
-                continue
-            bb = t.get_window_extent(renderer)
-            if bb.x0 >= 0 and bb.x1 <= width:
-                continue
-            # room on the narrower side of the title's centre, doubled
-            room = 2 * min((bb.x0 + bb.x1) / 2, width - (bb.x0 + bb.x1) / 2)
-            chars = max(int(max(map(len, text.split("\n"))) * 0.95 * room / bb.width), 12)
-            new = _wrap_chars(text, chars)
-            if new != text:
-                t.set_text(new)
-                changed = True
-        if not changed:
-            break
-    return fig
-
-
-def _wrap_chars(text: str, chars: int) -> str:
-    """``text`` (already wrapped or not) re-wrapped to at most ``chars`` characters a line."""
-    import re
-    import textwrap
-
-    flat = " ".join(text.split())
-    glued = re.sub(r"\S+ \[[^\]]*\]", lambda m: m.group().replace(" ", "\x00"), flat)
-    lines = textwrap.wrap(glued, chars, break_long_words=False, break_on_hyphens=False)
-    return "\n".join(lines).replace("\x00", " ") or text
-
-
-def png_bytes(fig: Any) -> bytes:
-    fit_titles(fig)
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=DPI)
-    return buf.getvalue()
-
-
-def nice_log_ticks(low: float, high: float) -> list[float]:
-    """Tick values for a log axis from ``low`` to ``high`` (both > 0) spanning less than two
-    decades, where matplotlib would label only the powers of ten: the finest of the
-    1..9, 1-1.5-2-3-4-5-7, 1-2-3-5 and 1-2-5 ladders that gives 2 to 8 ticks.
-
-    >>> nice_log_ticks(0.95, 4.5)
-    [1.0, 2.0, 3.0, 4.0]
-    >>> nice_log_ticks(0.25, 1.3)
-    [0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0]
-    """
-    ladders = ((1, 2, 3, 4, 5, 6, 7, 8, 9), (1, 1.5, 2, 3, 4, 5, 7), (1, 2, 3, 5), (1, 2, 5), (1,))
-    for subs in ladders:
-        ticks = [round(m * 10.0 ** k, 12) for k in range(math.floor(math.log10(low)) - 1,
-                                                           math.ceil(math.log10(high)) + 1)
-                 for m in subs if low <= m * 10.0 ** k <= high]
-        if 2 <= len(ticks) <= 8:
-            return ticks
-    return []
-
-
-def _plain_log(ax: Any, *, x: bool = True, y: bool = True) -> None:
-    """Log axes with plain tick labels (0.5, 2, 3) where the range spans less than two decades."""
-    from matplotlib.ticker import FixedLocator, FormatStrFormatter, NullFormatter, NullLocator
-
-    for on, axis, lim in ((x, ax.xaxis, ax.get_xlim()), (y, ax.yaxis, ax.get_ylim())):
-        lo, hi = sorted(lim)
-        if not on or lo <= 0 or hi / lo >= 100:
-            continue
-        ticks = nice_log_ticks(lo, hi)
-        if ticks:
-            axis.set_major_locator(FixedLocator(ticks))
-            axis.set_major_formatter(FormatStrFormatter("%g"))
-            axis.set_minor_locator(NullLocator())
-            axis.set_minor_formatter(NullFormatter())
-
-
-def _fixed_ticks(axis: Any, values: list[float]) -> None:
-    """Labelled ticks exactly at ``values`` (e.g. the sampled factors), no minor labels."""
-    from matplotlib.ticker import FixedLocator, FormatStrFormatter, NullFormatter, NullLocator
-
-    axis.set_major_locator(FixedLocator(sorted(set(values))))
-    axis.set_major_formatter(FormatStrFormatter("%g"))
-    axis.set_minor_locator(NullLocator())
-    axis.set_minor_formatter(NullFormatter())
-
-
-def _errbar(ax: Any, x: list[float], iv: list[Any], **kw: Any) -> None:
-    best = np.array([i.best for i in iv])
-    lo = np.clip(best - np.array([i.low for i in iv]), 0, None)
-    hi = np.clip(np.array([i.high for i in iv]) - best, 0, None)
-    ax.errorbar(x, best, yerr=[lo, hi], fmt="o", capsize=3, markersize=4, **kw)
-
-
-def _shade(base: str, k: int, n: int) -> str:
-    """``base`` colour lightened for the k-th of n factors (darkest = smallest factor)."""
-    from matplotlib.colors import to_rgb
-
-    r, g, b = to_rgb(base)
-    t = 0.0 if n <= 1 else 0.6 * k / (n - 1)
-    return "#%02x%02x%02x" % tuple(round(255 * (c + (1 - c) * t)) for c in (r, g, b))
 
 
 # ---------------------------------------------------------------------------------------------
 
 
-def rates_figure(report: FitReport, *, goal: float) -> Any:
+def _scale_point(ax: Axes, report: FitReport, lf: LambdaFit, colour: str, *, goal: float) -> float:
+    """One scale point on the rate plot: its points with error bars (a zero-error point also as
+    a down triangle at its upper end) and its fitted line, solid over the sampled distances and
+    dashed towards the goal. Returns the distance the line reaches."""
+    sampled = report.sampled_distances
+    dmin, dmax = min(sampled), max(sampled)
+    pts = sorted((p for p in report.distances if p.axis == lf.axis and p.factor == lf.factor),
+                 key=lambda p: p.distance)
+    errbar(ax, [p.distance for p in pts], [p.per_cycle for p in pts], color=colour,
+           label=f"{lf.axis} x{lf.factor:g}")
+    for p in (p for p in pts if p.zero_errors):
+        ax.plot([p.distance], [p.per_cycle.high], marker="v", color=colour, markersize=7)
+    if lf.suppression is None or lf.ln_prefactor is None:
+        return dmax
+    ln_a, ln_lam = lf.ln_prefactor.best, math.log(lf.suppression.best)
+    stop = float(dmax)
+    if ln_lam > 0:
+        stop = min(max(2 * (ln_a - math.log(goal)) / ln_lam - 1, dmax), MAX_PLOT_DISTANCE)
+    line = lambda d: np.exp(ln_a - (d + 1) / 2 * ln_lam)  # noqa: E731
+    inside = np.linspace(dmin, dmax, 20)
+    ax.plot(inside, line(inside), "-", color=colour, linewidth=1.4)
+    if stop > dmax:
+        beyond = np.linspace(dmax, stop, 60)
+        ax.plot(beyond, line(beyond), "--", color=colour, linewidth=1.1)
+    return stop
+
+
+def rates_figure(report: FitReport, *, goal: float) -> Figure | None:
     """Logical error per cycle against distance for each scale point: points with error bars,
     fitted lines (solid over the sampled distances, dashed beyond, towards the goal)."""
     if not report.distances:
@@ -180,42 +89,21 @@ def rates_figure(report: FitReport, *, goal: float) -> Any:
     axes_names = ["joint"] + sorted({p.axis for p in report.distances} - {"joint"})
     panels = [["joint"], [a for a in axes_names if a != "joint"]]
     panels = [p for p in panels if any(d.axis in p for d in report.distances)]
-    fig, axs = _figure(6.0 * len(panels), 4.6, ncols=len(panels), sharey=True)
+    fig, axs = figure(6.0 * len(panels), 4.6, ncols=len(panels), sharey=True)
     sampled = report.sampled_distances
-    dmin, dmax = min(sampled), max(sampled)
     for ax, names in zip(axs[0], panels):
-        d_end = dmax
+        d_end = float(max(sampled))
         for name in names:
             lfs = sorted((lf for lf in report.lambdas if lf.axis == name), key=lambda lf: lf.factor)
             for k, lf in enumerate(lfs):
-                colour = _shade(COLOURS.get(name, "#444444"), k, len(lfs))
-                label = f"{name} x{lf.factor:g}"
-                pts = sorted((p for p in report.distances if p.axis == name and p.factor == lf.factor),
-                             key=lambda p: p.distance)
-                _errbar(ax, [p.distance for p in pts], [p.per_cycle for p in pts], color=colour, label=label)
-                for p in pts:
-                    if p.zero_errors:
-                        ax.plot([p.distance], [p.per_cycle.high], marker="v", color=colour, markersize=7)
-                if lf.suppression is None or lf.ln_prefactor is None:
-                    continue
-                ln_a, ln_lam = lf.ln_prefactor.best, math.log(lf.suppression.best)
-                stop = dmax
-                if ln_lam > 0:
-                    d_goal = 2 * (ln_a - math.log(goal)) / ln_lam - 1
-                    stop = min(max(d_goal, dmax), MAX_PLOT_DISTANCE)
-                d_end = max(d_end, stop)
-                inside = np.linspace(dmin, dmax, 20)
-                beyond = np.linspace(dmax, stop, 60)
-                line = lambda d: np.exp(ln_a - (d + 1) / 2 * ln_lam)  # noqa: E731
-                ax.plot(inside, line(inside), "-", color=colour, linewidth=1.4)
-                if stop > dmax:
-                    ax.plot(beyond, line(beyond), "--", color=colour, linewidth=1.1)
+                colour = shade(COLOURS.get(name, "#444444"), k, len(lfs))
+                d_end = max(d_end, _scale_point(ax, report, lf, colour, goal=goal))
         ax.axhline(goal, color=GOAL_COLOUR, linewidth=1.5, linestyle=":", label=f"goal {goal:g}")
         ax.set_yscale("log")
-        ax.set_xlim(dmin - 1, d_end + 2)
+        ax.set_xlim(min(sampled) - 1, d_end + 2)
         ax.set_xlabel("code distance d")
-        _title(ax, "joint axis (all components x factor)" if names == ["joint"]
-               else "one component x factor, others today", fontsize=11)
+        title(ax, "joint axis (all components x factor)" if names == ["joint"]
+              else "one component x factor, others today", fontsize=11)
         ax.grid(True, which="major", alpha=0.3)
         ax.legend(fontsize=7, ncol=2 if len(ax.get_legend_handles_labels()[0]) > 8 else 1)
     axs[0][0].set_ylabel("logical error per cycle")
@@ -224,26 +112,9 @@ def rates_figure(report: FitReport, *, goal: float) -> Any:
     return fig
 
 
-def lambda_joint_figure(report: FitReport, model: Any = None) -> Any:
-    """Lambda against the joint scale factor: points, interval band, Lambda = 1 and the threshold."""
-    joint = sorted((lf for lf in report.lambdas if lf.axis == "joint" and lf.suppression), key=lambda lf: lf.factor)
-    if not joint:
-        return None
-    fig, axs = _figure(6.4, 4.6)
-    ax = axs[0][0]
-    x = [lf.factor for lf in joint]
-    ivs = [lf.suppression for lf in joint]
-    if len(joint) > 1:
-        ax.fill_between(x, [i.low for i in ivs], [i.high for i in ivs], color=COLOURS["joint"], alpha=0.18,
-                        label=f"{CL} interval")
-    _errbar(ax, x, ivs, color=COLOURS["joint"], label="fitted Lambda")
-    lo, hi = min(x) / 1.3, max(x) * 1.3
-    th = report.threshold
-    if model is not None:
-        s = np.geomspace(lo, hi, 80)
-        lam = model.suppression_array(np.repeat(s[:, None], len(COMPONENTS), axis=1))
-        ax.plot(s, lam, "--", color="#555555", linewidth=1.1, label=f"response model ({model.form})")
-    ax.axhline(1.0, color=THRESHOLD_COLOUR, linewidth=1.2, label="Lambda = 1 (threshold)")
+def _threshold_marks(ax: Axes, th: Threshold, lo: float, hi: float) -> None:
+    """The threshold's joint factor (a line) and its interval (a band, cut to the view from
+    ``lo`` to ``hi``), or, when the sampled range does not bracket it, its note in the legend."""
     if th.factor is not None:
         ax.axvline(th.factor.best, color=THRESHOLD_COLOUR, linestyle=":",
                    label=f"threshold at joint x{th.factor.best:.3g}")
@@ -252,37 +123,65 @@ def lambda_joint_figure(report: FitReport, model: Any = None) -> Any:
         ax.axvspan(left, right, color=THRESHOLD_COLOUR, alpha=0.08)
     elif th.note:  # in the legend box, which finds its own room (as text it sat on the Lambda = 1 line)
         ax.plot([], [], " ", label=wrap(th.note, width_in=2.6, fontsize=8))
+
+
+def lambda_joint_figure(report: FitReport, model: ResponseModel | None = None) -> Figure | None:
+    """Lambda against the joint scale factor: points, interval band, Lambda = 1 and the threshold."""
+    joint = sorted((lf for lf in report.lambdas if lf.axis == "joint" and lf.suppression), key=lambda lf: lf.factor)
+    if not joint:
+        return None
+    fig, axs = figure(6.4, 4.6)
+    ax = axs[0][0]
+    x = [lf.factor for lf in joint]
+    ivs = [lf.suppression for lf in joint if lf.suppression is not None]
+    if len(joint) > 1:
+        ax.fill_between(x, [i.low for i in ivs], [i.high for i in ivs], color=COLOURS["joint"], alpha=0.18,
+                        label=f"{CL} interval")
+    errbar(ax, x, ivs, color=COLOURS["joint"], label="fitted Lambda")
+    lo, hi = min(x) / 1.3, max(x) * 1.3
+    if model is not None:
+        s = np.geomspace(lo, hi, 80)
+        lam = model.suppression_array(np.repeat(s[:, None], len(COMPONENTS), axis=1))
+        ax.plot(s, lam, "--", color="#555555", linewidth=1.1, label=f"response model ({model.form})")
+    ax.axhline(1.0, color=THRESHOLD_COLOUR, linewidth=1.2, label="Lambda = 1 (threshold)")
+    _threshold_marks(ax, report.threshold, lo, hi)
     ax.axvline(1.0, color="#999999", linewidth=0.8)
     ax.set_xscale("log")
     ax.set_yscale("log")
     ax.set_xlim(lo, hi)
     ax.set_xlabel("joint scale factor (x today's error on every component)")
     ax.set_ylabel("suppression factor Lambda (eps_d / eps_d+2)")
-    _title(ax, f"Lambda against the joint scale ({CL} intervals)")
-    _plain_log(ax)
+    title(ax, f"Lambda against the joint scale ({CL} intervals)")
+    plain_log(ax)
     ax.grid(True, which="both", alpha=0.25)
     ax.legend(fontsize=8)
     return fig
 
 
-def lambda_components_figure(report: FitReport) -> Any:
+def _component_line(ax: Axes, pts: list[LambdaFit], name: str, *, dodge: float) -> None:
+    """One component's Lambda points (moved sideways by the fraction ``dodge`` so the error bars
+    of the lines sharing today's point stay apart) joined by a line."""
+    pts = sorted(pts, key=lambda lf: lf.factor)
+    x = [lf.factor * (1 + dodge) for lf in pts]
+    colour = COLOURS.get(name, "#444444")
+    ivs = [lf.suppression for lf in pts if lf.suppression is not None]
+    errbar(ax, x, ivs, color=colour, label=name)
+    ax.plot(x, [iv.best for iv in ivs], "-", color=colour, linewidth=1.2)
+
+
+def lambda_components_figure(report: FitReport) -> Figure | None:
     """Lambda against each component's own factor (others today); today's point is shared."""
     names = sorted({lf.axis for lf in report.lambdas if lf.axis != "joint" and lf.suppression},
                    key=lambda c: COMPONENTS.index(c) if c in COMPONENTS else 99)
     if not names:
         return None
     today = report.today()
-    fig, axs = _figure(6.4, 4.6)
+    fig, axs = figure(6.4, 4.6)
     ax = axs[0][0]
     for k, name in enumerate(names):
         pts = [lf for lf in report.lambdas if lf.axis == name and lf.suppression]
-        if today is not None and today.suppression is not None:
-            pts.append(today)
-        pts.sort(key=lambda lf: lf.factor)
-        x = [lf.factor * (1 + 0.012 * (k - len(names) / 2)) for lf in pts]  # a small dodge
-        colour = COLOURS.get(name, "#444444")
-        _errbar(ax, x, [lf.suppression for lf in pts], color=colour, label=name)
-        ax.plot(x, [lf.suppression.best for lf in pts], "-", color=colour, linewidth=1.2)
+        _component_line(ax, pts + ([today] if today is not None and today.suppression is not None else []),
+                        name, dodge=0.012 * (k - len(names) / 2))
     ax.axhline(1.0, color=THRESHOLD_COLOUR, linewidth=1.2, label="Lambda = 1 (threshold)")
     ax.axvline(1.0, color="#999999", linewidth=0.8)
     ax.set_xscale("log")
@@ -290,23 +189,16 @@ def lambda_components_figure(report: FitReport) -> Any:
     ax.set_xlim(factors[0] / 1.15, factors[-1] * 1.15)
     ax.set_xlabel("component scale factor (x today's error, others today; ticks: sampled)")
     ax.set_ylabel("suppression factor Lambda (eps_d / eps_d+2)")
-    _title(ax, f"Lambda against each component ({CL} intervals)")
-    _fixed_ticks(ax.xaxis, factors)
+    title(ax, f"Lambda against each component ({CL} intervals)")
+    fixed_ticks(ax.xaxis, factors)
     ax.grid(True, which="both", alpha=0.25)
     ax.legend(fontsize=8)
     return fig
 
 
-def budget_figure(sens: Any, *, lumped: tuple[str, ...] = ()) -> Any:
-    """Each component's share of 1/Lambda at today's point (horizontal bars, most limiting on top),
-    error bars from the bootstrap intervals of the shares when there are any."""
-    from planner.reports.text import estimate
-
-    if sens is None or not sens.rows:
-        return None
-    rows = list(reversed(sens.rows))
-    fig, axs = _figure(6.4, 0.5 * len(rows) + 1.6)
-    ax = axs[0][0]
+def _share_bars(ax: Axes, rows: list[ComponentSensitivity], lumped: tuple[str, ...]) -> bool:
+    """The bars of the budget plot, each labelled with its share and interval; whether any has
+    an interval (error bars)."""
     labels = [r.component + (" (lumped)" if r.component in lumped else "") for r in rows]
     shares = np.array([100 * r.share for r in rows])
     ivs = [r.intervals.get("share") for r in rows]
@@ -320,19 +212,31 @@ def budget_figure(sens: Any, *, lumped: tuple[str, ...] = ()) -> Any:
         if r.component in lumped:
             bar.set_hatch("//")
     for y, (r, iv, top) in enumerate(zip(rows, ivs, shares + hi)):
-        label = estimate(r.share, iv, scale=100) if iv else f"{100 * r.share:.3g}"
-        ax.text(top, y, f"  {label} %", va="center", fontsize=8)
+        ax.text(top, y, f"  {percent(r.share, iv)} %", va="center", fontsize=8)
     # room right of the longest bar for its "best [low, high] %" label
     ax.set_xlim(0, max(list(shares + hi) + [1.0]) * 1.7)
+    return has_iv
+
+
+def budget_figure(sens: Sensitivity | None, *, lumped: tuple[str, ...] = ()) -> Figure | None:
+    """Each component's share of 1/Lambda at today's point (horizontal bars, most limiting on top),
+    error bars from the bootstrap intervals of the shares when there are any."""
+    if sens is None or not sens.rows:
+        return None
+    rows = list(reversed(sens.rows))
+    fig, axs = figure(6.4, 0.5 * len(rows) + 1.6)
+    ax = axs[0][0]
+    has_iv = _share_bars(ax, rows, lumped)
     ax.set_xlabel("share of 1/Lambda at today's point (%)")
     lam = estimate(sens.suppression_today, sens.suppression_today_interval)
     how = f"error bars: {CL} bootstrap" if has_iv else "best values, no bootstrap"
-    _title(ax, f"Error budget: Lambda today {lam} ({how})", fontsize=10)
+    title(ax, f"Error budget: Lambda today {lam} ({how})", fontsize=10)
     ax.grid(True, axis="x", alpha=0.3)
     return fig
 
 
-def eps_band(models: Any, scales: np.ndarray, distance: int, best: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def eps_band(models: Sequence[ResponseModel], scales: np.ndarray, distance: int,
+             best: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """The :data:`~planner.fits.CONFIDENCE` range of eps per cycle at ``distance`` over the replica
     ``models`` for each row of ``scales`` (shape (n, 6)), widened to hold ``best``: the same
     interval the roadmap's rows carry (:func:`planner.planning.uncertainty.replica_interval`)."""
@@ -342,29 +246,57 @@ def eps_band(models: Any, scales: np.ndarray, distance: int, best: np.ndarray) -
     return np.minimum(lo, best), np.maximum(hi, best)
 
 
-def roadmap_figure(rm: Any, model: Any, target: Target, *, models: Any = ()) -> Any:
+def _goal_marks(axes: Sequence[Axes], goal: DatedEvent, end: dt.date) -> None:
+    """The goal's date (a line) and its range (a band) on each of ``axes``."""
+    for ax in axes:
+        if goal.date is not None:
+            ax.axvline(goal.date, color=GOAL_COLOUR, linewidth=1.0)
+        if goal.low is not None:
+            ax.axvspan(goal.low, goal.high or end, color=GOAL_COLOUR, alpha=0.08)
+
+
+def _qubits_panel(ax: Axes, rm: Roadmap, model: ResponseModel, target: Target, rates: RateSet, *,
+                  horizon: float) -> None:
+    """The physical qubits needed to meet the goal at each roadmap step, and the budget."""
+    from planner.planning import physical_qubits, smallest_distance
+    from planner.planning.model import qubit_rule
+    from planner.planning.roadmap import STEPS_PER_YEAR, years_to_date
+
+    per = STEPS_PER_YEAR[rm.step]
+    ts = np.arange(0, int(horizon * per) + 1) / per
+    qdates, qubits = [], []
+    for y, row in zip(ts, rates.scales(ts)):
+        d = smallest_distance(model, dict(zip(COMPONENTS, row.tolist())), rm.eps_target)
+        qdates.append(years_to_date(rm.start, float(y)))
+        qubits.append(physical_qubits(d, target.sweep.code) if d is not None else np.nan)
+    ax.step(qdates, qubits, where="post", color=COLOURS["gate_2q"],
+            label=f"physical qubits needed ({qubit_rule(target.sweep.code)})")
+    ax.axhline(rm.max_qubits, color="#333333", linestyle="--", linewidth=1.0,
+               label=f"goal.max_qubits {rm.max_qubits}")
+
+
+def roadmap_figure(rm: Roadmap | None, model: ResponseModel | None, target: Target, *,
+                   models: Sequence[ResponseModel] = ()) -> Figure | None:
     """eps at the candidate distances against date (log y) with the goal, and the physical qubits
     needed over time (lower panel), at the central rates. With the bootstrap replica ``models``,
     a band shows the interval of eps at the goal distance."""
     if rm is None or model is None or target.roadmap is None:
         return None
-    from planner.planning.ask import smallest_distance
-    from planner.planning.model import physical_qubits, qubit_rule
-    from planner.planning.roadmap import STEPS_PER_YEAR, RateSet, years_to_date
+    from planner.planning.roadmap import RateSet, years_to_date
 
     horizon = target.roadmap.horizon_years
     rates = RateSet.from_rates(target.roadmap.rates, target=target)  # with the T1/T2 growth, as the steps
     t = np.linspace(0.0, horizon, int(horizon * 12) + 1)
     scales = rates.scales(t)
     dates = [years_to_date(rm.start, float(y)) for y in t]
-    fig, axs = _figure(7.2, 6.2, nrows=2, sharex=True, height_ratios=[3, 2])
+    fig, axs = figure(7.2, 6.2, nrows=2, sharex=True, height_ratios=[3, 2])
     top, bottom = axs[0][0], axs[1][0]
     n = len(rm.candidate_distances)
     for k, d in enumerate(rm.candidate_distances):
-        colour = _shade(COLOURS["joint"], n - 1 - k, n)
+        colour = shade(COLOURS["joint"], n - 1 - k, n)
         top.plot(dates, np.exp(model.ln_eps_array(scales, d)), "-", color=colour, label=f"d = {d}")
         top.plot([s.date for s in rm.steps], [s.eps[d] for s in rm.steps], "o", color=colour, markersize=3)
-    dg = rm.goal_distance if rm.goal_distance in rm.candidate_distances else rm.candidate_distances[-1]
+    dg = goal_distance(rm)
     if len(models):
         best = np.exp(model.ln_eps_array(scales, dg))
         lo, hi = eps_band(models, scales, dg, np.minimum(best, 0.5))
@@ -374,29 +306,15 @@ def roadmap_figure(rm: Any, model: Any, target: Target, *, models: Any = ()) -> 
     # the lines fall for decades after the goal: keep the view on the goal's neighbourhood
     top.set_ylim(bottom=max(top.get_ylim()[0], rm.eps_target * 1e-3))
     g = rm.goal
-    for ax in (top, bottom):
-        if g.date is not None:
-            ax.axvline(g.date, color=GOAL_COLOUR, linewidth=1.0)
-        if g.low is not None:
-            ax.axvspan(g.low, g.high or dates[-1], color=GOAL_COLOUR, alpha=0.08)
+    _goal_marks((top, bottom), g, dates[-1])
     top.set_yscale("log")
     top.set_ylabel("logical error per cycle")
-    _title(top, "Roadmap at the central rates" + (f": goal met {g.date}" if g.date else ": goal not met"))
+    title(top, "Roadmap at the central rates" + (f": goal met {g.date}" if g.date else ": goal not met"))
     top.grid(True, which="major", alpha=0.3)
     top.legend(fontsize=8, ncol=2)
-    per = STEPS_PER_YEAR[rm.step]
-    ts = np.arange(0, int(horizon * per) + 1) / per
-    qdates, qubits = [], []
-    for y, row in zip(ts, rates.scales(ts)):
-        d = smallest_distance(model, dict(zip(COMPONENTS, row.tolist())), rm.eps_target)
-        qdates.append(years_to_date(rm.start, float(y)))
-        qubits.append(physical_qubits(d, target.sweep.code) if d is not None else np.nan)
-    bottom.step(qdates, qubits, where="post", color=COLOURS["gate_2q"],
-                label=f"physical qubits needed ({qubit_rule(target.sweep.code)})")
-    bottom.axhline(rm.max_qubits, color="#333333", linestyle="--", linewidth=1.0,
-                   label=f"goal.max_qubits {rm.max_qubits}")
+    _qubits_panel(bottom, rm, model, target, rates, horizon=horizon)
     bottom.set_yscale("log")
-    _plain_log(bottom, x=False)  # 700, 1000, 2000 rather than 7x10^2
+    plain_log(bottom, x=False)  # 700, 1000, 2000 rather than 7x10^2
     bottom.set_ylabel("physical qubits")
     bottom.set_xlabel("date")
     bottom.grid(True, which="major", alpha=0.3)
@@ -404,7 +322,7 @@ def roadmap_figure(rm: Any, model: Any, target: Target, *, models: Any = ()) -> 
     return fig
 
 
-def figures(answers: Any, *, target: Target) -> dict[str, Any]:
+def figures(answers: Answers, *, target: Target) -> dict[str, Figure]:
     """All figures that have data, by file stem."""
     report = answers.fits
     lumped = answers.model.unsampled if answers.model is not None else ()
@@ -419,6 +337,6 @@ def figures(answers: Any, *, target: Target) -> dict[str, Any]:
     return {k: v for k, v in figs.items() if v is not None}
 
 
-def render_all(answers: Any, *, target: Target) -> dict[str, bytes]:
+def render_all(answers: Answers, *, target: Target) -> dict[str, bytes]:
     """PNG bytes of every figure with data, by file stem."""
     return {name: png_bytes(fig) for name, fig in figures(answers, target=target).items()}

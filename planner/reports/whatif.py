@@ -9,18 +9,23 @@ lands next to it). Inside the out directory only ``whatif-*.md`` names are taken
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING
 
 from planner.errors import InputError
 from planner.fits import Interval
 from planner.reports import text
-from planner.reports.files import REQUIREMENTS_COLUMNS, csv_text, requirements_rows, write_atomic
+from planner.reports.csvtables import requirements_csv
+from planner.reports.files import write_atomic
+from planner.reports.table import to_csv, to_markdown
+
+if TYPE_CHECKING:
+    from planner.planning import Requirements, Uncertainty
 
 #: inside the out directory a saved answer must be named like this (glob)
 WHAT_IF_PATTERN = "whatif-*.md"
 
 
-def default_name(asked: dict[str, Any]) -> str:
+def default_name(asked: dict[str, float | int]) -> str:
     """A file name saying what was asked.
 
     >>> default_name({"distance": 15}), default_name({"eps_target": 1e-9, "qubits": 500})
@@ -46,13 +51,12 @@ def check_save_path(path: Path, out_dir: Path) -> tuple[Path, Path]:
     return path, csv_path
 
 
-def write_what_if(req: Any, md_path: Path, csv_path: Path, *, question: str,
-                  lambda_today_model: Interval | None = None, uncertainty: Any = None) -> list[Path]:
+def write_what_if(req: Requirements, md_path: Path, csv_path: Path, *, question: str,
+                  lambda_today_model: Interval | None = None, uncertainty: Uncertainty | None = None) -> list[Path]:
     """The requirement tables of an answer, headed by the what-if ``question`` it answers (empty:
     the goal's own answer, saved to another place)."""
-    md = text.to_markdown(text.requirements_tables(req, lambda_today_model=lambda_today_model,
-                                                   uncertainty=uncertainty),
-                          heading=f"What-if: {question} (not the review's goal)" if question
-                          else "Requirements for the goal")
-    rows = requirements_rows(req, lambda_today_model=lambda_today_model)
-    return [write_atomic(md_path, md), write_atomic(csv_path, csv_text(REQUIREMENTS_COLUMNS, rows))]
+    md = to_markdown(text.requirements_tables(req, lambda_today_model=lambda_today_model, uncertainty=uncertainty),
+                     heading=f"What-if: {question} (not the review's goal)" if question
+                     else "Requirements for the goal")
+    return [write_atomic(md_path, md),
+            write_atomic(csv_path, to_csv(requirements_csv(req, lambda_today_model=lambda_today_model)))]

@@ -362,36 +362,13 @@ def test_disk_full_is_one_clear_error_and_leaves_no_tmp(tmp_path, monkeypatch, w
     def full(*a, **k):
         raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
 
-    if where == "write":
-        real = os.fdopen
-        monkeypatch.setattr(files.os, "fdopen", lambda fd, mode: _FullFile(real(fd, mode)))
-    else:
-        monkeypatch.setattr(files.os, where, full)
+    monkeypatch.setattr(files.os, where, full)  # os.write: planner.fileio writes through it
     with pytest.raises(InputError) as err:
         files.write_atomic(path, "new page " * 1000)
     msg = str(err.value)
     assert "\n" not in msg and str(path) in msg and "No space left on device" in msg and "free" in msg
     assert sorted(p.name for p in tmp_path.iterdir()) == ["report.html"]  # no .tmp left behind
     assert path.read_text() == "old page"  # the old file is intact
-
-
-class _FullFile:
-    """A file object whose writes fail as on a full disk (close still closes the descriptor)."""
-
-    def __init__(self, fh):
-        self._fh = fh
-
-    def write(self, data):
-        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
-
-    def __getattr__(self, name):
-        return getattr(self._fh, name)
-
-    def __enter__(self):
-        return self
-
-    def __exit__(self, *exc):
-        self._fh.close()
 
 
 # ---------------------------------------------------------------------------------------------

@@ -115,7 +115,7 @@ def test_killed_worker_chunk_is_rerun_and_counted_once(tmp_path: Path) -> None:
     store = SampleStore(tmp_path)
     rule = StoppingRule(max_errors=10**9, max_shots=400_000)
     killed: list[int] = []
-    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None,
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0",
                       silence_logs=logging.CRITICAL) as cluster, Client(cluster) as client:
         pids = list(client.run(os.getpid).values())
 

@@ -1,0 +1,117 @@
+"""The cells of each result, made once: the report tables (:mod:`planner.reports.text`) and the
+terminal's compact views (:mod:`planner.reports.tables`) both take their cells from here, so a
+figure reads the same string in every place it appears.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from planner.reports.formats import EXTRAPOLATED, estimate, halvings, percent, rate
+
+if TYPE_CHECKING:
+    from planner.fits import Interval
+    from planner.planning import Answers, FactorAnswer, MixAnswer, Roadmap
+    from planner.planning.roadmap import RoadmapStep
+    from planner.planning.sensitivity import ComponentSensitivity
+
+
+def lambda_today_model(answers: Answers) -> Interval | None:
+    """The bootstrap interval of the model's Lambda today (None without replicas)."""
+    unc = answers.uncertainty
+    return unc.intervals.get("lambda_today") if unc is not None else None
+
+
+def lumped_components(answers: Answers) -> tuple[str, ...]:
+    """Components without their own sweep axis (their weight is split evenly)."""
+    return tuple(answers.model.unsampled) if answers.model is not None else ()
+
+
+# ---------------------------------------------------------------------------------------------
+# requirements
+
+
+def lever_cells(a: FactorAnswer) -> tuple[str, str]:
+    """The factor one lever needs alone (marked when extrapolated) and the Lambda it reaches
+    ('max': not reachable alone, with the component perfect)."""
+    if a.reachable:
+        return (estimate(a.factor, a.factor_interval) + (f" {EXTRAPOLATED}" if a.extrapolation else ""),
+                estimate(a.suppression, a.suppression_interval))
+    if a.lever == "joint":
+        return "not reachable", "—"
+    return "not reachable alone", "max " + estimate(a.suppression, a.suppression_interval)
+
+
+def lever_note(a: FactorAnswer) -> str:
+    """The note of one lever's answer, without the bare Lambda planning puts into the "not
+    reachable alone" note (the Lambda column carries it with its interval).
+
+    >>> from planner.planning import FactorAnswer
+    >>> lever_note(FactorAnswer("idle", False, None, 1.9, note="not reachable alone: with idle perfect, Lambda = 1.9"))
+    'not reachable alone: even with idle perfect, Lambda stays below the Lambda needed'
+    """
+    if not a.reachable and a.lever != "joint":
+        return f"not reachable alone: even with {a.lever} perfect, Lambda stays below the Lambda needed"
+    return a.note
+
+
+def mix_cells(mix: MixAnswer, lever: str) -> tuple[str, str, str]:
+    """Factor (marked when extrapolated), halvings and cost share (%) of ``lever`` in the
+    cheapest mix ('—' for joint or no mix)."""
+    if lever == "joint" or not mix.reachable or lever not in mix.scales:
+        return "—", "—", "—"
+    f_iv = mix.scale_intervals.get(lever)
+    mark = f" {EXTRAPOLATED}" if any(x.startswith(f"{lever} ") for x in mix.extrapolation) else ""
+    h, h_iv = halvings(f_iv, mix.scales[lever])
+    share = percent(mix.cost_shares.get(lever, 0.0), mix.cost_share_intervals.get(lever))
+    return estimate(mix.scales[lever], f_iv) + mark, estimate(h, h_iv), share
+
+
+# ---------------------------------------------------------------------------------------------
+# roadmap
+
+
+def goal_distance(rm: Roadmap) -> int:
+    """The distance the roadmap judges the goal at (the largest within max_qubits)."""
+    return rm.goal_distance if rm.goal_distance in rm.candidate_distances else rm.candidate_distances[-1]
+
+
+def moving_components(rm: Roadmap) -> list[str]:
+    """Components whose scale changes along the roadmap (the others stay at today's error)."""
+    first = rm.steps[0].scales
+    return [c for c in first if any(s.scales[c] != 1.0 for s in rm.steps)]
+
+
+def step_cells(s: RoadmapStep, distance: int) -> tuple[str, str, str]:
+    """Lambda (marked when extrapolated), eps per cycle at ``distance`` and the smallest
+    distance meeting the goal with its physical qubits, at one roadmap step."""
+    return (estimate(s.suppression, s.suppression_interval) + (f" {EXTRAPOLATED}" if s.extrapolation else ""),
+            rate(s.eps[distance], s.eps_intervals.get(distance)),
+            f"{s.distance} ({s.physical_qubits})" if s.distance else "—")
+
+
+def event_rows(rm: Roadmap) -> list[tuple[str, str, str, str]]:
+    """The goal and the Lambda milestones: event, date at the central rates, range over the
+    scenarios, share of scenarios reaching it ('—' without scenarios)."""
+    rows = []
+    for e in (rm.goal, *rm.milestones):
+        rng = (f"[{e.low.isoformat() if e.low else 'before start'}, "
+               f"{e.high.isoformat() if e.high else 'beyond horizon'}]") if rm.num_scenarios else "—"
+        rows.append((e.what, e.date.isoformat() if e.date else "not within horizon", rng,
+                     f"{e.fraction_reached:.0%}" if rm.num_scenarios else "—"))
+    return rows
+
+
+# ---------------------------------------------------------------------------------------------
+# sensitivity
+
+
+def sensitivity_cells(r: ComponentSensitivity) -> dict[str, str]:
+    """One component's figures with their intervals: ``share`` (%), ``elasticity``, ``halved``,
+    ``perfect`` (Lambda) and ``earlier`` (months)."""
+    iv = r.intervals
+    return {"share": percent(r.share, iv.get("share")),
+            "elasticity": estimate(r.elasticity, iv.get("elasticity")),
+            "halved": estimate(r.suppression_halved, iv.get("suppression_halved")),
+            "perfect": estimate(r.suppression_perfect, iv.get("suppression_perfect")),
+            "earlier": estimate(r.months_earlier, iv.get("months_earlier"))}

@@ -1,0 +1,190 @@
+"""The report CSV files as tables of raw values, one builder per result.
+
+CSV is for programs: one header row, raw numbers at full precision, intervals as separate
+``best``/``low``/``high`` columns (or ``<figure>``, ``<figure>_low``, ``<figure>_high``),
+empty cells for missing values; :func:`planner.reports.table.to_csv` writes them.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import TYPE_CHECKING, Any
+
+from planner.config import COMPONENTS
+from planner.fits import Interval
+from planner.reports.cells import lever_note
+from planner.reports.formats import POINT_VALUE, halvings
+from planner.reports.table import INTEGER_COLUMNS, Table
+
+if TYPE_CHECKING:
+    from planner.planning import MixAnswer, Requirements, Roadmap, Sensitivity
+    from planner.planning.verify import Verification
+
+REQUIREMENTS_COLUMNS = ("quantity", "lever", "unit", "best", "low", "high", "reachable",
+                        "extrapolated", "note")
+#: the figures of a sensitivity row, each written as best then ``_low`` / ``_high`` columns
+SENSITIVITY_FIGURES = (("share_of_inverse_lambda", "share"), ("elasticity", "elasticity"),
+                       ("suppression_factor_halved", "suppression_halved"),
+                       ("suppression_factor_perfect", "suppression_perfect"),
+                       ("months_earlier", "months_earlier"))
+SENSITIVITY_COLUMNS = ("component", *(f"{name}{end}" for name, _ in SENSITIVITY_FIGURES
+                                      for end in ("", "_low", "_high")), "lumped", "note")
+DATES_COLUMNS = ("event", "date", "low", "high", "fraction_of_scenarios_reached")
+VERIFY_COLUMNS = ("point", "quantity", "distance", "predicted", "predicted_low", "predicted_high",
+                  "sampled", "sampled_low", "sampled_high", "zero_errors", "holds")
+
+Row = tuple[Any, ...]
+
+
+def ends(iv: Interval | None, best: float | None = None) -> tuple[float | None, float | None, float | None]:
+    """``(best, low, high)`` of an interval; ``(best, None, None)`` without one.
+
+    >>> ends(Interval(low=1.0, best=2.0, high=3.0)), ends(None, 5.0)
+    ((2.0, 1.0, 3.0), (5.0, None, None))
+    """
+    if iv is None:
+        return best, None, None
+    return iv.best, iv.low, iv.high
+
+
+# ---------------------------------------------------------------------------------------------
+# requirements (long format: one row per quantity and lever)
+
+
+def _goal_rows(req: Requirements, lambda_today_model: Interval | None) -> list[Row]:
+    td = req.today
+    model_lam = td.suppression_model_interval or lambda_today_model
+    return [
+        ("target_logical_error_per_cycle", "", "per cycle", req.eps_target, None, None, None, None, "goal"),
+        ("distance", "", "", req.distance, None, None, None, None, req.distance_source),
+        ("physical_qubits", "", "qubits", req.physical_qubits, None, None, None, None, req.qubit_rule),
+        ("required_suppression_factor", "", "ratio",
+         *ends(req.required_suppression_interval, req.required_suppression), None, None,
+         "with today's prefactor" + ("" if req.required_suppression_interval else f"; {POINT_VALUE}")),
+        ("suppression_factor_today_fitted", "joint", "ratio", *ends(td.suppression_fitted), None, None,
+         "fitted at joint factor 1"),
+        ("suppression_factor_today_model", "", "ratio", *ends(model_lam, td.suppression_model),
+         None, None, "response model"),
+        ("today_logical_error_per_cycle", "", "per cycle",
+         *ends(td.logical_error_per_cycle_interval, td.logical_error_per_cycle), None, None,
+         f"response model at distance {req.distance}"),
+        ("today_distance", "", "", *ends(td.distance_interval, td.distance), td.distance is not None,
+         None, td.note),
+        ("today_physical_qubits", "", "qubits", td.physical_qubits, None, None, td.within_max_qubits,
+         None, f"within the budget of {td.max_qubits} qubits" if td.within_max_qubits else ""),
+    ]
+
+
+def _lever_rows(req: Requirements) -> list[Row]:
+    rows: list[Row] = []
+    for a in (req.joint, *req.components):
+        rows.append(("factor_needed", a.lever, "x today's error", *ends(a.factor_interval, a.factor),
+                     a.reachable, bool(a.extrapolation),
+                     "; ".join(x for x in (lever_note(a), *a.extrapolation) if x)))
+        rows.append(("suppression_factor_reached", a.lever, "ratio", *ends(a.suppression_interval, a.suppression),
+                     a.reachable, bool(a.extrapolation),
+                     "" if a.reachable else f"with {a.lever} perfect, the most it gives alone"))
+    return rows
+
+
+def _mix_rows(mix: MixAnswer) -> list[Row]:
+    rows: list[Row] = []
+    for c, s in mix.scales.items():
+        extrapolated = any(x.startswith(f"{c} ") for x in mix.extrapolation)
+        h, h_iv = halvings(mix.scale_intervals.get(c), s)
+        rows.append(("cheapest_mix_factor", c, "x today's error", *ends(mix.scale_intervals.get(c), s),
+                     mix.reachable, extrapolated, ""))
+        rows.append(("cheapest_mix_halvings", c, "halvings (log2 of 1/factor)", *ends(h_iv, h),
+                     mix.reachable, extrapolated, ""))
+        rows.append(("cheapest_mix_cost_share", c, "fraction of the cost",
+                     *ends(mix.cost_share_intervals.get(c), mix.cost_shares.get(c, 0.0)),
+                     mix.reachable, extrapolated, ""))
+    whole = bool(mix.extrapolation)
+    rows.append(("cheapest_mix_cost", "", "cost-weighted halvings", *ends(mix.cost_interval, mix.cost),
+                 mix.reachable, whole, mix.note))
+    rows.append(("cheapest_mix_suppression_factor", "", "ratio", *ends(mix.suppression_interval, mix.suppression),
+                 mix.reachable, whole, ""))
+    rows.append(("cheapest_mix_logical_error_per_cycle", "", "per cycle", mix.logical_error_per_cycle, None,
+                 None, mix.reachable, whole, "the goal: the mix is solved to meet it"))
+    return rows
+
+
+def requirements_rows(req: Requirements, *, lambda_today_model: Interval | None = None) -> list[Row]:
+    """Long format: one row per quantity (and lever), columns :data:`REQUIREMENTS_COLUMNS`;
+    ``low``/``high`` are the bootstrap (model answers) or likelihood-ratio (fitted Lambda) ends,
+    empty for inputs and for model values without an interval."""
+    return [*_goal_rows(req, lambda_today_model), *_lever_rows(req), *_mix_rows(req.mix)]
+
+
+def requirements_csv(req: Requirements, *, lambda_today_model: Interval | None = None) -> Table:
+    """requirements.csv; distances and qubits are written as integers ('35', not '35.0')."""
+    rows = requirements_rows(req, lambda_today_model=lambda_today_model)
+    return Table(key="requirements_csv", title="requirements", headers=REQUIREMENTS_COLUMNS, rows=rows,
+                 integer_rows=[r[0] in INTEGER_COLUMNS for r in rows])
+
+
+# ---------------------------------------------------------------------------------------------
+# roadmap, sensitivity, verify
+
+
+def roadmap_columns(rm: Roadmap) -> tuple[str, ...]:
+    """Steps of the roadmap: best values and their bootstrap ends (``eps_low_d<d>``,
+    ``eps_high_d<d>``), empty ends without replica models."""
+    return ("date", "years", *(f"scale_{c}" for c in COMPONENTS), "suppression_factor",
+            "suppression_factor_low", "suppression_factor_high",
+            *(f"{k}{d}" for d in rm.candidate_distances for k in ("eps_d", "eps_low_d", "eps_high_d")),
+            "distance", "physical_qubits", "extrapolation")
+
+
+def roadmap_rows(rm: Roadmap) -> list[Row]:
+    return [(s.date.isoformat(), s.years, *(s.scales[c] for c in COMPONENTS),
+             *ends(s.suppression_interval, s.suppression),
+             *(x for d in rm.candidate_distances for x in ends(s.eps_intervals.get(d), s.eps[d])),
+             s.distance, s.physical_qubits, "; ".join(s.extrapolation)) for s in rm.steps]
+
+
+def roadmap_date_rows(rm: Roadmap) -> list[Row]:
+    iso = lambda d: d.isoformat() if d else None  # noqa: E731
+    return [(e.what, iso(e.date), iso(e.low), iso(e.high), e.fraction_reached if rm.num_scenarios else None)
+            for e in (rm.goal, *rm.milestones)]
+
+
+def roadmap_csv(rm: Roadmap) -> list[Table]:
+    """roadmap.csv (the steps) and roadmap_dates.csv (the goal and the milestones)."""
+    return [Table(key="roadmap_csv", title="roadmap", headers=roadmap_columns(rm), rows=roadmap_rows(rm)),
+            Table(key="roadmap_dates_csv", title="roadmap_dates", headers=DATES_COLUMNS,
+                  rows=roadmap_date_rows(rm))]
+
+
+def sensitivity_rows(sens: Sensitivity, *, lumped: Sequence[str] = ()) -> list[Row]:
+    return [(r.component, *(x for _, attr in SENSITIVITY_FIGURES
+                            for x in ends(r.intervals.get(attr), getattr(r, attr))),
+             r.component in lumped, r.note) for r in sens.rows]
+
+
+def sensitivity_csv(sens: Sensitivity, *, lumped: Sequence[str] = ()) -> Table:
+    return Table(key="sensitivity_csv", title="sensitivity", headers=SENSITIVITY_COLUMNS,
+                 rows=sensitivity_rows(sens, lumped=lumped))
+
+
+def verify_rows(v: Verification) -> list[Row]:
+    """One row per (operating point, quantity, distance); ``distance`` empty for Lambda."""
+    return [(r.label, r.quantity, r.distance, *ends(r.predicted), *ends(r.sampled), r.zero_errors, r.holds)
+            for r in v.rows]
+
+
+def verify_csv(v: Verification) -> Table:
+    return Table(key="verify_csv", title="verify", headers=VERIFY_COLUMNS, rows=verify_rows(v))
+
+
+def csv_files(result: Requirements | Roadmap | Sensitivity, *, lambda_today_model: Interval | None = None,
+              lumped: Sequence[str] = ()) -> list[tuple[str, Table]]:
+    """The CSV files of one stage's result, as (file name, table)."""
+    from planner.planning import Requirements, Roadmap
+
+    if isinstance(result, Requirements):
+        return [("requirements.csv", requirements_csv(result, lambda_today_model=lambda_today_model))]
+    if isinstance(result, Roadmap):
+        steps, dates = roadmap_csv(result)
+        return [("roadmap.csv", steps), ("roadmap_dates.csv", dates)]
+    return [("sensitivity.csv", sensitivity_csv(result, lumped=lumped))]
