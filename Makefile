@@ -1,5 +1,6 @@
 # make demo : set up .venv (if needed) and run the main job on the shipped demo target
-# make test : set up .venv (if needed) and run the test suite
+# make test : set up .venv (if needed) and run the test suite (all of it: what CI runs)
+# make test-fast : the everyday loop: every test that does not sample with sinter (-m "not slow")
 # make cluster-check : (root, Debian) a real single-node Slurm, the README's dask-jobqueue recipe
 #                      on it, totals checked with sinter; not part of make test
 # The distribution is named qec-budget-planner ("planner" on the package index is an unrelated
@@ -9,7 +10,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test install bench cluster-check clean
+.PHONY: demo test test-fast install bench cluster-check clean
 
 $(BIN)/python:
 	$(PY) -m venv $(VENV)
@@ -29,6 +30,9 @@ demo: $(STAMP)
 
 test: $(STAMP)
 	$(BIN)/python -m pytest -q
+
+test-fast: $(STAMP)
+	$(BIN)/python -m pytest -q -m "not slow"
 
 bench: $(STAMP)
 	$(BIN)/python bench/throughput.py

@@ -22,6 +22,8 @@ import tempfile
 import time
 from pathlib import Path
 
+import planner
+
 FOCUS = ("lambda_today", "joint_factor")
 
 
@@ -37,18 +39,15 @@ def totals(store) -> tuple[int, int, float]:
 
 
 def run_uniform(tasks, target, *, out: Path, precision: float, workers: int, console, pilot: int):
-    from planner.precision_answers import assess
-    from planner.sampling import run_sweep
-    from planner.store import SampleStore
-    from planner.sweep import StoppingRule
+    from planner.precision_answers import assess  # the targeted sweep's own criterion (not public API)
 
-    store = SampleStore(out)
+    store = planner.SampleStore(out)
     errors, cpu = pilot, 0.0
     for attempt in range(6):
-        rule = StoppingRule(max_errors=errors, max_shots=10**10)
+        rule = planner.StoppingRule(max_errors=errors, max_shots=10**10)
         c0 = cpu_seconds()
-        run_sweep(tasks, store=store, rule=rule, workers=workers, console=console, target=target,
-                  budget=f"uniform {errors}")
+        planner.run_sweep(tasks, store=store, rule=rule, workers=workers, console=console, target=target,
+                          budget=f"uniform {errors}")
         cpu += cpu_seconds() - c0
         a = assess(store.stats(), target, precision=precision, focus=FOCUS)  # the bench's check, not counted
         worst = max(x.relative_width / x.target for x in a.answers)
@@ -66,16 +65,13 @@ def overhead_vs_sinter(tasks, *, shots: int, workers: int, console) -> tuple[flo
     interleaved. CPU time rather than wall time: other jobs on the machine move it far less."""
     import sinter
 
-    from planner.sampling import run_sweep
-    from planner.store import SampleStore
-    from planner.sweep import StoppingRule
-
     planner_s, sinter_s = [], []
     for rep in range(3):
         with tempfile.TemporaryDirectory() as tmp:
             c0, t0 = cpu_seconds(), time.perf_counter()
-            run_sweep(tasks, store=SampleStore(Path(tmp)), rule=StoppingRule(max_errors=10**12, max_shots=shots),
-                      workers=workers, console=console)
+            planner.run_sweep(tasks, store=planner.SampleStore(Path(tmp)),
+                              rule=planner.StoppingRule(max_errors=10**12, max_shots=shots),
+                              workers=workers, console=console)
             planner_s.append(cpu_seconds() - c0)
             p_wall = time.perf_counter() - t0
         c0, t0 = cpu_seconds(), time.perf_counter()
@@ -100,23 +96,16 @@ def main() -> None:
 
     from rich.console import Console
 
-    from planner.config import load_target
-    from planner.fits import fit_stats
-    from planner.planning import answer_all
-    from planner.precision import run_targeted
-    from planner.store import SampleStore
-    from planner.sweep import plan_sweep
-
     console = Console(stderr=True)
-    target = load_target(args.target)
-    tasks = plan_sweep(target).tasks
+    target = planner.load_target(args.target)
+    tasks = planner.plan_sweep(target).tasks
     print(f"{target.name}: {len(tasks)} tasks; target relative 95% half-width {args.precision:g} on "
           f"Lambda today and the joint factor")
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
         console.rule("precision-targeted sweep")
         c0 = cpu_seconds()
-        summary = run_targeted(tasks, store=SampleStore(tmp / "targeted"), target=target,
+        summary = planner.run_targeted(tasks, store=planner.SampleStore(tmp / "targeted"), target=target,
                                precision=args.precision, workers=args.workers, console=console,
                                focus=FOCUS)
         cpu_t = cpu_seconds() - c0
@@ -126,7 +115,7 @@ def main() -> None:
         u_store, u_assess, cpu_u, u_errors = run_uniform(
             tasks, target, out=tmp / "uniform", precision=args.precision, workers=args.workers,
             console=Console(stderr=True, quiet=True), pilot=args.pilot_errors)
-        t_store = SampleStore(tmp / "targeted")
+        t_store = planner.SampleStore(tmp / "targeted")
         ts, te, tsec = totals(t_store)
         us, ue, usec = totals(u_store)
         print(f"uniform : {cpu_u:8.1f} CPU-s (process), {usec:8.1f} CPU-s sampling, {us:>12,} shots, "
@@ -145,8 +134,8 @@ def main() -> None:
             stats = store.stats()
             for x in assess(stats, target, precision=args.precision, focus=FOCUS).answers:
                 print(f"{name:8s}: {describe(x)}")
-            ans = answer_all(target, stats, replicas=200)
-            lam = fit_stats(stats).today().suppression
+            ans = planner.answer_all(target, stats, replicas=200)
+            lam = planner.fit_stats(stats).today().suppression
             jf = ans.requirements.joint
             got[name] = (lam, jf)
             jiv = jf.factor_interval

@@ -18,7 +18,7 @@ from planner.fits import (
     per_cycle_interval,
     weighted_line,
 )
-from planner.planning.synthetic import synthetic_stats
+from tests.helpers.synthetic import synthetic_stats
 
 W = {"gate_1q": 0.02, "gate_2q": 0.2, "readout": 0.08, "reset": 0.02, "idle": 0.1, "idle_measure": 0.05}
 

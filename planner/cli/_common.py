@@ -1,4 +1,12 @@
-"""Shared plumbing for the command modules: consoles, one-line errors, exit codes."""
+"""Shared plumbing for the command modules: consoles, one-line errors, exit codes.
+
+Which exceptions become one line on stderr and exit 2 (:func:`one_line_errors`): the library's
+:class:`~planner.errors.InputError` (its ``field`` shown as the option the user typed, through
+:data:`OPTION_OF_FIELD`), and an ``OSError`` that names a file (missing, a directory, no
+permission, a full disk, a read-only file system). Nothing else: a bare ``ValueError``,
+``KeyError`` or an ``OSError`` without a file is a bug in planner and keeps its traceback, so it
+gets reported and fixed (the library turns bad data into ``InputError`` where it reads it).
+"""
 
 from __future__ import annotations
 
@@ -68,26 +76,48 @@ def fail(message: str) -> typer.Exit:
     return typer.Exit(code=EXIT_BAD_INPUT)
 
 
-#: Library parameter names (``InputError.field``) and the options that set them.
+#: Library parameter names (``InputError.field``) and the options that set them. A field that is
+#: not here (a target key such as ``device.errors.gate_2q``) is shown as it is.
 OPTION_OF_FIELD: dict[str, str] = {
     "budget": "--budget", "workers": "--workers", "precision": "--precision", "shard": "--shard",
-    "cluster": "--cluster", "out_dir": "--out", "distance": "--distance", "qubits": "--qubits",
-    "eps_target": "--target", "suppression": "--lambda", "eps": "--eps", "rounds": "--rounds",
-    "basis": "--basis", "scales": "--scale", "max_cpu": "--max-cpu",
+    "cluster": "--cluster", "out_dir": "--out", "out": "--out", "distance": "--distance",
+    "qubits": "--qubits", "eps_target": "--target", "suppression": "--lambda", "eps": "--eps",
+    "rounds": "--rounds", "basis": "--basis", "scales": "--scale", "max_cpu": "--max-cpu",
+    "max_cpu_seconds": "--max-cpu", "save": "--save",
 }
 
 
+def error_line(exc: BaseException) -> str | None:
+    """The one-line message for an exception the command line reports as bad input, or None for
+    one that is a bug (and must keep its traceback).
+
+    >>> error_line(InputError("'fast' is not a budget", field="budget", allowed="quick, standard"))
+    "--budget: 'fast' is not a budget; allowed: quick, standard"
+    >>> import errno
+    >>> error_line(OSError(errno.EROFS, "Read-only file system", "out/x/manifest.json"))
+    'out/x/manifest.json: Read-only file system'
+    >>> error_line(ValueError("math domain error")) is None
+    True
+    """
+    if isinstance(exc, InputError):
+        return exc.describe(options=OPTION_OF_FIELD)
+    if isinstance(exc, OSError) and getattr(exc, "filename", None):
+        return f"{exc.filename}: {exc.strerror or exc}"
+    return None
+
+
 def one_line_errors(func: F) -> F:
-    """Turn :class:`InputError` (and file-system errors) into one line on stderr and exit 2."""
+    """Turn :class:`InputError` and file errors into one line on stderr and exit 2 (see the
+    module docstring for why nothing else is)."""
 
     @functools.wraps(func)
     def wrapper(*args: Any, **kwargs: Any) -> Any:
         try:
             return func(*args, **kwargs)
-        except InputError as exc:
-            raise fail(exc.describe(options=OPTION_OF_FIELD)) from None
-        except (FileNotFoundError, IsADirectoryError, NotADirectoryError, PermissionError) as exc:
-            where = getattr(exc, "filename", None) or ""
-            raise fail(f"{where}: {exc.strerror or exc}") from None
+        except (InputError, OSError) as exc:
+            line = error_line(exc)
+            if line is None:
+                raise
+            raise fail(line) from None
 
     return wrapper  # type: ignore[return-value]

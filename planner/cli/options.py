@@ -40,6 +40,7 @@ JsonOpt = Annotated[bool, typer.Option(
 
 
 def default_out_dir(target: Target) -> Path:
+    """``out/<target name>``: where a command writes when ``--out`` is not given."""
     return Path("out") / target.name
 
 
@@ -50,9 +51,16 @@ MIN_PRECISION = 1e-3
 
 
 def check_precision(precision: float | None) -> None:
-    """--precision is a relative half-width: MIN_PRECISION <= REL < 1."""
+    """--precision is a relative half-width: MIN_PRECISION <= REL < 1.
+
+    >>> check_precision(0.05)
+    >>> check_precision(2.0)
+    Traceback (most recent call last):
+    ...
+    planner.errors.InputError: precision: 2 is not allowed: give a relative 95% half-width from 0.001 to below 1 (0.05 means +-5%)
+    """
     from planner.errors import InputError
 
     if precision is not None and not MIN_PRECISION <= precision < 1:
-        raise InputError(f"--precision: {precision:g} is not allowed: give a relative 95% half-width "
-                         f"from {MIN_PRECISION:g} to below 1 (0.05 means +-5%)")
+        raise InputError(f"{precision:g} is not allowed: give a relative 95% half-width "
+                         f"from {MIN_PRECISION:g} to below 1 (0.05 means +-5%)", field="precision")

@@ -13,7 +13,7 @@ from planner.config import COMPONENTS, EXAMPLE_TOML, parse_target
 from planner.fits import CONFIDENCE
 from planner.planning import answer_all
 from planner.planning.sensitivity import FIGURES
-from planner.planning.synthetic import synthetic_stats
+from tests.helpers.synthetic import synthetic_stats
 from planner.reports import tables
 
 # synthetic truth (invented numbers): 1/Lambda = sum_c w_c s_c, prefactor 0.1

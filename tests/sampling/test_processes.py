@@ -101,6 +101,7 @@ def _wait_for(condition, *, limit_s: float = 120.0, step_s: float = 0.1) -> bool
 # 4. the out-directory lock
 
 
+@pytest.mark.slow
 def test_second_sweep_into_a_locked_out_dir_is_refused(tmp_path: Path) -> None:
     out = tmp_path / "out"
     out.mkdir()
@@ -116,6 +117,7 @@ def test_second_sweep_into_a_locked_out_dir_is_refused(tmp_path: Path) -> None:
     assert not (out / LOCK_NAME).exists()
 
 
+@pytest.mark.slow
 def test_locked_out_dir_cli_one_line_and_readers_keep_working(tmp_path: Path) -> None:
     target = _target(tmp_path)
     out = tmp_path / "out"
@@ -143,6 +145,7 @@ def test_shard_jobs_share_the_lock_but_not_with_a_full_sweep(tmp_path: Path) -> 
     assert not (tmp_path / LOCK_NAME).exists()
 
 
+@pytest.mark.slow
 def test_two_shard_jobs_into_one_dir_at_once(tmp_path: Path) -> None:
     tasks = [rep_task(d=3), rep_task(d=5)]
     rule = StoppingRule(max_errors=10**9, max_shots=2_000)
@@ -214,6 +217,7 @@ def _closed_port() -> int:
     return port
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("kind", ["silent", "closed"])
 def test_cluster_address_that_is_not_a_scheduler_exits_2_and_leaves_no_manifest(
         tmp_path: Path, silent_port: int, kind: str) -> None:
@@ -229,6 +233,7 @@ def test_cluster_address_that_is_not_a_scheduler_exits_2_and_leaves_no_manifest(
     assert not out.exists()  # nothing left behind at all
 
 
+@pytest.mark.slow
 def test_scheduler_without_workers_says_waiting_then_gives_up(monkeypatch: pytest.MonkeyPatch) -> None:
     from distributed import LocalCluster
 
@@ -242,6 +247,7 @@ def test_scheduler_without_workers_says_waiting_then_gives_up(monkeypatch: pytes
     assert "waiting for dask workers" in console.export_text()
 
 
+@pytest.mark.slow
 def test_all_workers_gone_mid_sweep_is_a_clear_error_and_chunks_are_kept(
         tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     from distributed import LocalCluster
@@ -454,6 +460,7 @@ def test_a_busy_worker_exits_when_its_parent_is_killed(tmp_path: Path) -> None:
             _stop(parent)
 
 
+@pytest.mark.slow
 def test_local_cluster_workers_carry_the_guard() -> None:
     """The worker processes of ``--cluster local:N`` load planner.orphans: they watch their
     parent and leave Ctrl-C to the sweep (no traceback from each worker)."""
@@ -469,6 +476,7 @@ def test_local_cluster_workers_carry_the_guard() -> None:
     assert sigint == signal.SIG_IGN
 
 
+@pytest.mark.slow
 def test_a_worker_paused_by_its_memory_limit_is_named_and_not_waited_on_forever(
         tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     import dask

@@ -22,9 +22,8 @@ from planner.config import (
     parse_target,
 )
 from planner.errors import InputError
-from planner.sampling import run_sweep
-from planner.store import SampleStore
-from planner.sweep import StoppingRule, check_scale_points, plan_sweep
+from planner.sweep import StoppingRule, check_scale_points
+from tests.helpers.sampled import SampleOnce, copy_out
 
 runner = CliRunner()
 
@@ -272,15 +271,12 @@ def test_run_prints_the_device_name_as_written(name: str, tmp_path: Path,
 
 
 @pytest.fixture(scope="module")
-def sampled_markup_dir(tmp_path_factory: pytest.TempPathFactory) -> Path:
+def sampled_markup_dir(tmp_path_factory: pytest.TempPathFactory, sample_once: SampleOnce) -> Path:
     """A small sampled out directory whose path contains rich markup."""
     root = tmp_path_factory.mktemp("markup")
-    out = root / "out [/] [red]x"
-    (root / "m.toml").write_text(edited(SWEEP, 'joint_scales = [1.0]\nbases = ["z"]'))
-    spec = load_target(root / "m.toml")
-    run_sweep(plan_sweep(spec).tasks, store=SampleStore(out), workers=1, target=spec,
-              rule=StoppingRule(max_errors=20, max_shots=2_000), console=Console(stderr=True, quiet=True))
-    return out
+    sampled = sample_once(edited(SWEEP, 'joint_scales = [1.0]\nbases = ["z"]'), workers=1,
+                          rule=StoppingRule(max_errors=20, max_shots=2_000), out_name="out [/] [red]x")
+    return copy_out(sampled, root / sampled.out.name)
 
 
 @pytest.mark.parametrize("command", ["fit", "status"])

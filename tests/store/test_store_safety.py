@@ -24,6 +24,7 @@ from planner.errors import InputError
 from planner.manifest import read_manifest, write_manifest, write_target_copy
 from planner.jobs.review import load_out_dir
 from planner.store import HEADER, SampleStore
+from tests.helpers.sampled import SampleOnce, copy_out
 
 runner = CliRunner()
 
@@ -328,15 +329,12 @@ def _target(root: Path, p: float, name: str = "tiny.toml") -> Path:
 
 
 @pytest.fixture(scope="module")
-def swept(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
+def swept(tmp_path_factory: pytest.TempPathFactory, sample_once: SampleOnce) -> dict[str, Path]:
     root = tmp_path_factory.mktemp("hardening")
     made = {}
     for key, p in (("mine", 0.02), ("other", 0.03)):
-        target = _target(root, p, f"{key}.toml")
-        out = root / key
-        res = runner.invoke(app, ["sweep", str(target), "--out", str(out), "--workers", "2", "--quiet"])
-        assert res.exit_code == 0, res.stderr
-        made[key], made[f"{key}_target"] = out, target
+        sampled = sample_once(TINY.format(p=p), workers=2)  # `sweep TARGET --out OUT --workers 2`
+        made[key], made[f"{key}_target"] = copy_out(sampled, root / key), sampled.target
     return made
 
 

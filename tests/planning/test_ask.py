@@ -16,7 +16,7 @@ from planner.fits import fit_stats
 from planner.planning import calculate, fit_model, requirements
 from planner.planning.ask import cheapest_mix, choose_distance, mix_cost
 from planner.planning.model import FitQuality, ResponseModel, largest_distance_within, physical_qubits
-from planner.planning.synthetic import synthetic_stats
+from tests.helpers.synthetic import synthetic_stats
 
 W = {"gate_1q": 0.02, "gate_2q": 0.2, "readout": 0.08, "reset": 0.02, "idle": 0.1, "idle_measure": 0.05}
 TARGET = parse_target(EXAMPLE_TOML)

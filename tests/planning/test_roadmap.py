@@ -12,7 +12,7 @@ from hypothesis import strategies as st
 from planner.config import COMPONENTS, EXAMPLE_TOML, parse_target
 from planner.planning import answer_all, build_roadmap, sensitivity
 from planner.planning.roadmap import RateSet, goal_years
-from planner.planning.synthetic import synthetic_stats
+from tests.helpers.synthetic import synthetic_stats
 from planner.planning.model import FitQuality, ResponseModel
 
 W = {"gate_1q": 0.02, "gate_2q": 0.2, "readout": 0.08, "reset": 0.02, "idle": 0.1, "idle_measure": 0.05}

@@ -16,15 +16,14 @@ from typing import Any
 
 import numpy as np
 import pytest
-from rich.console import Console
 
 from planner.config import COMPONENTS, EXAMPLE_TOML, load_target, parse_target
 from planner.errors import InputError
 from planner.planning import answer_all
 from planner.reports import files, html, plots, text
-from planner.sampling import run_sweep
 from planner.store import SampleStore
-from planner.sweep import StoppingRule, plan_sweep
+from planner.sweep import StoppingRule
+from tests.helpers.sampled import SampleOnce, copy_out
 
 #: small but real: 4 scale points x d = 3, 5 x two bases, 200 errors or 50k shots per task
 RULE = StoppingRule(max_errors=200, max_shots=50_000)
@@ -58,15 +57,13 @@ class Built:
 
 
 @pytest.fixture(scope="module")
-def built(tmp_path_factory: pytest.TempPathFactory) -> Built:
+def built(tmp_path_factory: pytest.TempPathFactory, sample_once: SampleOnce) -> Built:
     root = tmp_path_factory.mktemp("reports")
     path = root / "small.toml"
     path.write_text(TARGET_TOML)
     target = load_target(path)
-    out = root / "out"
+    out = copy_out(sample_once(TARGET_TOML, rule=RULE, workers=2), root / "out")
     store = SampleStore(out)
-    run_sweep(plan_sweep(target).tasks, store=store, rule=RULE, workers=2, target=target,
-              console=Console(stderr=True, quiet=True))
     stats = store.stats()
     answers = answer_all(target, stats, seed=0)
     written = files.write_all(answers, out_dir=out, target=target)

@@ -11,6 +11,7 @@ import sinter
 from typer.testing import CliRunner
 
 from planner.cli import app
+from tests.helpers.sampled import SampleOnce, copy_out
 
 TINY = """
 [device]
@@ -49,13 +50,10 @@ def _one_line_error(res) -> str:
 
 
 @pytest.fixture(scope="module")
-def swept(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Path]:
+def swept(tmp_path_factory: pytest.TempPathFactory, sample_once: SampleOnce) -> tuple[Path, Path]:
     tmp = tmp_path_factory.mktemp("swept")
-    target = _target(tmp)
-    out = tmp / "out"
-    res = runner.invoke(app, ["sweep", str(target), "--out", str(out), "--workers", "2", "--quiet"])
-    assert res.exit_code == 0, res.stderr
-    return target, out
+    sampled = sample_once(TINY.format(p=0.02), workers=2)  # `sweep TARGET --out OUT --workers 2`
+    return sampled.target, copy_out(sampled, tmp / "out")
 
 
 def test_sweep_writes_manifest_target_copy_and_status_matches_sinter(swept) -> None:
@@ -102,6 +100,7 @@ def test_changed_target_is_refused_and_samples_untouched(swept, tmp_path: Path) 
     assert _status(out)["totals"] == before
 
 
+@pytest.mark.slow
 def test_shards_then_merge_twice(tmp_path: Path) -> None:
     target = _target(tmp_path, p=0.03)
     a, b, c = tmp_path / "a", tmp_path / "b", tmp_path / "c"

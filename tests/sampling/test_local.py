@@ -48,6 +48,7 @@ def test_majority_vote_formula_values() -> None:
     assert majority_vote_failure(5, 0.05) == pytest.approx(0.00116, rel=2e-2)
 
 
+@pytest.mark.slow
 def test_local_sweep_tops_up_and_rerun_samples_nothing(tmp_path: Path) -> None:
     tasks = [rep_task(d=3), rep_task(d=5)]
     store = SampleStore(tmp_path)
@@ -73,6 +74,7 @@ def test_local_sweep_tops_up_and_rerun_samples_nothing(tmp_path: Path) -> None:
     assert len({r.chunk_id for r in rows}) == len(rows)
 
 
+@pytest.mark.slow
 def test_error_limited_task_stops_near_the_error_budget(tmp_path: Path) -> None:
     store = SampleStore(tmp_path)
     rule = StoppingRule(max_errors=200, max_shots=10**8)
@@ -85,6 +87,7 @@ def test_error_limited_task_stops_near_the_error_budget(tmp_path: Path) -> None:
     assert remaining(s, rule) == (0, 0)
 
 
+@pytest.mark.slow
 def test_shards_are_disjoint_and_cover_all_tasks(tmp_path: Path) -> None:
     tasks = [rep_task(d=3), rep_task(d=5), rep_task(d=7)]
     rule = StoppingRule(max_errors=10**9, max_shots=2_000)
@@ -135,6 +138,7 @@ def test_status_width_and_time_left() -> None:
     assert done.done and done.shots_left == 0
 
 
+@pytest.mark.slow
 def test_status_lists_unsampled_manifest_tasks(tmp_path: Path) -> None:
     from planner.fits import LIKELIHOOD_FACTOR
     from planner.manifest import Manifest

@@ -10,14 +10,12 @@ from collections.abc import Callable
 from pathlib import Path
 
 import pytest
-from rich.console import Console
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.config import EXAMPLE_TOML, load_target
-from planner.sampling import run_sweep
-from planner.store import SampleStore
-from planner.sweep import StoppingRule, plan_sweep
+from planner.config import EXAMPLE_TOML
+from planner.sweep import StoppingRule
+from tests.helpers.sampled import SampleOnce, copy_out
 
 runner = CliRunner()
 
@@ -42,7 +40,7 @@ class Places:
 
 
 @pytest.fixture(scope="module")
-def places(tmp_path_factory: pytest.TempPathFactory) -> Places:
+def places(tmp_path_factory: pytest.TempPathFactory, sample_once: SampleOnce) -> Places:
     root = tmp_path_factory.mktemp("bad")
     target = root / "small.toml"
     target.write_text(SMALL_TOML)
@@ -52,10 +50,7 @@ def places(tmp_path_factory: pytest.TempPathFactory) -> Places:
     bad_value.write_text(SMALL_TOML.replace("gate_2q = 0.005", "gate_2q = 2.0"))
     a_file = root / "a-file"
     a_file.write_text("not a directory\n")
-    sampled = root / "sampled"
-    spec = load_target(target)
-    run_sweep(plan_sweep(spec).tasks, store=SampleStore(sampled), rule=RULE, workers=2, target=spec,
-              console=Console(stderr=True, quiet=True))
+    sampled = copy_out(sample_once(SMALL_TOML, rule=RULE, workers=2), root / "sampled")
     no_samples = root / "no_samples"
     no_samples.mkdir()
     for name in ("target.toml", "manifest.json"):

@@ -155,6 +155,7 @@ def _manifest(sha: str, tasks: list[sinter.Task]) -> Manifest:
                               max_errors=10, max_shots=100)
 
 
+@pytest.mark.slow
 def test_strong_id_matches_what_sinter_reports() -> None:
     task = _task(0.05)
     stats = sinter.collect(num_workers=1, tasks=[resolved_task(task)], max_shots=10)

@@ -11,9 +11,12 @@ import sys
 import time
 from pathlib import Path
 
+import pytest
 import sinter
 
 from planner.store import SampleStore
+
+pytestmark = pytest.mark.slow  # every test here samples with sinter
 
 MAX_SHOTS = 1_500_000
 

@@ -10,6 +10,7 @@ import pytest
 from typer.testing import CliRunner
 
 from planner.cli import app
+from tests.helpers.sampled import SampleOnce, copy_out
 
 # invented numbers for a tiny test chip; 2 distances, one basis, 4 scale points
 TINY = """
@@ -50,14 +51,9 @@ runner = CliRunner()
 
 
 @pytest.fixture(scope="module")
-def out_dir(tmp_path_factory) -> Path:
+def out_dir(tmp_path_factory, sample_once: SampleOnce) -> Path:
     root = tmp_path_factory.mktemp("tiny")
-    target = root / "tiny.toml"
-    target.write_text(TINY)
-    res = runner.invoke(app, ["sweep", str(target), "--out", str(root / "out"), "--budget", "quick",
-                              "--workers", "2", "--quiet"])
-    assert res.exit_code == 0, res.output
-    return root / "out"
+    return copy_out(sample_once(TINY, budget="quick", workers=2), root / "out")
 
 
 def one_json(res) -> dict:

@@ -17,7 +17,7 @@ from planner.errors import InputError
 from planner.planning import answer_all, build_roadmap, requirements
 from planner.planning.ask import MAX_DISTANCE, choose_distance, goal_distance, required_suppression
 from planner.planning.model import FitQuality, ResponseModel, largest_distance_within, physical_qubits
-from planner.planning.synthetic import synthetic_stats
+from tests.helpers.synthetic import synthetic_stats
 from planner.reports import tables
 
 runner = CliRunner()

@@ -1,6 +1,6 @@
 """Hardening of the report files, the verify output and the cosmetics (issue 9).
 
-Most tests plan from synthetic counts (planner.planning.synthetic: binomial draws from a known
+Most tests plan from synthetic counts (tests.helpers.synthetic: binomial draws from a known
 model), so they take seconds; the CLI tests share one tiny real sweep (two distances, one basis,
 two joint points, the 'quick' budget).
 """
@@ -30,9 +30,10 @@ from planner.fits import Interval
 from planner.planning import answer_all
 from planner.planning.calculator import CalculatorAnswer
 from planner.planning.roadmap import build_roadmap, years_to_date
-from planner.planning.synthetic import shot_rate, synthetic_stats
 from planner.planning.verify import compare, operating_points, verify_distances
 from planner.reports import files, html, plots, tables, text
+from tests.helpers.sampled import SampleOnce, copy_out
+from tests.helpers.synthetic import shot_rate, synthetic_stats
 
 W = {"gate_1q": 0.02, "gate_2q": 0.2, "readout": 0.08, "reset": 0.02, "idle": 0.1, "idle_measure": 0.05}
 ROADMAP = """
@@ -401,13 +402,9 @@ joint_scales = [0.5, 1.0]
 
 
 @pytest.fixture(scope="module")
-def tiny_out(tmp_path_factory) -> Path:
+def tiny_out(tmp_path_factory, sample_once: SampleOnce) -> Path:
     root = tmp_path_factory.mktemp("tiny_reports")
-    (root / "tiny.toml").write_text(TINY)
-    res = runner.invoke(app, ["sweep", str(root / "tiny.toml"), "--out", str(root / "out"), "--budget", "quick",
-                              "--workers", "1", "--quiet"])
-    assert res.exit_code == 0, res.output
-    return root / "out"
+    return copy_out(sample_once(TINY, budget="quick", workers=1), root / "out")
 
 
 @pytest.fixture

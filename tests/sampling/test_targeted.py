@@ -131,6 +131,7 @@ def swept(tiny: tuple[Path, object]) -> tuple[Path, object, object]:
     return out, target, summary
 
 
+@pytest.mark.slow
 def test_targeted_sweep_reaches_its_precision(swept: tuple[Path, object, object]) -> None:
     out, target, summary = swept
     assert summary.met and summary.new_shots > 0 and summary.rounds >= 2
@@ -154,6 +155,7 @@ def test_targeted_sweep_reaches_its_precision(swept: tuple[Path, object, object]
     assert (out / "manifest.json").is_file() and (out / "target.toml").is_file()
 
 
+@pytest.mark.slow
 def test_resumed_targeted_sweep_samples_nothing(swept: tuple[Path, object, object]) -> None:
     out, target, _ = swept
     store = SampleStore(out)
@@ -164,6 +166,7 @@ def test_resumed_targeted_sweep_samples_nothing(swept: tuple[Path, object, objec
     assert {s.strong_id: s.shots for s in store.stats()} == before
 
 
+@pytest.mark.slow
 def test_tighter_precision_resumes_and_only_adds(swept: tuple[Path, object, object], tmp_path: Path) -> None:
     out, target, _ = swept
     # a copy, so the other tests keep their store
@@ -192,6 +195,7 @@ def test_tighter_precision_resumes_and_only_adds(swept: tuple[Path, object, obje
     assert len(untouched) < len(planned)
 
 
+@pytest.mark.slow
 def test_cpu_cap_stops_tasks_and_reports_them(tiny: tuple[Path, object], tmp_path: Path) -> None:
     _, target = tiny
     tasks = [t for t in plan_sweep(target).tasks if t.json_metadata["axis"] == "joint"]

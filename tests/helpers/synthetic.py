@@ -1,4 +1,4 @@
-"""Synthetic sample counts from a known error-budget model (for tests and offline checks).
+"""Synthetic sample counts from a known error-budget model (test-only: no sampling, known truth).
 
 Counts are binomial draws from ``eps_d = A / Lambda^((d+1)/2)`` with ``1/Lambda = sum_c w_c s_c``,
 turned into shot error rates over ``rounds = d`` cycles; they carry the same metadata key set as
@@ -19,7 +19,13 @@ from planner.config import COMPONENTS
 
 def shot_rate(eps: float, rounds: int) -> float:
     """Shot error rate after ``rounds`` cycles of per-cycle rate ``eps`` (inverse of sinter's
-    shot_error_rate_to_piece_error_rate): P = (1 - (1 - 2 eps)^r) / 2."""
+    shot_error_rate_to_piece_error_rate): P = (1 - (1 - 2 eps)^r) / 2.
+
+    >>> round(shot_rate(0.01, 3), 6)  # three cycles at 1%: an odd number of flips
+    0.029404
+    >>> import sinter; round(sinter.shot_error_rate_to_piece_error_rate(shot_rate(0.01, 3), pieces=3), 12)
+    0.01
+    """
     return (1 - (1 - 2 * eps) ** rounds) / 2
 
 

@@ -82,6 +82,7 @@ def test_chunks_grow_from_measured_time_and_respect_budgets() -> None:
     assert tp.next_chunk_shots() == 0
 
 
+@pytest.mark.slow
 def test_local_cluster_sweep_counts_exactly(tmp_path: Path) -> None:
     tasks = [rep_task(d=3), rep_task(d=5)]
     store = SampleStore(tmp_path)
@@ -107,6 +108,7 @@ def _slow_task() -> sinter.Task:
     return sinter.Task(circuit=circuit, decoder="pymatching", json_metadata=meta)
 
 
+@pytest.mark.slow
 def test_killed_worker_chunk_is_rerun_and_counted_once(tmp_path: Path) -> None:
     from distributed import Client, LocalCluster
 

@@ -6,9 +6,12 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
+import pytest
 from typer.testing import CliRunner
 
 from planner.cli import app
+
+pytestmark = pytest.mark.slow  # every test here samples with sinter
 
 TINY = """
 [device]
