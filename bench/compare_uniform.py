@@ -103,7 +103,7 @@ def main() -> None:
     from planner.config import load_target
     from planner.fits import fit_stats
     from planner.planning import answer_all
-    from planner.precision import run_targeted
+    from planner.jobs.sweep import run_targeted
     from planner.store import SampleStore
     from planner.sweep import plan_sweep
 

@@ -20,7 +20,7 @@ the per-cycle rate and the mean over bases carry it to ``y = ln eps`` at each (p
 the Jacobian of each answer with respect to every ``y`` is taken by central differences through
 the same weighted line fits and the same response-model fit (weights held at today's values,
 which makes the projection conservative). So ``V_a = sum_t S[a, t] / n_t`` with ``S`` returned
-here, the input of :func:`planner.precision_alloc.allocate`.
+here, the input of :func:`planner.sampling.allocate.allocate`.
 """
 
 from __future__ import annotations

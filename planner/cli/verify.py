@@ -23,7 +23,7 @@ def register(app: typer.Typer) -> None:
 @one_line_errors
 def verify_command(directory: DirArg, json: JsonOpt = False, workers: WorkersOpt = None,
                    budget: BudgetOpt = "quick", quiet: QuietOpt = False) -> None:
-    from planner.manifest import writable_dir
+    from planner.store import writable_dir
     from planner.planning import answer_all, load_out_dir, no_model_reason
     from planner.planning.verify import run_verification
     from planner.reports.tables import json_text, render_verify

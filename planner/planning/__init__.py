@@ -123,7 +123,7 @@ def load_out_dir(directory: str | Path, *, notify: Any = "stderr") -> OutDirSamp
     first (see :mod:`planner.store`). ``notify``: called with each notice (default: one line
     on stderr; None: quiet, the notices are on the result).
     """
-    from planner.manifest import MANIFEST
+    from planner.store import MANIFEST
     from planner.store import SampleStore, print_notice
 
     root = Path(directory)

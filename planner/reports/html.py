@@ -107,7 +107,7 @@ def device_rows(target: Target) -> list[tuple[str, Any]]:
 
 def sampling_rows(answers: Any, target: Target, out_dir: Path | None) -> list[tuple[str, Any]]:
     """The sweep grid, the budget recorded in the out directory and what was sampled."""
-    from planner.manifest import read_manifest
+    from planner.store import read_manifest
 
     sw = target.sweep
     tasks = answers.fits.tasks

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import dataclasses
 import json
-import os
 from collections.abc import Iterable, Mapping
 from pathlib import Path
 from typing import Any
@@ -18,7 +17,8 @@ import sinter
 import stim
 
 from planner.errors import InputError
-from planner.fileio import atomic_write
+from planner.store.fileio import atomic_write
+from planner.sweep import resolved_task
 
 MANIFEST = "manifest.json"
 TARGET_COPY = "target.toml"
@@ -32,33 +32,6 @@ def software_versions() -> dict[str, str]:
 
     return {"stim": stim.__version__, "sinter": sinter.__version__,
             "pymatching": pymatching.__version__}
-
-
-def detector_error_model_for(circuit: stim.Circuit) -> stim.DetectorErrorModel:
-    """The detector error model sinter's workers derive from a circuit (decomposed if possible)."""
-    try:
-        return circuit.detector_error_model(decompose_errors=True, approximate_disjoint_errors=True)
-    except ValueError:  # not graphlike: the decoder gets the undecomposed model, as in sinter
-        try:
-            return circuit.detector_error_model(approximate_disjoint_errors=True)
-        except ValueError:
-            return circuit.detector_error_model(approximate_disjoint_errors=True, flatten_loops=True)
-
-
-def resolved_task(task: sinter.Task) -> sinter.Task:
-    """The task with its detector error model filled in, so ``strong_id()`` works here.
-
-    The model is computed the way sinter's workers compute it (decomposed where possible), so
-    the strong id equals the one sinter itself would report for the same circuit.
-    """
-    if task.detector_error_model is not None:
-        return task
-    circuit = task.circuit if task.circuit is not None else stim.Circuit.from_file(task.circuit_path)
-    dem = detector_error_model_for(circuit)
-    return sinter.Task(circuit=circuit, decoder=task.decoder, detector_error_model=dem,
-                       postselection_mask=task.postselection_mask,
-                       postselected_observables_mask=task.postselected_observables_mask,
-                       json_metadata=task.json_metadata, collection_options=task.collection_options)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -232,15 +205,9 @@ def read_manifest(out_dir: Path) -> Manifest | None:
     return Manifest.from_json(doc, source=str(path), text=text)
 
 
-def _atomic_write(path: Path, data: bytes) -> None:
-    # temp file + rename: concurrent shard jobs may write the same file, readers never see half;
-    # a full disk is one InputError (exit 2) and leaves no temporary file behind
-    atomic_write(path, data)
-
-
 def write_manifest(out_dir: Path, manifest: Manifest) -> Path:
     path = Path(out_dir) / MANIFEST
-    _atomic_write(path, (json.dumps(manifest.to_json(), indent=1) + "\n").encode())
+    atomic_write(path, (json.dumps(manifest.to_json(), indent=1) + "\n").encode())
     return path
 
 
@@ -262,86 +229,6 @@ def identity_difference(old: Manifest, new: Manifest) -> str | None:
     return None
 
 
-#: what planner writes into an out directory (besides dot-files and ``*.lock``: its temporary
-#: files and locks); an existing directory holding anything else, and no manifest, is refused
-PLANNER_ENTRIES = frozenset({
-    MANIFEST, TARGET_COPY, "samples", "verify", "plots", "report.html", "fits.json",
-    "requirements.md", "requirements.csv", "roadmap.md", "roadmap.csv", "roadmap_dates.csv",
-    "sensitivity.md", "sensitivity.csv",
-})
-
-
-def check_out_dir(path: Path, *, option: str = "--out") -> None:
-    """Refuse an out directory planner must not write into (InputError, one line): a file-system
-    root, the current directory (an empty ``--out``, or a target file named like ``...toml``),
-    or an existing directory holding files planner did not write. A planner out directory
-    (one with ``manifest.json``), an empty one, or one holding only planner's own files is fine.
-    """
-    path = Path(path)
-    if (path / MANIFEST).is_file():
-        return  # a planner out directory: resuming or adding to it is what it is for
-    resolved = path.resolve()
-    if resolved == Path(resolved.anchor):
-        raise InputError(f"{path}: {option} is a file-system root; give a directory of its own "
-                         "(e.g. out/NAME)")
-    if resolved == Path.cwd().resolve() or str(path) in ("", "."):
-        raise InputError(f"{path}: {option} is the current directory (an empty --out, or a target "
-                         "file named like '...toml'?); give a directory of its own (e.g. out/NAME)")
-    if path.is_dir():
-        try:
-            names = sorted(os.listdir(path))
-        except OSError as exc:
-            raise InputError(f"{path}: cannot list the {option} directory ({exc.strerror or exc})") from None
-        foreign = [n for n in names
-                   if n not in PLANNER_ENTRIES and not n.startswith(".") and not n.endswith(".lock")]
-        if foreign:
-            more = f" and {len(foreign) - 1} more" if len(foreign) > 1 else ""
-            raise InputError(f"{path}: {option} already holds files planner did not write "
-                             f"({foreign[0]!r}{more}); give a new or empty directory, or a planner "
-                             "out directory")
-
-
-def writable_dir(path: Path, *, option: str = "--out") -> Path:
-    """Create ``path`` if needed and check it can be written (InputError naming it otherwise).
-    Commands call it before any work or chatter, so a refusal is one line. An out directory
-    that is not planner's to write (see :func:`check_out_dir`) is refused; a directory inside a
-    planner out directory (``DIR/verify``) only has to be writable."""
-    if path.exists() and not path.is_dir():
-        raise InputError(f"{path}: {option} exists and is not a directory")
-    if not (path.parent / MANIFEST).is_file():
-        check_out_dir(path, option=option)
-    try:
-        path.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise InputError(f"{path}: cannot create the {option} directory ({exc.strerror or exc})") from None
-    if not os.access(path, os.W_OK):
-        raise InputError(f"{path}: the {option} directory is not writable")
-    return path
-
-
-def prepare_out_dir(out_dir: Path, *, target_bytes: bytes, manifest: Manifest) -> Manifest:
-    """Create or resume ``out_dir`` for ``manifest``: refuse another identity, never mix.
-
-    Writes ``target.toml`` (byte copy) and ``manifest.json``; a resumed directory keeps its
-    tasks and records the latest budget.
-    """
-    out_dir = writable_dir(Path(out_dir))
-    old = read_manifest(out_dir)
-    if old is not None:
-        diff = identity_difference(old, manifest)
-        if diff is None and old.strong_ids != manifest.strong_ids:
-            diff = (f"the sweep's tasks differ ({len(manifest.strong_ids - old.strong_ids)} new, "
-                    f"{len(old.strong_ids - manifest.strong_ids)} gone)")
-        if diff is not None:
-            raise InputError(f"{out_dir}: holds samples of another sweep: {diff}; use another "
-                             f"--out or delete {out_dir}")
-    # the device and sweep are unchanged (goal, costs or roadmap edited): keep the samples and
-    # take the new target copy, so the query commands answer for the edited goal
-    write_target_copy(out_dir, target_bytes, replace=old is not None)
-    write_manifest(out_dir, manifest)
-    return manifest
-
-
 def combine_manifests(named: list[tuple[str, Manifest]]) -> Manifest:
     """One manifest for samples merged from several directories (``(where, manifest)`` pairs).
 
@@ -359,15 +246,3 @@ def combine_manifests(named: list[tuple[str, Manifest]]) -> Manifest:
         for e in m.tasks:
             entries.setdefault(e.strong_id, e)
     return dataclasses.replace(first, tasks=tuple(entries.values()))
-
-
-def write_target_copy(out_dir: Path, target_bytes: bytes, *, replace: bool = False) -> None:
-    """Write ``DIR/target.toml``; an existing copy with other bytes is refused unless ``replace``
-    (the caller has checked that the samples' identity is unchanged)."""
-    copy = Path(out_dir) / TARGET_COPY
-    if copy.exists() and not replace:
-        if copy.read_bytes() != target_bytes:
-            raise InputError(f"{copy}: differs from the target being written; use another --out "
-                             f"or delete {out_dir}")
-        return
-    _atomic_write(copy, target_bytes)
