@@ -28,6 +28,7 @@ if TYPE_CHECKING:
 _ADDRESS = re.compile(r"^(?:(?P<scheme>[a-z]+)://)?(?P<host>\[[^\]]*\]|[A-Za-z0-9_.\-]+)"
                       r":(?P<port>\d+)$")
 _SCHEMES = ("tcp", "tls", "ucx", "ws", "wss")
+_ALLOWED = "local:N or a scheduler address, e.g. --cluster local:4, --cluster tcp://host:8786"
 
 #: environment variables that tune the cluster engine (seconds / a logging level name)
 CONNECT_TIMEOUT_ENV = "PLANNER_CLUSTER_TIMEOUT"
@@ -39,7 +40,12 @@ NOTE_EVERY_S = 10.0  # how often "waiting for workers" is repeated while waiting
 
 
 class ClusterError(InputError):
-    """The cluster cannot do the job (unreachable, not a scheduler, no workers): one line, exit 2."""
+    """The cluster cannot do the job (unreachable, not a scheduler, no workers): one line, exit 2.
+    Its field is ``cluster``."""
+
+    def __init__(self, problem: str, *, field: str | None = "cluster", allowed: str | None = None,
+                 source: str | None = None) -> None:
+        super().__init__(problem, field=field, allowed=allowed, source=source)
 
 
 def _env_seconds(name: str, default: float) -> float:
@@ -97,25 +103,27 @@ def parse_cluster(text: str) -> ClusterSpec:
     if text.startswith("local"):
         m = re.fullmatch(r"local:(\d{1,12})", text)
         if not m or int(m[1]) < 1:
-            raise InputError(f"--cluster: {text!r}: use local:N with N >= 1 worker processes")
-        return ClusterSpec(local_workers=check_workers(int(m[1]), option="--cluster local:N"))
+            raise InputError(f"{text!r}: use local:N with N >= 1 worker processes", field="cluster",
+                             allowed=_ALLOWED)
+        return ClusterSpec(local_workers=check_workers(int(m[1]), prefix="--cluster local:N"))
     m = _ADDRESS.match(text)
     if not m:
-        raise InputError(f"--cluster: {text[:80]!r} is neither local:N nor a scheduler address "
-                         "like tcp://host:8786")
+        raise InputError(f"{text[:80]!r} is neither local:N nor a scheduler address like "
+                         "tcp://host:8786", field="cluster", allowed=_ALLOWED)
     if m["scheme"] is not None and m["scheme"] not in _SCHEMES:
-        raise InputError(f"--cluster: {text[:80]!r}: the scheme {m['scheme']}:// is not a dask "
-                         f"protocol ({', '.join(_SCHEMES)})")
+        raise InputError(f"{text[:80]!r}: the scheme {m['scheme']}:// is not a dask protocol "
+                         f"({', '.join(_SCHEMES)})", field="cluster", allowed=_ALLOWED)
     host = m["host"]
     if host.startswith("["):
         try:
             ipaddress.IPv6Address(host[1:-1])
         except ValueError:
-            raise InputError(f"--cluster: {text[:80]!r}: {host} is not an IPv6 address in brackets "
-                             "(e.g. tcp://[::1]:8786)") from None
+            raise InputError(f"{text[:80]!r}: {host} is not an IPv6 address in brackets "
+                             "(e.g. tcp://[::1]:8786)", field="cluster", allowed=_ALLOWED) from None
     port = int(m["port"])
     if not 1 <= port <= 65535:
-        raise InputError(f"--cluster: {text[:80]!r}: port {port} is not allowed (1 ... 65535)")
+        raise InputError(f"{text[:80]!r}: port {port} is not allowed (1 ... 65535)", field="cluster",
+                         allowed=_ALLOWED)
     return ClusterSpec(address=text)
 
 
@@ -133,7 +141,7 @@ def _probe_scheduler(address: str, timeout: float) -> None:
         try:  # a plain TCP connection first: "nothing listens" and "wrong listener" differ
             socket.create_connection((m["host"].strip("[]"), int(m["port"])), timeout=timeout).close()
         except OSError as exc:
-            raise ClusterError(f"--cluster: cannot reach a dask scheduler at {address} "
+            raise ClusterError(f"cannot reach a dask scheduler at {address} "
                                f"({exc.strerror or exc}); check that it runs and the address") from None
 
     from distributed.security import Security
@@ -151,17 +159,17 @@ def _probe_scheduler(address: str, timeout: float) -> None:
     try:
         answer = asyncio.run(asyncio.wait_for(ask(), timeout))
     except (TimeoutError, asyncio.TimeoutError):
-        raise ClusterError(f"--cluster: {address} accepted a connection but no dask scheduler "
+        raise ClusterError(f"{address} accepted a connection but no dask scheduler "
                            f"answered within {timeout:g} s; check the host and the port (the "
                            f"scheduler's, usually 8786; {CONNECT_TIMEOUT_ENV} sets the wait)") from None
     except (OSError, ValueError) as exc:
-        raise ClusterError(f"--cluster: cannot reach a dask scheduler at {address} ({exc}); "
+        raise ClusterError(f"cannot reach a dask scheduler at {address} ({exc}); "
                            "check that it runs and the address") from None
     except Exception as exc:  # noqa: BLE001 - whatever a stranger on that port sends back
-        raise ClusterError(f"--cluster: {address} is not a dask scheduler (it answered "
+        raise ClusterError(f"{address} is not a dask scheduler (it answered "
                            f"{type(exc).__name__}); check the host and the port") from None
     if not isinstance(answer, dict) or answer.get("type") != "Scheduler":
-        raise ClusterError(f"--cluster: {address} answered, but not as a dask scheduler; check "
+        raise ClusterError(f"{address} answered, but not as a dask scheduler; check "
                            "the port (the scheduler's, usually 8786, not the dashboard's)")
 
 
@@ -224,7 +232,7 @@ class WorkerWatch:
         try:
             count = self.count()
         except Exception as exc:  # noqa: BLE001 - a lost scheduler surfaces here
-            raise ClusterError(f"--cluster: lost the dask scheduler at {self.where} "
+            raise ClusterError(f"lost the dask scheduler at {self.where} "
                                f"({type(exc).__name__}); finished chunks are saved: run the same "
                                "command again when it is back") from None
         self.running = count.running
@@ -237,7 +245,7 @@ class WorkerWatch:
             self._since = now
         waited = now - self._since
         if waited >= self.timeout:
-            raise ClusterError(f"--cluster: no dask worker has been running for {waited:.0f} s at "
+            raise ClusterError(f"no dask worker has been running for {waited:.0f} s at "
                                f"{self.where} ({count.describe()}); finished chunks are saved: start "
                                "workers (or give them more memory) and run the same command again "
                                f"({WORKER_TIMEOUT_ENV} sets the wait)")
@@ -281,7 +289,7 @@ def connect(spec: ClusterSpec, console: Console) -> Iterator[Any]:
         try:
             client = Client(spec.address, timeout=f"{timeout}s")
         except (OSError, TimeoutError) as exc:
-            raise ClusterError(f"--cluster: cannot reach a dask scheduler at {spec.address} "
+            raise ClusterError(f"cannot reach a dask scheduler at {spec.address} "
                                f"({exc})") from None
         try:
             watch = WorkerWatch(client, console, timeout=wait, where=rich.markup.escape(spec.address))

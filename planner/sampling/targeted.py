@@ -170,7 +170,7 @@ def check_precision_args(precision: float, workers: int | None, max_cpu: float, 
     """
     if not (isinstance(precision, int | float) and 0 < precision < 1):
         raise InputError(f"{precision!r} is not allowed", field="precision",
-                         allowed="a relative half-width 0 < REL < 1 (e.g. 0.05 for +-5%; --precision REL)")
+                         allowed="a relative half-width 0 < REL < 1, e.g. --precision 0.05 for +-5%")
     check_workers(workers)
     if not max_cpu > 0:
         raise InputError(f"{max_cpu!r} is not allowed", field="max_cpu_seconds_per_task", allowed="> 0")
@@ -255,16 +255,18 @@ class _Rounds:
             self.console.print(f"[yellow]{self.notes[-1]}[/]")
             return None
         spent = sum(s.seconds for s in stats_now)
-        cautious = self.planned_rounds == 0 and alloc.cpu_seconds > 2 * spent
+        return self._round_items(alloc, cols, cautious=self.planned_rounds == 0 and alloc.cpu_seconds > 2 * spent)
+
+    def _round_items(self, alloc: Allocation, cols: Sequence[int], *, cautious: bool) -> list[WorkItem]:
+        """The plan's shots as work items (a cautious first plan samples a fraction of them)."""
         fraction = CAUTIOUS_FRACTION if cautious else 1.0
         items = [WorkItem(task=self.setup.tasks[cols[j]], strong_id=self.setup.ids[cols[j]],
                           shots_left=max(1, math.ceil(fraction * x)), errors_left=NO_ERROR_LIMIT)
                  for j, x in enumerate(alloc.extra_shots) if x > 0]
         self.planned_rounds += 1
+        unmet = "" if alloc.met else f"; {len(alloc.unmet)} answer(s) cannot reach the target within the caps"
         self.console.print(f"round {self.rounds + 1}: {sum(it.shots_left for it in items):,} shots on "
-                           f"{len(items)} tasks, about {fraction * alloc.cpu_seconds:.1f} CPU-s"
-                           + ("" if alloc.met else f"; {len(alloc.unmet)} answer(s) cannot reach "
-                              "the target within the caps"))
+                           f"{len(items)} tasks, about {fraction * alloc.cpu_seconds:.1f} CPU-s{unmet}")
         return sorted(items, key=lambda it: -it.size)
 
     def run(self, writer: Any) -> None:

@@ -51,7 +51,8 @@ def parse_shard(text: str) -> tuple[int, int]:
     """
     m = re.fullmatch(r"\s*(\d+)\s*/\s*(\d+)\s*", text)
     if not m or not (1 <= int(m[1]) <= int(m[2])):
-        raise InputError(f"--shard: {text!r} is not K/N with 1 <= K <= N (e.g. 1/4 ... 4/4)")
+        raise InputError(f"{text!r} is not K/N with 1 <= K <= N", field="shard",
+                         allowed="K/N, e.g. --shard 1/4 ... --shard 4/4")
     return int(m[1]), int(m[2])
 
 
@@ -108,8 +109,9 @@ def max_workers() -> int:
     return min(MAX_WORKERS, WORKERS_PER_CORE * (os.cpu_count() or 1))
 
 
-def check_workers(workers: int | None, *, option: str = "--workers") -> int | None:
-    """``workers`` if a machine can hold that many processes, else an InputError naming ``option``.
+def check_workers(workers: int | None, *, prefix: str | None = None) -> int | None:
+    """``workers`` if a machine can hold that many processes, else an InputError with field
+    ``workers`` (``prefix``: the message names that instead, e.g. a cluster's ``local:N``).
 
     >>> check_workers(None), check_workers(1)
     (None, 1)
@@ -117,9 +119,15 @@ def check_workers(workers: int | None, *, option: str = "--workers") -> int | No
     if workers is None:
         return None
     if workers < 1:
-        raise InputError(f"{option}: {workers} is not allowed (>= 1)")
+        raise _workers_error(prefix, f"{workers} is not allowed", allowed="a count >= 1 (e.g. --workers 4)")
     if workers > max_workers():
-        raise InputError(f"{option}: {workers} worker processes is more than this machine can run "
-                         f"(at most {max_workers()}: {WORKERS_PER_CORE} per core, "
-                         f"{os.cpu_count() or 1} cores here)")
+        raise _workers_error(prefix, f"{workers} worker processes is more than this machine can run "
+                             f"(at most {max_workers()}: {WORKERS_PER_CORE} per core, "
+                             f"{os.cpu_count() or 1} cores here)")
     return workers
+
+
+def _workers_error(prefix: str | None, problem: str, allowed: str | None = None) -> InputError:
+    if prefix is not None:
+        return InputError(f"{prefix}: {problem}", allowed=allowed)
+    return InputError(problem, field="workers", allowed=allowed)
