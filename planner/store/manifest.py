@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import dataclasses
 import json
+import sys
 from collections.abc import Iterable, Mapping
 from pathlib import Path
 from typing import Any
@@ -69,15 +70,16 @@ class Manifest:
                    max_errors=max_errors, max_shots=max_shots, sample_sha256=sample_sha256)
 
     def to_json(self) -> dict[str, Any]:
-        import planner
-
+        # the package is imported before any of its modules: read its version without an import
+        # (planner/__init__ re-exports the store; importing it here would be a cycle)
+        version = getattr(sys.modules.get("planner"), "__version__", "unknown")
         return {
             "format": FORMAT,
             "target_sha256": self.target_sha256,
             "sample_sha256": self.sample_sha256,
             "target_name": self.target_name,
             "versions": dict(self.versions),
-            "planner_version": planner.__version__,
+            "planner_version": version,
             "budget": {"name": self.budget, "max_errors": self.max_errors, "max_shots": self.max_shots},
             "tasks": [dataclasses.asdict(e) for e in self.tasks],
         }
@@ -86,52 +88,64 @@ class Manifest:
     def from_json(cls, doc: Mapping[str, Any], *, source: str, text: str = "") -> Manifest:
         """The manifest in ``doc`` (parsed JSON); InputError naming ``source`` (and, given the
         file's ``text``, the line) for a missing field or one of the wrong type."""
-
-        def bad(key: str, allowed: str) -> InputError:
-            line = f":{_line_of(text, chr(34) + key + chr(34))}" if text else ""
-            return InputError(f"{source}{line}: {key}: {allowed} (not a planner manifest, or edited)")
-
-        def string(d: Mapping[str, Any], key: str, default: str | None = None) -> str:
-            value = d.get(key, default)
-            if not isinstance(value, str):
-                raise bad(key, "must be a string" if key in d else "missing")
-            return value
-
-        def count(d: Mapping[str, Any], key: str) -> int | None:
-            value = d.get(key)
-            if value is not None and (isinstance(value, bool) or not isinstance(value, int) or value < 0):
-                raise bad(key, "must be a whole number >= 0 or null")
-            return value
-
         if not isinstance(doc, Mapping):
             raise InputError(f"{source}: not a planner manifest (a JSON object is expected)")
+        check = _Fields(source=source, text=text)
         versions = doc.get("versions")
         if not isinstance(versions, Mapping) or not all(isinstance(v, str) for v in versions.values()):
-            raise bad("versions", "must be an object of version strings")
+            raise check.bad("versions", "must be an object of version strings")
         budget = doc.get("budget") or {}
         if not isinstance(budget, Mapping):
-            raise bad("budget", "must be an object or null")
+            raise check.bad("budget", "must be an object or null")
         name = budget.get("name")
         if name is not None and not isinstance(name, str):
-            raise bad("name", "must be a string or null")
-        tasks = doc.get("tasks")
-        if not isinstance(tasks, list):
-            raise bad("tasks", "must be a list" if "tasks" in doc else "missing")
-        entries = []
-        for e in tasks:
-            if not isinstance(e, Mapping) or "json_metadata" not in e:
-                raise bad("tasks", "each task must be an object with strong_id, decoder, json_metadata")
-            entries.append(TaskEntry(strong_id=string(e, "strong_id"), decoder=string(e, "decoder"),
-                                     json_metadata=e["json_metadata"]))
-        return cls(target_sha256=string(doc, "target_sha256"), target_name=string(doc, "target_name", ""),
-                   versions={str(k): v for k, v in versions.items()}, tasks=tuple(entries),
-                   budget=name, max_errors=count(budget, "max_errors"),
-                   max_shots=count(budget, "max_shots"),
-                   sample_sha256=string(doc, "sample_sha256", ""))
+            raise check.bad("name", "must be a string or null")
+        return cls(target_sha256=check.string(doc, "target_sha256"),
+                   target_name=check.string(doc, "target_name", ""),
+                   versions={str(k): v for k, v in versions.items()}, tasks=check.tasks(doc),
+                   budget=name, max_errors=check.count(budget, "max_errors"),
+                   max_shots=check.count(budget, "max_shots"),
+                   sample_sha256=check.string(doc, "sample_sha256", ""))
 
     @property
     def strong_ids(self) -> set[str]:
         return {e.strong_id for e in self.tasks}
+
+
+@dataclasses.dataclass(frozen=True)
+class _Fields:
+    """Reads a manifest's fields, or says which one is wrong (file, line, field, what is allowed)."""
+
+    source: str
+    text: str = ""
+
+    def bad(self, key: str, allowed: str) -> InputError:
+        line = f":{_line_of(self.text, chr(34) + key + chr(34))}" if self.text else ""
+        return InputError(f"{self.source}{line}: {key}: {allowed} (not a planner manifest, or edited)")
+
+    def string(self, d: Mapping[str, Any], key: str, default: str | None = None) -> str:
+        value = d.get(key, default)
+        if not isinstance(value, str):
+            raise self.bad(key, "must be a string" if key in d else "missing")
+        return value
+
+    def count(self, d: Mapping[str, Any], key: str) -> int | None:
+        value = d.get(key)
+        if value is not None and (isinstance(value, bool) or not isinstance(value, int) or value < 0):
+            raise self.bad(key, "must be a whole number >= 0 or null")
+        return value
+
+    def tasks(self, doc: Mapping[str, Any]) -> tuple[TaskEntry, ...]:
+        tasks = doc.get("tasks")
+        if not isinstance(tasks, list):
+            raise self.bad("tasks", "must be a list" if "tasks" in doc else "missing")
+        entries = []
+        for e in tasks:
+            if not isinstance(e, Mapping) or "json_metadata" not in e:
+                raise self.bad("tasks", "each task must be an object with strong_id, decoder, json_metadata")
+            entries.append(TaskEntry(strong_id=self.string(e, "strong_id"), decoder=self.string(e, "decoder"),
+                                     json_metadata=e["json_metadata"]))
+        return tuple(entries)
 
 
 #: a manifest lists a few hundred tasks; anything far larger was not written by planner
