@@ -248,14 +248,20 @@ class _Rounds:
         cols = [index[sid] for sid in a.task_ids]
         alloc = allocation_for(a, [cur[t] for t in cols], costs=[costs[t] for t in cols],  # type: ignore[misc]
                                caps=[caps[t] for t in cols], min_errors=self.limits.min_errors)
-        self.capped |= {task_label(self.setup.tasks[cols[j]].json_metadata) for j in alloc.capped}
-        if alloc.total_shots == 0:
-            self.notes.append("stopped: the tasks that would still help are at their cap "
-                              f"({', '.join(sorted(self.capped)) or 'none'})")
-            self.console.print(f"[yellow]{self.notes[-1]}[/]")
+        if self._all_capped(alloc, cols):
             return None
         spent = sum(s.seconds for s in stats_now)
         return self._round_items(alloc, cols, cautious=self.planned_rounds == 0 and alloc.cpu_seconds > 2 * spent)
+
+    def _all_capped(self, alloc: Allocation, cols: Sequence[int]) -> bool:
+        """Note the tasks the caps stop; True (and say so) when the plan adds nothing."""
+        self.capped |= {task_label(self.setup.tasks[cols[j]].json_metadata) for j in alloc.capped}
+        if alloc.total_shots:
+            return False
+        self.notes.append("stopped: the tasks that would still help are at their cap "
+                          f"({', '.join(sorted(self.capped)) or 'none'})")
+        self.console.print(f"[yellow]{self.notes[-1]}[/]")
+        return True
 
     def _round_items(self, alloc: Allocation, cols: Sequence[int], *, cautious: bool) -> list[WorkItem]:
         """The plan's shots as work items (a cautious first plan samples a fraction of them)."""
