@@ -63,7 +63,7 @@ def test_scaled_circuit_differs_and_rule_from_budget(target):
 
 
 def test_bad_budget_and_impossible_scale(target):
-    with pytest.raises(InputError, match="--budget"):
+    with pytest.raises(InputError, match="budget"):
         plan_sweep(target, budget="weekend")
     with pytest.raises(InputError, match="invalid noise model"):
         tasks_for_scales(target, {"readout": 100.0}, distances=[3], label="x")
