@@ -116,7 +116,7 @@ def sweep_job(target: Target, *, out_dir: Path, choice: SamplingChoice,
               console: Console) -> SweepSummary | TargetedSummary:
     """The ``planner sweep`` job: plan the target's grid and sample it into ``out_dir``."""
     if out_dir.exists() and not out_dir.is_dir():
-        raise InputError(f"{out_dir}: --out exists and is not a directory")
+        raise InputError("exists and is not a directory", field="out_dir", source=str(out_dir))
     plan = plan_sweep(target, budget=choice.budget or "quick")
     # the samplers say what they sample once the out directory has been checked
     return sample(plan, target=target, out_dir=out_dir, choice=choice, console=console)

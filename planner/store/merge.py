@@ -109,7 +109,7 @@ def merge_directories(sources: Sequence[Path], out: Path) -> DirectoryMerge:
     out = Path(out)
     named, stores, target_bytes = _source_stores(sources)
     if out.exists() and not out.is_dir():
-        raise InputError(f"{out}: --out exists and is not a directory")
+        raise InputError("exists and is not a directory", field="out_dir", source=str(out))
     check_out_dir(out)
     existing = read_manifest(out) if out.is_dir() else None
     if existing is not None:

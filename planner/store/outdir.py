@@ -38,51 +38,62 @@ PLANNER_ENTRIES = frozenset({
 })
 
 
-def check_out_dir(path: Path, *, option: str = "--out") -> None:
-    """Refuse an out directory planner must not write into (InputError, one line): a file-system
-    root, the current directory (an empty ``--out``, or a target file named like ``...toml``),
-    or an existing directory holding files planner did not write. A planner out directory
-    (one with ``manifest.json``), an empty one, or one holding only planner's own files is fine.
+#: what an out directory should be instead of a refused one
+_OWN_DIR = "a directory of its own (e.g. out/NAME)"
+
+
+def check_out_dir(path: Path, *, field: str = "out_dir", option: str | None = None) -> None:
+    """Refuse an out directory planner must not write into (InputError naming ``field``, with the
+    path as its source): a file-system root, the current directory (an empty path, or a target
+    file named like ``...toml``), or an existing directory holding files planner did not write.
+    A planner out directory (one with ``manifest.json``), an empty one, or one holding only
+    planner's own files is fine. ``option``: an older name for ``field``.
     """
     path = Path(path)
+    field = option or field
     if (path / MANIFEST).is_file():
         return  # a planner out directory: resuming or adding to it is what it is for
     resolved = path.resolve()
     if resolved == Path(resolved.anchor):
-        raise InputError(f"{path}: {option} is a file-system root; give a directory of its own "
-                         "(e.g. out/NAME)")
+        raise InputError("is a file-system root", field=field, source=str(path), allowed=_OWN_DIR)
     if resolved == Path.cwd().resolve() or str(path) in ("", "."):
-        raise InputError(f"{path}: {option} is the current directory (an empty --out, or a target "
-                         "file named like '...toml'?); give a directory of its own (e.g. out/NAME)")
+        raise InputError("is the current directory (empty, or a target file named like '...toml'?)",
+                         field=field, source=str(path), allowed=_OWN_DIR)
     if path.is_dir():
-        try:
-            names = sorted(os.listdir(path))
-        except OSError as exc:
-            raise InputError(f"{path}: cannot list the {option} directory ({exc.strerror or exc})") from None
-        foreign = [n for n in names
-                   if n not in PLANNER_ENTRIES and not n.startswith(".") and not n.endswith(".lock")]
-        if foreign:
-            more = f" and {len(foreign) - 1} more" if len(foreign) > 1 else ""
-            raise InputError(f"{path}: {option} already holds files planner did not write "
-                             f"({foreign[0]!r}{more}); give a new or empty directory, or a planner "
-                             "out directory")
+        _refuse_foreign(path, field)
 
 
-def writable_dir(path: Path, *, option: str = "--out") -> Path:
-    """Create ``path`` if needed and check it can be written (InputError naming it otherwise).
-    Commands call it before any work or chatter, so a refusal is one line. An out directory
-    that is not planner's to write (see :func:`check_out_dir`) is refused; a directory inside a
-    planner out directory (``DIR/verify``) only has to be writable."""
+def _refuse_foreign(path: Path, field: str) -> None:
+    try:
+        names = sorted(os.listdir(path))
+    except OSError as exc:
+        raise InputError(f"cannot list the directory ({exc.strerror or exc})", field=field,
+                         source=str(path)) from None
+    foreign = [n for n in names if n not in PLANNER_ENTRIES and not n.startswith(".") and not n.endswith(".lock")]
+    if foreign:
+        more = f" and {len(foreign) - 1} more" if len(foreign) > 1 else ""
+        raise InputError(f"already holds files planner did not write ({foreign[0]!r}{more})", field=field,
+                         source=str(path), allowed="a new or empty directory, or a planner out directory")
+
+
+def writable_dir(path: Path, *, field: str = "out_dir", option: str | None = None) -> Path:
+    """Create ``path`` if needed and check it can be written (InputError naming ``field``, with
+    the path as its source, otherwise). Commands call it before any work or chatter, so a
+    refusal is one line. An out directory that is not planner's to write (see
+    :func:`check_out_dir`) is refused; a directory inside a planner out directory
+    (``DIR/verify``) only has to be writable. ``option``: an older name for ``field``."""
+    field = option or field
     if path.exists() and not path.is_dir():
-        raise InputError(f"{path}: {option} exists and is not a directory")
+        raise InputError("exists and is not a directory", field=field, source=str(path))
     if not (path.parent / MANIFEST).is_file():
-        check_out_dir(path, option=option)
+        check_out_dir(path, field=field)
     try:
         path.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
-        raise InputError(f"{path}: cannot create the {option} directory ({exc.strerror or exc})") from None
+        raise InputError(f"cannot create the directory ({exc.strerror or exc})", field=field,
+                         source=str(path)) from None
     if not os.access(path, os.W_OK):
-        raise InputError(f"{path}: the {option} directory is not writable")
+        raise InputError("the directory is not writable", field=field, source=str(path))
     return path
 
 
