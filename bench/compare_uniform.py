@@ -39,7 +39,7 @@ def totals(store) -> tuple[int, int, float]:
 
 
 def run_uniform(tasks, target, *, out: Path, precision: float, workers: int, console, pilot: int):
-    from planner.precision_answers import assess  # the targeted sweep's own criterion (not public API)
+    from planner.planning.precision import assess  # the targeted sweep's own criterion (not public API)
 
     store = planner.SampleStore(out)
     errors, cpu = pilot, 0.0
@@ -127,7 +127,7 @@ def main() -> None:
               f"{us / ts:.2f} (shots)")
         # the criterion both sweeps met (delta-method statistical widths), then the answers as a
         # user sees them: Lambda with the fit's interval, the joint factor with its bootstrap
-        from planner.precision_answers import assess, describe
+        from planner.planning.precision import assess, describe
 
         got = {}
         for name, store in (("uniform", u_store), ("targeted", t_store)):

@@ -116,7 +116,7 @@ def main() -> None:
 
         warm = LocalCluster(n_workers=args.workers, threads_per_worker=1, processes=True,
                             dashboard_address=":0", silence_logs=logging.CRITICAL,
-                            preload=["planner.orphans"])
+                            preload=["planner.sampling.orphans"])
         # one throw-away run, so worker imports and decoder start-up are not in round 1
         run_planner(tasks, workers=args.workers, shots=min(args.shots, 20_000),
                     cluster=warm.scheduler_address)

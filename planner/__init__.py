@@ -50,7 +50,7 @@ _HOME: dict[str, str] = {
     "BUDGETS": "planner.sweep", "StoppingRule": "planner.sweep", "SweepPlan": "planner.sweep",
     "plan_sweep": "planner.sweep",
     "SweepSummary": "planner.sampling", "run_sweep": "planner.sampling",
-    "TargetedSummary": "planner.precision", "run_targeted": "planner.precision",
+    "TargetedSummary": "planner.sampling", "run_targeted": "planner.jobs.sweep",
     "SampleStore": "planner.store",
     "OutDirSamples": "planner.jobs.review", "load_out_dir": "planner.jobs.review",
     # fits

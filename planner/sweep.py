@@ -19,6 +19,7 @@ from collections.abc import Mapping, Sequence
 from typing import Any
 
 import sinter
+import stim
 
 from planner.circuits import build_memory_circuit
 from planner.config import COMPONENTS, Target
@@ -68,6 +69,9 @@ class ScalePoint:
 
 @dataclasses.dataclass(frozen=True)
 class SweepPlan:
+    """A target's grid as sinter tasks (largest circuits first), the stopping rule of the budget,
+    the scale points sampled and the budget's name."""
+
     tasks: tuple[sinter.Task, ...]
     rule: StoppingRule
     points: tuple[ScalePoint, ...]
@@ -172,3 +176,63 @@ def plan_sweep(target: Target, budget: str = "quick") -> SweepPlan:
     # largest circuits first: they are the slowest, so starting them early shortens the wall time
     tasks.sort(key=lambda t: -t.json_metadata["d"] * t.json_metadata["rounds"])
     return SweepPlan(tasks=tuple(tasks), rule=rule, points=points, budget=budget)
+
+
+# ---------------------------------------------------------------------------------------------
+# task identity and labels
+
+
+def task_label(meta: Any, *, with_code: bool = False) -> str:
+    """Short text naming a task: the scale axis times its factor, the distance, the basis (the
+    one form used by ``planner status``, the precision messages and the reports); ``with_code``
+    puts the code first. Metadata that is not a mapping is shown as it is.
+
+    >>> task_label({"axis": "joint", "factor": 1.0, "d": 5, "basis": "x"})
+    'joint ×1 d=5 x'
+    >>> task_label({"code": "surface", "axis": "gate_1q", "factor": 0.3, "d": 7, "basis": "z"}, with_code=True)
+    'surface gate_1q ×0.3 d=7 z'
+    """
+    if not isinstance(meta, Mapping):
+        return str(meta)
+    factor = meta.get("factor", "?")
+    if isinstance(factor, int | float) and not isinstance(factor, bool):
+        factor = f"{float(factor) + 0.0:g}"
+    label = f"{meta.get('axis', '?')} ×{factor} d={meta.get('d', '?')} {meta.get('basis', '?')}"
+    return f"{meta.get('code', '?')} {label}" if with_code else label
+
+
+def detector_error_model_for(circuit: stim.Circuit) -> stim.DetectorErrorModel:
+    """The detector error model sinter's workers derive from a circuit (decomposed if possible)."""
+    try:
+        return circuit.detector_error_model(decompose_errors=True, approximate_disjoint_errors=True)
+    except ValueError:  # not graphlike: the decoder gets the undecomposed model, as in sinter
+        try:
+            return circuit.detector_error_model(approximate_disjoint_errors=True)
+        except ValueError:
+            return circuit.detector_error_model(approximate_disjoint_errors=True, flatten_loops=True)
+
+
+def resolved_task(task: sinter.Task) -> sinter.Task:
+    """The task with its detector error model filled in, so ``strong_id()`` works here.
+
+    The model is computed the way sinter's workers compute it (decomposed where possible), so
+    the strong id equals the one sinter itself would report for the same circuit.
+    """
+    if task.detector_error_model is not None:
+        return task
+    circuit = task.circuit if task.circuit is not None else stim.Circuit.from_file(task.circuit_path)
+    dem = detector_error_model_for(circuit)
+    return sinter.Task(circuit=circuit, decoder=task.decoder, detector_error_model=dem,
+                       postselection_mask=task.postselection_mask,
+                       postselected_observables_mask=task.postselected_observables_mask,
+                       json_metadata=task.json_metadata, collection_options=task.collection_options)
+
+
+def resolved_tasks(tasks: Sequence[sinter.Task]) -> tuple[list[sinter.Task], list[str]]:
+    """The tasks resolved (see :func:`resolved_task`) and their strong ids; two tasks with the
+    same strong id (identical circuit, decoder and metadata) are a ValueError."""
+    resolved = [resolved_task(t) for t in tasks]
+    ids = [t.strong_id() for t in resolved]
+    if len(set(ids)) != len(ids):
+        raise ValueError("two tasks have the same strong id (identical circuit, decoder and metadata)")
+    return resolved, ids

@@ -8,7 +8,7 @@ import pytest
 
 from planner.config import COMPONENTS, EXAMPLE_TOML, parse_target
 from planner.errors import InputError
-from planner.manifest import resolved_task
+from planner.sweep import resolved_task
 from planner.sweep import BUDGETS, METADATA_KEYS, ScalePoint, plan_sweep, scale_points, tasks_for_scales
 
 

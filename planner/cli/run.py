@@ -10,8 +10,15 @@ from typing import Annotated
 import typer
 
 from planner.cli._common import one_line_errors, plain, stderr_console, stdout_console
-from planner.cli.options import (BudgetOpt, OutOpt, PrecisionOpt, QuietOpt, WorkersOpt, check_precision,
-                                 default_out_dir)
+from planner.cli.options import (
+    BudgetOpt,
+    OutOpt,
+    PrecisionOpt,
+    QuietOpt,
+    WorkersOpt,
+    check_precision,
+    default_out_dir,
+)
 
 
 def register(app: typer.Typer) -> None:
@@ -29,34 +36,28 @@ def run_command(
     quiet: QuietOpt = False,
 ) -> None:
     from planner.config import load_target
-    from planner.sampling import check_workers
+    from planner.jobs.sweep import INTERRUPTED, SamplingChoice, prepare_main, sample
 
-    check_workers(workers)
+    choice = SamplingChoice.checked(budget=budget, workers=workers, precision=precision)
     spec = load_target(target)  # validate before anything heavy is imported
     check_precision(precision)
     from planner.planning import answer_all
     from planner.reports import tables
-    from planner.lock import out_dir_lock
-    from planner.manifest import writable_dir
     from planner.reports.files import write_all
-    from planner.cli.sweep import sample
     from planner.store import SampleStore
-    from planner.sweep import plan_sweep
 
     err = stderr_console(quiet=quiet)
     con = stdout_console()
     started = time.monotonic()
-    plan = plan_sweep(spec, budget=budget or "quick")
-    out_dir = writable_dir(out if out is not None else default_out_dir(spec))
-    with out_dir_lock(out_dir):  # refuse now, before any chatter, if a sweep samples there
-        pass
-    rule = f"{plan.rule.max_errors} errors or {plan.rule.max_shots:,} shots per task"
-    how = (f"precision {precision:g}" + (f", each task capped at {rule}" if budget else "")
-           if precision is not None else f"budget '{plan.budget}' ({rule})")
+    plan, out_dir = prepare_main(spec, out_dir=out if out is not None else default_out_dir(spec),
+                                 choice=choice)
     err.print(f"[bold]{plain(spec.device.name)}[/]: {len(plan.tasks)} tasks over {len(plan.points)} scale "
-              f"points, {how} -> {plain(out_dir)}")
-    sample(plan, target=spec, out_dir=out_dir, budget_given=budget is not None, precision=precision,
-           workers=workers, cluster=None, shard=None, console=err)
+              f"points, {choice.describe(plan)} -> {plain(out_dir)}")
+    try:
+        sample(plan, target=spec, out_dir=out_dir, choice=choice, console=err)
+    except KeyboardInterrupt:
+        err.print(INTERRUPTED)  # every finished chunk is already on disk
+        raise typer.Exit(code=130) from None
     store = SampleStore(out_dir)
     answers = answer_all(spec, store.stats(), seed=0)
     tables.render_fits(answers.fits, con, model=answers.model, tasks=False)

@@ -30,7 +30,7 @@ def verify_command(directory: DirArg, json: JsonOpt = False, workers: WorkersOpt
                    budget: BudgetOpt = "quick", quiet: QuietOpt = False) -> None:
     from planner.jobs.review import review
     from planner.jobs.verify import run_verification
-    from planner.manifest import writable_dir
+    from planner.store import writable_dir
     from planner.planning import no_model_reason
     from planner.reports.tables import json_text, render_verify
 

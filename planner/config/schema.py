@@ -176,6 +176,10 @@ class Roadmap(_Frozen):
 
 
 class Target(_Frozen):
+    """A whole target file, validated and frozen: the device's error budget, the goal, the sweep
+    grid, the costs of improving each component and the roadmap rates (read it with
+    :func:`planner.load_target` or :func:`planner.parse_target`)."""
+
     device: Device
     goal: Goal
     sweep: Sweep

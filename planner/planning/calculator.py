@@ -23,6 +23,9 @@ from planner.planning.model import physical_qubits
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class CalculatorAnswer:
+    """What a measured Lambda and eps per cycle at one distance imply for a goal: the smallest
+    distance reaching it, its qubits and its eps per cycle (or why it is not reachable)."""
+
     suppression: float
     eps_measured: float
     measured_distance: int

@@ -41,7 +41,7 @@ from planner.planning.ask import choose_distance, solve_lever
 from planner.planning.model import ModelData, ResponseModel, fit_response
 
 __all__ = ["DEFAULT_FOCUS", "KINDS", "WEIGHT_SHARE", "AnswerPrecision", "Assessment", "assess",
-           "check_focus", "describe", "task_label"]
+           "check_focus", "describe"]
 
 KINDS = ("lambda", "lambda_today", "weights", "joint_factor")
 DEFAULT_FOCUS = ("lambda", "weights", "joint_factor")
@@ -315,18 +315,3 @@ def describe(answer: AnswerPrecision) -> str:
     """
     return (f"{answer.name} = {answer.value:.4g} +- {100 * answer.relative_half_width:.1f}% "
             f"(target {100 * answer.target:g}%)")
-
-
-def task_label(meta: Mapping[str, Any]) -> str:
-    """Short text naming a task: the scale axis times its factor, the distance, the basis (the
-    same form in ``planner status`` and in the precision messages).
-
-    >>> task_label({"axis": "joint", "factor": 1.0, "d": 5, "basis": "x"})
-    'joint ×1 d=5 x'
-    >>> task_label({"axis": "gate_1q", "factor": 0.3, "d": 7, "basis": "z"})
-    'gate_1q ×0.3 d=7 z'
-    """
-    factor = meta.get("factor", "?")
-    if isinstance(factor, int | float) and not isinstance(factor, bool):
-        factor = f"{float(factor) + 0.0:g}"
-    return f"{meta.get('axis', '?')} ×{factor} d={meta.get('d', '?')} {meta.get('basis', '?')}"

@@ -243,6 +243,9 @@ class DatedEvent:
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class Roadmap:
+    """Lambda, eps per cycle and the smallest distance meeting the goal at each calendar step,
+    with the dates of the goal and of each Lambda milestone, at the target's improvement rates."""
+
     start: dt.date
     step: str
     eps_target: float

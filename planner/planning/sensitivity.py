@@ -61,6 +61,9 @@ class ComponentSensitivity:
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class Sensitivity:
+    """Each component's share of 1/Lambda today and what improving it alone gives, most
+    limiting first (components without their own sweep axis are marked lumped)."""
+
     suppression_today: float
     rows: tuple[ComponentSensitivity, ...]  # most limiting first
     faster_points: float

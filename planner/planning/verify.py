@@ -55,6 +55,9 @@ class VerifyRow:
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class Verification:
+    """Predicted against sampled logical error per cycle at the proposed operating points and
+    distances; ``holds`` is False when a sample falls outside the prediction."""
+
     points: tuple[OperatingPoint, ...]
     distances: tuple[int, ...]
     rows: tuple[VerifyRow, ...]

@@ -7,7 +7,7 @@ How a result becomes what a person reads::
                          csvtables.py (raw values)
                       ─> table.Table ─> table.to_markdown | table.to_csv | html.table_html
                                         | terminal.print_table
-    files.py writes the out directory's files (atomically, through planner.fileio);
+    files.py writes the out directory's files (atomically, through planner.store.fileio);
     plots.py (with plotkit.py) draws the PNGs; whatif.py saves a what-if answer;
     jsondoc.py is the one JSON-safe conversion for the files and ``--json``.
 

@@ -1,6 +1,6 @@
 """Report files under the out directory: Markdown and CSV tables, fits.json, plots, report.html.
 
-Every file is written with :func:`planner.fileio.atomic_write` (a temporary name in its own
+Every file is written with :func:`planner.store.fileio.atomic_write` (a temporary name in its own
 directory, moved into place), so a reader (or a crash) never sees half a file. A directory that
 cannot be written raises :class:`~planner.errors.InputError` naming it.
 
@@ -21,7 +21,7 @@ from typing import TYPE_CHECKING, Any
 
 from planner.config import Target
 from planner.errors import InputError
-from planner.fileio import atomic_write
+from planner.store.fileio import atomic_write
 from planner.fits import CONFIDENCE, LIKELIHOOD_FACTOR, FitReport, Interval
 from planner.reports import text
 from planner.reports.csvtables import (  # noqa: F401  (re-exported: the CSV columns users read)
@@ -87,7 +87,7 @@ def report_write_error(path: Path, exc: OSError, *, what: str = "") -> InputErro
 
 
 def write_atomic(path: Path, data: bytes | str) -> Path:
-    """Write ``data`` (text as UTF-8) to ``path`` through :func:`planner.fileio.atomic_write`,
+    """Write ``data`` (text as UTF-8) to ``path`` through :func:`planner.store.fileio.atomic_write`,
     creating its directory; the old file (if any) stays intact until the new one is complete."""
     path = Path(path)
     ensure_dir(path.parent)

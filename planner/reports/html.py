@@ -116,7 +116,7 @@ def device_rows(target: Target) -> list[Pair]:
 
 def sampling_rows(answers: Answers, target: Target, out_dir: Path | None) -> list[Pair]:
     """The sweep grid, the budget recorded in the out directory and what was sampled."""
-    from planner.manifest import read_manifest
+    from planner.store import read_manifest
 
     sw = target.sweep
     tasks = answers.fits.tasks

@@ -255,12 +255,12 @@ def test_plain_prints_user_text_as_written(text: str) -> None:
 @pytest.mark.parametrize("name", ["Chip [/]", "[red]Chip"])
 def test_run_prints_the_device_name_as_written(name: str, tmp_path: Path,
                                                monkeypatch: pytest.MonkeyPatch) -> None:
-    import planner.cli.sweep
+    import planner.jobs.sweep
 
     def no_sampling(*args: object, **kwargs: object) -> None:
         raise typer.Exit(0)  # the header line is printed; the sampling itself is not under test
 
-    monkeypatch.setattr(planner.cli.sweep, "sample", no_sampling)
+    monkeypatch.setattr(planner.jobs.sweep, "sample", no_sampling)
     path = tmp_path / "t.toml"
     path.write_text(edited('name = "example"', f'name = "{name}"'))
     result = runner.invoke(app, ["run", str(path), "--out", str(tmp_path / "o[/]")])

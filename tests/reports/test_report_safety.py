@@ -341,8 +341,8 @@ def test_every_plot_text_lies_inside_its_figure(answers, target):
 
 
 def test_task_labels_are_readable():
-    from planner.cli.status import _label
-    from planner.precision_answers import task_label
+    from planner.jobs.status import status_label as _label
+    from planner.sweep import task_label
 
     meta = {"code": "surface", "d": 5, "basis": "z", "axis": "gate_1q", "factor": 0.3}
     assert task_label(meta) == "gate_1q ×0.3 d=5 z"

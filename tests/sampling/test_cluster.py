@@ -16,9 +16,9 @@ import sinter
 import stim
 from rich.console import Console
 
-from planner.cluster import _Progress, parse_cluster, sample_chunk
+from planner.sampling.chunks import _Progress, parse_cluster, sample_chunk
 from planner.errors import InputError
-from planner.manifest import resolved_task
+from planner.sweep import resolved_task
 from planner.sampling import WorkItem, run_sweep
 from planner.store import SampleStore
 from planner.sweep import StoppingRule

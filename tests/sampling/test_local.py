@@ -12,8 +12,8 @@ import stim
 from rich.console import Console
 
 from planner.errors import InputError
-from planner.sampling import (parse_shard, remaining, run_sweep, shard_share, store_status,
-                              task_status)
+from planner.jobs.status import store_status, task_status
+from planner.sampling import parse_shard, remaining, run_sweep, shard_share
 from planner.store import SampleStore
 from planner.sweep import StoppingRule
 
@@ -141,7 +141,7 @@ def test_status_width_and_time_left() -> None:
 @pytest.mark.slow
 def test_status_lists_unsampled_manifest_tasks(tmp_path: Path) -> None:
     from planner.fits import LIKELIHOOD_FACTOR
-    from planner.manifest import Manifest
+    from planner.store import Manifest
 
     tasks = [rep_task(d=3), rep_task(d=5)]
     m = Manifest.for_sweep(target_sha256="0" * 64, target_name="t", tasks=tasks, budget=None,

@@ -23,9 +23,9 @@ from rich.console import Console
 from typer.testing import CliRunner
 
 from planner.cli import app
-from planner.cluster import ClusterError, WorkerCount, connect, dask_log_level, parse_cluster
+from planner.sampling.dask import ClusterError, WorkerCount, connect, dask_log_level, parse_cluster
 from planner.errors import InputError
-from planner.lock import LOCK_NAME, out_dir_lock
+from planner.store.lock import LOCK_NAME, out_dir_lock
 from planner.sampling import SweepProgress, WorkItem, check_workers, max_workers, run_sweep
 from planner.store import SampleStore
 from planner.sweep import StoppingRule
@@ -157,7 +157,7 @@ def test_two_shard_jobs_into_one_dir_at_once(tmp_path: Path) -> None:
 
 LOCK_HOLDER = """
 import sys, time
-from planner.lock import out_dir_lock
+from planner.store.lock import out_dir_lock
 with out_dir_lock(sys.argv[1]):
     print("locked", flush=True)
     time.sleep(600)
@@ -405,7 +405,7 @@ def test_dask_log_level_is_the_users_choice(monkeypatch: pytest.MonkeyPatch) -> 
 def test_progress_in_a_log_is_whole_lines(monkeypatch: pytest.MonkeyPatch) -> None:
     import io
 
-    import planner.sampling as sampling
+    import planner.sampling.progress as sampling
 
     monkeypatch.setattr(sampling, "LOG_PROGRESS_EVERY_S", 0.0)
     buf = io.StringIO()
@@ -429,7 +429,7 @@ def busy(token, seconds):
     time.sleep(seconds)  # a worker deep in a long batch: it would not notice its parent's death
 
 if __name__ == "__main__":
-    from planner.orphans import GuardToken
+    from planner.sampling.orphans import GuardToken
     token = GuardToken() if sys.argv[1] == "guarded" else None
     child = multiprocessing.get_context("spawn").Process(target=busy, args=(token, 600))
     child.start()

@@ -13,8 +13,10 @@ from rich.console import Console
 from planner.config import EXAMPLE_TOML, load_target
 from planner.errors import InputError
 from planner.fits import Z_SCORE
-from planner.precision import run_targeted, shot_caps, status_precision
-from planner.precision_alloc import allocate
+from planner.jobs.status import status_precision
+from planner.jobs.sweep import run_targeted
+from planner.sampling import shot_caps
+from planner.sampling.allocate import allocate
 from planner.planning.precision import assess
 from planner.store import SampleStore
 from planner.sweep import StoppingRule, plan_sweep

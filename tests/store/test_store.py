@@ -10,8 +10,8 @@ import sinter
 import stim
 
 from planner.errors import InputError
-from planner.manifest import (Manifest, combine_manifests, identity_difference, prepare_out_dir,
-                              read_manifest, resolved_task)
+from planner.store import Manifest, combine_manifests, identity_difference, prepare_out_dir, read_manifest
+from planner.sweep import resolved_task
 from planner.store import HEADER, SampleStore, merge_into, read_shard
 
 

@@ -21,7 +21,7 @@ from typer.testing import CliRunner
 
 from planner.cli import app
 from planner.errors import InputError
-from planner.manifest import read_manifest, write_manifest, write_target_copy
+from planner.store import read_manifest, write_manifest, write_target_copy
 from planner.jobs.review import load_out_dir
 from planner.store import HEADER, SampleStore
 from tests.helpers.sampled import SampleOnce, copy_out
@@ -182,7 +182,7 @@ def test_disk_full_while_creating_a_shard(tmp_path: Path, monkeypatch) -> None:
 ], ids=["manifest", "target-copy"])
 def test_disk_full_in_an_atomic_write_leaves_the_old_file_and_no_tmp(
         tmp_path: Path, monkeypatch, write: Callable) -> None:
-    from planner.manifest import Manifest
+    from planner.store import Manifest
 
     m = Manifest(target_sha256="a" * 64, target_name="t", versions={"stim": "1"}, tasks=())
     write_manifest(tmp_path, m)
@@ -444,11 +444,11 @@ def test_a_hand_edited_manifest_is_one_line_naming_file_and_line(swept, tmp_path
 
 
 def test_a_huge_manifest_is_refused_before_it_is_read(swept, tmp_path: Path, monkeypatch) -> None:
-    import planner.manifest
+    import planner.store.manifest
 
     out = _copy(swept, tmp_path)
     size = (out / "manifest.json").stat().st_size
-    monkeypatch.setattr(planner.manifest, "MAX_MANIFEST_BYTES", size - 1)  # as if it were huge
+    monkeypatch.setattr(planner.store.manifest, "MAX_MANIFEST_BYTES", size - 1)  # as if it were huge
     with pytest.raises(InputError, match=r"manifest\.json: .* bytes is too large for a planner manifest"):
         read_manifest(out)
 

@@ -32,7 +32,7 @@ from pathlib import Path
 import sinter
 
 from planner.errors import InputError
-from planner.fileio import fsync_dir, remove_quietly, write_all, write_error
+from planner.store.fileio import fsync_dir, remove_quietly, write_all, write_error
 
 HEADER = sinter.CSV_HEADER + ",chunk_id"
 HEADER_LINE = (HEADER + "\n").encode()

@@ -14,7 +14,7 @@ Rules that make the store safe to kill, copy and merge:
 - a reader sums rows by strong_id and counts each chunk id once, so a shard copied twice or
   merged twice adds nothing; in an out directory it takes only the tasks its manifest lists
   (rows of other tasks are ignored and counted);
-- the store modifies only files it created (name and header, see :mod:`planner.shardfile`):
+- the store modifies only files it created (name and header, see :mod:`planner.store.shardfile`):
   a torn last line (a writer killed inside ``write``) is cut off, and a damaged row mid-file
   is moved to ``<shard>.rejected``. Other CSV files are read as plain sinter files or ignored,
   never modified. Things worth knowing (rows ignored or set aside, files ignored) are told
@@ -25,28 +25,38 @@ from __future__ import annotations
 
 import contextlib
 import dataclasses
-import errno
-import fcntl
 import os
 import secrets
 import socket
 import sys
-import time
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Sequence
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import sinter
 
 from planner.errors import InputError
-from planner.fileio import remove_quietly, write_all, write_error
-from planner.shardfile import (HEADER, HEADER_LINE, SHARD_SUFFIX, SampleRow, damaged_notice, file_kind,
-                               is_shard_name, read_shard, repair_locked, scan_shard)
+from planner.sampling.work import new_chunk_id, sharded_name
+from planner.store.manifest import MANIFEST, Manifest, read_manifest
+from planner.store.shardfile import (
+    HEADER,
+    SHARD_SUFFIX,
+    SampleRow,
+    damaged_notice,
+    file_kind,
+    is_shard_name,
+    read_shard,
+    repair_locked,
+    scan_shard,
+)
+from planner.store.writer import ShardWriter, is_open_on, try_lock
 
-__all__ = ["HEADER", "MergeResult", "SampleRow", "SampleStore", "ShardWriter", "StoreRead",
-           "default_shard_name", "merge_into", "new_chunk_id", "print_notice", "read_shard",
-           "sharded_name"]
+if TYPE_CHECKING:
+    from planner.config import Target
 
-FSYNC_EVERY_S = 2.0
+__all__ = ["HEADER", "SampleRow", "SampleStore", "ShardWriter", "StoreRead", "default_shard_name",
+           "new_chunk_id", "print_notice", "read_shard", "sharded_name"]
+
 Notify = Callable[[str], None]
 
 
@@ -55,151 +65,11 @@ def print_notice(message: str) -> None:
     print(f"planner: note: {message}", file=sys.stderr)
 
 
-def new_chunk_id() -> str:
-    """A fresh, globally unique chunk id (128 random bits, hex).
-
-    >>> len(new_chunk_id()), new_chunk_id() != new_chunk_id()
-    (32, True)
-    """
-    return secrets.token_hex(16)
-
-
 def default_shard_name() -> str:
     """``<host>-<pid>-<random>``: unique per writer, readable in a listing."""
     host = socket.gethostname().split(".")[0] or "host"
     host = "".join(ch if ch.isalnum() and ch.isascii() or ch in "-_" else "_" for ch in host)
     return f"{host.lstrip('-_') or 'host'}-{os.getpid()}-{secrets.token_hex(3)}"
-
-
-def sharded_name(*, index: int, count: int) -> str:
-    """Shard file stem for job ``index`` of ``count`` (1-based).
-
-    >>> sharded_name(index=2, count=8)
-    'shard-2-of-8'
-    """
-    return f"shard-{index}-of-{count}"
-
-
-def _try_lock(fd: int) -> bool:
-    try:
-        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-    except OSError as exc:
-        if exc.errno in (errno.EWOULDBLOCK, errno.EAGAIN, errno.EACCES):
-            return False
-        raise
-    return True
-
-
-def _is_open_on(fd: int, path: Path) -> bool:
-    """Whether ``fd`` is still the file at ``path`` (a repair may have replaced it meanwhile)."""
-    mine = os.fstat(fd)
-    try:
-        now = os.stat(path)
-    except FileNotFoundError:
-        return False
-    return (mine.st_dev, mine.st_ino) == (now.st_dev, now.st_ino)
-
-
-class ShardWriter:
-    """Appends rows to one shard file while holding its lock. Use via :meth:`SampleStore.writer`."""
-
-    def __init__(self, path: Path, *, notify: Callable[[str], None] | None = None) -> None:
-        self.path = path
-        self.repaired_bytes = 0
-        self.set_aside_rows = 0
-        for _ in range(20):
-            fd = self._open_locked(path)
-            if fd is None:  # replaced by another process's repair between open and lock
-                continue
-            try:
-                repair = repair_locked(fd, path)
-            except BaseException:
-                os.close(fd)
-                raise
-            self.repaired_bytes += repair.removed_bytes
-            self.set_aside_rows += len(repair.set_aside)
-            if repair.notice and notify is not None:
-                notify(repair.notice)
-            if repair.replaced:  # our descriptor points at the old file: open the new one
-                os.close(fd)
-                continue
-            break
-        else:
-            raise InputError(f"{path}: keeps being replaced while opening it; is another program "
-                             "rewriting the samples?")
-        self._fd = fd
-        self._size = os.fstat(fd).st_size
-        if self._size == 0:
-            try:
-                self._write(HEADER_LINE)
-            except BaseException:
-                self.close(raise_errors=False)
-                raise
-        self._last_sync = time.monotonic()
-        self.rows_written = 0
-
-    @staticmethod
-    def _open_locked(path: Path) -> int | None:
-        try:
-            fd = os.open(path, os.O_RDWR | os.O_CREAT | os.O_APPEND, 0o644)
-        except OSError as exc:
-            raise write_error(path, exc, what="cannot open the shard") from None
-        if not _try_lock(fd):
-            os.close(fd)
-            raise InputError(f"{path}: another writer holds this shard (locked); use another "
-                             "shard or wait for it to finish")
-        if not _is_open_on(fd, path):
-            os.close(fd)
-            return None
-        if file_kind(path) != "shard":
-            os.close(fd)
-            raise InputError(f"{path}: exists and is not a planner sample shard; it is left "
-                             "untouched (move it out of the samples directory)")
-        return fd
-
-    def _write(self, data: bytes) -> None:
-        """Append ``data`` whole, or cut the file back to where it was and raise."""
-        start = self._size
-        try:
-            write_all(self._fd, data)
-        except BaseException as exc:
-            with contextlib.suppress(OSError):
-                os.ftruncate(self._fd, start)  # never leave a half row behind
-            if isinstance(exc, OSError):
-                raise write_error(self.path, exc, what="the chunk being written was not saved "
-                                  "(finished chunks before it are)") from None
-            raise
-        self._size = start + len(data)
-
-    def append(self, stats: sinter.TaskStats, *, chunk_id: str | None = None) -> str:
-        """Write one finished chunk as one row (flushed now). Returns its chunk id."""
-        if self._fd < 0:
-            raise ValueError(f"{self.path}: writer is closed")
-        chunk = chunk_id or new_chunk_id()
-        if "," in chunk or "\n" in chunk or '"' in chunk:
-            raise ValueError(f"chunk id {chunk!r} must not contain commas, quotes or newlines")
-        self._write((stats.to_csv_line() + "," + chunk + "\n").encode())
-        self.rows_written += 1
-        now = time.monotonic()
-        if now - self._last_sync >= FSYNC_EVERY_S:
-            try:
-                os.fsync(self._fd)
-            except OSError as exc:
-                raise write_error(self.path, exc, what="recent chunks may not be on disk") from None
-            self._last_sync = now
-        return chunk
-
-    def close(self, *, raise_errors: bool = True) -> None:
-        if self._fd < 0:
-            return
-        fd, self._fd = self._fd, -1
-        try:
-            os.fsync(fd)
-        except OSError as exc:
-            if raise_errors:
-                raise write_error(self.path, exc, what="recent chunks may not be on disk") from None
-        finally:
-            os.close(fd)  # closing releases the flock
 
 
 @dataclasses.dataclass(frozen=True)
@@ -260,18 +130,33 @@ class SampleStore:
     @property
     def manifest_path(self) -> Path:
         """Where this store's manifest is (whether or not it exists)."""
-        from planner.manifest import MANIFEST
-
         if self.samples_dir != self.root or self.root.name == "samples":
             return self.samples_dir.parent / MANIFEST
         return self.root / MANIFEST
 
     def task_ids(self) -> set[str] | None:
         """Strong ids the manifest lists (None without a manifest: every row is read)."""
-        from planner.manifest import read_manifest
-
         manifest = read_manifest(self.manifest_path.parent)
         return None if manifest is None else manifest.strong_ids
+
+    @property
+    def out_dir(self) -> Path:
+        """The out directory a sweep into this store locks and records its manifest in."""
+        return self.root if self.samples_dir != self.root else self.samples_dir.parent
+
+    def sampling_lock(self, *, shared: bool = False) -> contextlib.AbstractContextManager[contextlib.ExitStack]:
+        """Hold the out directory's sampling lock (see :func:`planner.store.outdir.sampling_lock`)."""
+        from planner.store.outdir import sampling_lock
+
+        return sampling_lock(self.out_dir, shared=shared)
+
+    def prepare_sweep(self, *, target: Target, tasks: Sequence[sinter.Task], budget: str | None,
+                      max_errors: int | None, max_shots: int | None) -> Manifest:
+        """Write (or check) the out directory's manifest and target copy for a sweep of ``tasks``."""
+        from planner.store.outdir import prepare_sweep_dir
+
+        return prepare_sweep_dir(self.out_dir, target=target, tasks=tasks, budget=budget,
+                                 max_errors=max_errors, max_shots=max_shots)
 
     def _csv_files(self) -> list[Path]:
         if not self.samples_dir.is_dir():
@@ -350,7 +235,7 @@ class SampleStore:
             except OSError:  # a read-only copy: readers skip its torn tail anyway
                 continue
             try:
-                if _try_lock(fd) and _is_open_on(fd, shard):
+                if try_lock(fd) and is_open_on(fd, shard):
                     result = repair_locked(fd, shard)
                     removed += result.removed_bytes
                     if result.notice:
@@ -385,43 +270,3 @@ class SampleStore:
             w.close()
 
 
-@dataclasses.dataclass(frozen=True)
-class MergeResult:
-    """What :func:`merge_into` copied: rows (chunks) and shots new to the destination."""
-
-    copied_rows: int
-    copied_shots: int
-    skipped_rows: int
-    shard: Path | None
-
-
-def merge_into(dest: SampleStore, sources: list[SampleStore]) -> MergeResult:
-    """Copy every row whose chunk id ``dest`` lacks into one new shard of ``dest``.
-
-    Rows already present (same chunk id) are skipped, so merging twice, or merging a directory
-    into itself, adds nothing. Rows are copied as parsed and re-written, chunk id kept. A
-    source gives only the tasks of its manifest. If writing fails, the new shard is removed.
-    """
-    have = dest.chunk_ids()
-    new: list[SampleRow] = []
-    skipped = 0
-    for src in sources:
-        for row in src.rows():
-            if row.chunk_id in have:
-                skipped += 1
-                continue
-            have.add(row.chunk_id)
-            new.append(row)
-    if not new:
-        return MergeResult(copied_rows=0, copied_shots=0, skipped_rows=skipped, shard=None)
-    name = "merged-" + default_shard_name()
-    shard = dest.samples_dir / (name + SHARD_SUFFIX)  # a fresh name: nobody else's file
-    try:
-        with dest.writer(name) as w:
-            for row in new:
-                w.append(row.stats, chunk_id=row.chunk_id)
-    except BaseException:
-        remove_quietly(shard)  # a half copy is no use: the next merge copies everything again
-        raise
-    return MergeResult(copied_rows=len(new), copied_shots=sum(r.stats.shots for r in new),
-                       skipped_rows=skipped, shard=shard)

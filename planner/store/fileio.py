@@ -62,14 +62,23 @@ def remove_quietly(path: Path | str) -> None:
         os.unlink(path)
 
 
-def atomic_write(path: Path, data: bytes, *, error: Callable[..., InputError] = write_error) -> None:
-    """Replace ``path`` with ``data`` via a temporary file beside it (fsynced, then renamed).
+def atomic_write(path: Path | str, data: bytes | str, *, error: Callable[..., InputError] = write_error) -> None:
+    """Replace ``path`` with ``data`` (text is written as UTF-8) via a temporary file beside it
+    (fsynced, then renamed): the one atomic write of planner (manifest, target copy, reports).
 
     Readers see the old or the new file, never half of one; on any failure the temporary file
     is removed and the old file is left as it was (``error(path, exc, what=...)``: the
     InputError naming ``path``).
+
+    >>> import tempfile; d = Path(tempfile.mkdtemp())
+    >>> atomic_write(d / "a.txt", "one"); atomic_write(d / "a.txt", b"two"); (d / "a.txt").read_text()
+    'two'
+    >>> sorted(p.name for p in d.iterdir())
+    ['a.txt']
     """
     path = Path(path)
+    if isinstance(data, str):
+        data = data.encode("utf-8")
     try:
         fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}-", suffix=".tmp")
     except OSError as exc:
