@@ -178,3 +178,27 @@ def test_no_function_over_max_complexity() -> None:
     for p in sorted(PACKAGE.rglob("*.py")):
         walk(radon.cc_visit(p.read_text()), str(p.relative_to(PACKAGE)))
     _check_against(set(found), KNOWN_COMPLEX_FUNCTIONS, f"functions over complexity {MAX_COMPLEXITY} ({found})")
+
+
+#: The stages of ../shared/design.md in the order data flows; a module may import only its own
+#: stage and those to its left. ``target_circuit`` (a target's circuit at one grid point) reads
+#: the sweep's defaults, so it stands after ``sweep``; ``errors`` is shared by every stage.
+STAGES = ("errors", "config", "noise", "circuits", "sweep", "target_circuit", "sampling", "store",
+          "fits", "planning", "jobs", "reports", "cli")
+
+
+def stage_of(module: str) -> str | None:
+    """The stage a module belongs to (its first name under ``planner``).
+
+    >>> stage_of("planner.store.shards"), stage_of("planner.fits"), stage_of("planner")
+    ('store', 'fits', None)
+    """
+    parts = module.split(".")
+    return parts[1] if len(parts) > 1 and parts[1] in STAGES else None
+
+
+def test_layers_point_one_way() -> None:
+    rank = {s: i for i, s in enumerate(STAGES)}
+    backwards = sorted((a, b) for a, bs in import_graph().items() for b in bs
+                       if stage_of(a) and stage_of(b) and rank[stage_of(b)] > rank[stage_of(a)])
+    assert not backwards, f"modules importing a stage to their right: {backwards}"
