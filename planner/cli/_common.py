@@ -13,6 +13,7 @@ from __future__ import annotations
 import functools
 import os
 import sys
+from pathlib import Path
 import unicodedata
 from collections.abc import Callable
 from typing import Any, TypeVar
@@ -68,6 +69,11 @@ def plain(text: object) -> str:
     'Chip \\[red]x\\[/]'
     """
     return rich.markup.escape(printable(text))
+
+
+def say_written(written: list[Path], directory: Path, *, quiet: bool) -> None:
+    """One line on stderr naming the report files a command wrote."""
+    stderr_console(quiet=quiet).print(f"wrote {', '.join(p.name for p in written)} under {plain(directory)}")
 
 
 def fail(message: str) -> typer.Exit:

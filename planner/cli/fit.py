@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 
-from planner.cli._common import one_line_errors, plain, stderr_console, stdout_console
+from planner.cli._common import one_line_errors, say_written, stdout_console
 from planner.cli.options import JsonOpt
 
 DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep (holds target.toml and samples/).")]
@@ -28,8 +28,7 @@ def fit_command(directory: DirArg, json: JsonOpt = False) -> None:
     # `planner run` writes it, and the table and --json show the same fit
     reviewed = review(directory)
     answers = reviewed.answers
-    written = write_fits(answers, directory, target=reviewed.target)
-    stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {plain(directory)}")
+    say_written(write_fits(answers, directory, target=reviewed.target), directory, quiet=json)
     if json:
         doc = answers.fits.to_json()
         doc["model"] = answers.model.to_json() if answers.model else None

@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 
-from planner.cli._common import one_line_errors, plain, stderr_console, stdout_console
+from planner.cli._common import one_line_errors, say_written, stdout_console
 from planner.cli.options import JsonOpt
 
 DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep (its target.toml needs a roadmap section).")]
@@ -22,23 +22,23 @@ def register(app: typer.Typer) -> None:
 @one_line_errors
 def roadmap_command(directory: DirArg, json: JsonOpt = False) -> None:
     from planner.errors import InputError
-    from planner.jobs.review import load_out_dir
-    from planner.planning import answer_all, no_model_reason
+    from planner.jobs.review import review
+    from planner.planning import no_model_reason
     from planner.reports.jsondoc import json_text
     from planner.reports.tables import render_roadmap
 
-    spec, stats = load_out_dir(directory)
-    if spec.roadmap is None:
-        raise InputError(f"{spec.source}: roadmap: missing section: add [roadmap] with start and rates")
-    answers = answer_all(spec, stats)
+    reviewed = review(directory)
+    if reviewed.target.roadmap is None:
+        raise InputError("missing section: add [roadmap] with start and rates", field="roadmap",
+                         source=reviewed.target.source)
+    answers = reviewed.answers
     if answers.roadmap is None:
         note = no_model_reason(answers.fits)
         typer.echo(json_text({"roadmap": None, "note": note})) if json else stdout_console().print(note)
         return
     from planner.reports.files import write_roadmap
 
-    written = write_roadmap(answers.roadmap, directory)
-    stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {plain(directory)}")
+    say_written(write_roadmap(answers.roadmap, directory), directory, quiet=json)
     if json:
         typer.echo(json_text(answers.roadmap.to_json()))
         return

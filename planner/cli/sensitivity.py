@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 
-from planner.cli._common import one_line_errors, plain, stderr_console, stdout_console
+from planner.cli._common import one_line_errors, say_written, stdout_console
 from planner.cli.options import JsonOpt
 
 DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep.")]
@@ -21,13 +21,12 @@ def register(app: typer.Typer) -> None:
 
 @one_line_errors
 def sensitivity_command(directory: DirArg, json: JsonOpt = False) -> None:
-    from planner.jobs.review import load_out_dir
-    from planner.planning import answer_all, no_model_reason
+    from planner.jobs.review import review
+    from planner.planning import no_model_reason
     from planner.reports.jsondoc import json_text
     from planner.reports.tables import render_sensitivity
 
-    spec, stats = load_out_dir(directory)
-    answers = answer_all(spec, stats)
+    answers = review(directory).answers
     if answers.sensitivity is None:
         note = no_model_reason(answers.fits)
         typer.echo(json_text({"sensitivity": None, "note": note})) if json else stdout_console().print(note)
@@ -35,8 +34,8 @@ def sensitivity_command(directory: DirArg, json: JsonOpt = False) -> None:
     from planner.reports.cells import lumped_components
     from planner.reports.files import write_sensitivity
 
-    written = write_sensitivity(answers.sensitivity, directory, lumped=lumped_components(answers))
-    stderr_console(quiet=json).print(f"wrote {', '.join(p.name for p in written)} under {plain(directory)}")
+    say_written(write_sensitivity(answers.sensitivity, directory, lumped=lumped_components(answers)),
+                directory, quiet=json)
     if json:
         typer.echo(json_text(answers.sensitivity.to_json()))
         return

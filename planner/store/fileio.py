@@ -62,13 +62,15 @@ def remove_quietly(path: Path | str) -> None:
         os.unlink(path)
 
 
-def atomic_write(path: Path | str, data: bytes | str, *, error: Callable[..., InputError] = write_error) -> None:
+def atomic_write(path: Path | str, data: bytes | str, *, error: Callable[..., InputError] = write_error,
+                 mode: int | None = None, unchanged: str = "the old file is unchanged") -> None:
     """Replace ``path`` with ``data`` (text is written as UTF-8) via a temporary file beside it
     (fsynced, then renamed): the one atomic write of planner (manifest, target copy, reports).
 
     Readers see the old or the new file, never half of one; on any failure the temporary file
-    is removed and the old file is left as it was (``error(path, exc, what=...)``: the
-    InputError naming ``path``).
+    is removed and the old file is left as it was (``error(path, exc, what=unchanged)``: the
+    InputError naming ``path``). ``mode``: the new file's permissions (default: 0666 less the
+    umask, as for any new file).
 
     >>> import tempfile; d = Path(tempfile.mkdtemp())
     >>> atomic_write(d / "a.txt", "one"); atomic_write(d / "a.txt", b"two"); (d / "a.txt").read_text()
@@ -85,7 +87,8 @@ def atomic_write(path: Path | str, data: bytes | str, *, error: Callable[..., In
         raise error(path, exc) from None
     try:
         try:
-            os.fchmod(fd, 0o666 & ~umask())  # mkstemp makes 0600; other jobs and users read these
+            # mkstemp makes 0600; other jobs and users read these
+            os.fchmod(fd, (0o666 & ~umask()) if mode is None else mode)
             write_all(fd, data)
             os.fsync(fd)
         finally:
@@ -93,7 +96,7 @@ def atomic_write(path: Path | str, data: bytes | str, *, error: Callable[..., In
         os.replace(tmp, path)
     except OSError as exc:
         remove_quietly(tmp)
-        raise error(path, exc, what="the old file is unchanged") from None
+        raise error(path, exc, what=unchanged) from None
     except BaseException:
         remove_quietly(tmp)
         raise

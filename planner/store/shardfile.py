@@ -25,14 +25,13 @@ import json
 import math
 import os
 import re
-import tempfile
 import time
 from pathlib import Path
 
 import sinter
 
 from planner.errors import InputError
-from planner.store.fileio import fsync_dir, remove_quietly, write_all, write_error
+from planner.store.fileio import atomic_write, fsync_dir, write_all, write_error
 
 HEADER = sinter.CSV_HEADER + ",chunk_id"
 HEADER_LINE = (HEADER + "\n").encode()
@@ -312,21 +311,7 @@ def _set_aside(path: Path, data: bytes, damaged: tuple[tuple[int, int, int], ...
 
 
 def _replace_contents(fd: int, path: Path, data: bytes) -> None:
-    tmp_fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.repair-", suffix=".tmp")
-    try:
-        try:
-            os.fchmod(tmp_fd, os.fstat(fd).st_mode & 0o777)
-            write_all(tmp_fd, data)
-            os.fsync(tmp_fd)
-        finally:
-            os.close(tmp_fd)
-        os.replace(tmp, path)
-    except OSError as exc:
-        remove_quietly(tmp)
-        raise write_error(path, exc, what="the shard is unchanged") from None
-    except BaseException:
-        remove_quietly(tmp)
-        raise
+    atomic_write(path, data, mode=os.fstat(fd).st_mode & 0o777, unchanged="the shard is unchanged")
     fsync_dir(path.parent)
 
 
