@@ -41,10 +41,9 @@ def run_command(
     choice = SamplingChoice.checked(budget=budget, workers=workers, precision=precision)
     spec = load_target(target)  # validate before anything heavy is imported
     check_precision(precision)
-    from planner.planning import answer_all
+    from planner.jobs.review import review
     from planner.reports import tables
     from planner.reports.files import write_all
-    from planner.store import SampleStore
 
     err = stderr_console(quiet=quiet)
     con = stdout_console()
@@ -58,8 +57,7 @@ def run_command(
     except KeyboardInterrupt:
         err.print(INTERRUPTED)  # every finished chunk is already on disk
         raise typer.Exit(code=130) from None
-    store = SampleStore(out_dir)
-    answers = answer_all(spec, store.stats(), seed=0)
+    answers = review(out_dir).answers  # the samples read back as every query command reads them
     tables.render_fits(answers.fits, con, model=answers.model, tasks=False)
     if answers.requirements is not None:
         tables.render_requirements(answers.requirements, con)
@@ -70,6 +68,7 @@ def run_command(
     for note in answers.notes:
         con.print(f"note: {note}")
     written = write_all(answers, out_dir=out_dir, target=spec)
-    err.print(f"wrote {len(written)} files under {plain(out_dir)} (report.html has it all on one page)")
+    err.print(f"wrote {len(written)} files under {plain(out_dir)} (report.html has it all on one page)",
+              soft_wrap=True)
     err.print(f"done in {time.monotonic() - started:.0f} s. Projections are model-based: check them "
-              "against the device before relying on them.")
+              "against the device before relying on them.", soft_wrap=True)
