@@ -205,7 +205,10 @@ def test_cpu_cap_stops_tasks_and_reports_them(tiny: tuple[Path, object], tmp_pat
                        workers=2, console=quiet(), max_cpu_seconds_per_task=0.05,
                        focus=("lambda_today",))
     assert not res.met and res.capped
-    assert all(s.seconds <= 0.05 * 3 + 0.05 for s in res.totals)  # a chunk may overshoot a little
+    # stopped by the cap, not by reaching the precision: a relative 95% half-width of 1% needs about
+    # (1.96 / 0.01)^2 = 38,416 errors on a task (binomial rate, common practice); a check on the
+    # errors, not on measured seconds, so a loaded machine cannot turn it red
+    assert max(s.errors for s in res.totals) < (1.96 / 0.01) ** 2
     assert any("cap" in n for n in res.notes)
 
 
