@@ -24,7 +24,7 @@ from planner.sampling.targeted import (
     check_precision_args,
     cost_per_shot,
 )
-from planner.store import TARGET_COPY, Manifest, SampleStore, read_manifest
+from planner.store import TARGET_COPY, Manifest, SampleStore, read_manifest, require_out_dir
 from planner.sweep import StoppingRule, task_label
 
 
@@ -344,9 +344,7 @@ class StatusReport:
 
 def status_job(directory: Path, *, precision: float | None = None) -> StatusReport:
     """The status of the out directory ``directory`` (InputError if it holds no samples)."""
-    directory = Path(directory)
-    if not directory.is_dir():
-        raise InputError(f"{directory}: no such out directory")
+    directory = require_out_dir(directory)
     store = SampleStore(directory)
     shards = store.shard_files()
     if not shards:

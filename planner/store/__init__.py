@@ -32,6 +32,7 @@ from planner.store.outdir import (
                                     check_out_dir,
                                     prepare_out_dir,
                                     prepare_sweep_dir,
+                                    require_out_dir,
                                     sampling_lock,
                                     target_bytes_of,
                                     writable_dir,
@@ -53,6 +54,6 @@ __all__ = ["HEADER", "LOCK_NAME", "MANIFEST", "Manifest", "MergeResult", "Direct
            "PLANNER_ENTRIES", "SampleRow", "SampleStore", "ShardWriter", "StoreRead", "TARGET_COPY",
            "TaskEntry", "atomic_write", "check_out_dir", "combine_manifests", "default_shard_name",
            "identity_difference", "merge_directories", "merge_into", "new_chunk_id", "out_dir_lock",
-           "prepare_out_dir", "prepare_sweep_dir", "print_notice", "read_manifest", "read_out_dir",
+           "prepare_out_dir", "prepare_sweep_dir", "print_notice", "read_manifest", "read_out_dir", "require_out_dir",
            "read_shard", "sampling_lock", "sharded_name", "software_versions", "target_bytes_of",
            "writable_dir", "write_error", "write_manifest", "write_target_copy"]

@@ -19,7 +19,7 @@ from planner.store.manifest import (
     read_manifest,
     write_manifest,
 )
-from planner.store.outdir import check_out_dir, write_target_copy
+from planner.store.outdir import check_out_dir, require_out_dir, write_target_copy
 from planner.store.shardfile import SHARD_SUFFIX, SampleRow
 from planner.store.shards import SampleStore, default_shard_name
 
@@ -87,8 +87,7 @@ def _source_stores(sources: Sequence[Path]) -> tuple[list[tuple[str, Manifest]],
     stores: list[SampleStore] = []
     target_bytes = None
     for src in map(Path, sources):
-        if not src.is_dir():
-            raise InputError(f"{src}: no such out directory")
+        require_out_dir(src)
         m = read_manifest(src)
         if m is None:
             raise InputError(f"{src}: not a planner out directory (no manifest.json)")

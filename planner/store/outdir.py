@@ -171,3 +171,21 @@ def prepare_sweep_dir(out_dir: Path, *, target: Target, tasks: Sequence[sinter.T
                                   sample_sha256=target.sampling_sha256, tasks=tasks, budget=budget,
                                   max_errors=max_errors, max_shots=max_shots)
     return prepare_out_dir(out_dir, target_bytes=target_bytes_of(target), manifest=manifest)
+
+
+def require_out_dir(directory: Path | str, *, hint: str = "") -> Path:
+    """``directory`` as a Path if it is an existing directory; else the InputError that says
+    whether nothing is there or something that is not a directory (``hint``: what to do).
+
+    >>> import tempfile; f = tempfile.NamedTemporaryFile()
+    >>> require_out_dir(f.name)
+    Traceback (most recent call last):
+    ...
+    planner.errors.InputError: ...: exists and is not a directory (give an out directory)
+    """
+    root = Path(directory)
+    if root.is_dir():
+        return root
+    if root.exists():
+        raise InputError(f"{root}: exists and is not a directory (give an out directory)")
+    raise InputError(f"{root}: no such out directory{hint}")

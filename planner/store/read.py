@@ -13,6 +13,7 @@ from planner.config import Target, load_target
 from planner.errors import InputError
 from planner.store.manifest import MANIFEST, TARGET_COPY
 from planner.store.shards import SampleStore, print_notice
+from planner.store.outdir import require_out_dir
 
 
 @dataclasses.dataclass(frozen=True)
@@ -41,9 +42,7 @@ def read_out_dir(directory: str | Path, *, notify: Callable[[str], None] | None 
     first (see :mod:`planner.store.shards`). ``notify``: called with each notice (default: one
     line on stderr; None: quiet, the notices are on the result).
     """
-    root = Path(directory)
-    if not root.is_dir():
-        raise InputError(f"{root}: no such out directory (run `planner sweep` or `planner run` first)")
+    root = require_out_dir(directory, hint=" (run `planner sweep` or `planner run` first)")
     tpath = root / TARGET_COPY
     if not tpath.is_file():
         raise InputError(f"{tpath}: missing: {root} is not a planner out directory")

@@ -113,7 +113,7 @@ MATRIX = [
     case("fit", EMPTY, needle="target.toml"),
     case("fit", NOSAMP, needle="no samples"),
     case("fit", _p("bad_target_dir"), needle="target.toml: not valid TOML"),
-    case("fit", FILE, needle="out directory"),
+    case("fit", FILE, needle="exists and is not a directory"),
     # ask
     case("ask", MISS, needle="no such out directory"),
     case("ask", NOSAMP, needle="no samples"),
@@ -152,7 +152,8 @@ MATRIX = [
     case("status", MISS, needle="no such out directory"),
     case("status", NOSAMP, needle="no samples"),
     case("status", _p("bad_manifest_dir"), needle="manifest.json"),
-    case("status", FILE, needle="out directory"),
+    case("status", FILE, needle="exists and is not a directory"),
+    case("merge", FILE, "--out", MISS, needle="exists and is not a directory"),
 ]
 
 
