@@ -118,8 +118,9 @@ class NoiseModel:
         """Today's model of the device described by a validated target file."""
         dev = target.device
         if dev.preset is not None:
+            # the preset's own gate set: config refuses a native_2q that disagrees with it
             maker = {"sd6": cls.sd6, "si1000": cls.si1000}[dev.preset.model]
-            return dataclasses.replace(maker(dev.preset.p), native_2q=dev.native_2q)
+            return maker(dev.preset.p)
         e, c, t = dev.errors, dev.coherence, dev.durations
         assert c is not None and t is not None  # guaranteed by config validation
         g1 = e.gate_1q if e.gate_1q is not None else pauli_error_from_infidelity(
@@ -138,7 +139,8 @@ class NoiseModel:
 
     @classmethod
     def sd6(cls, p: float) -> NoiseModel:
-        """Uniform depolarizing at p: every gate, reset, measurement and idle layer."""
+        """SD6 (Gidney, Newman, Fowler, Broughton, Quantum 5, 605 (2021)): uniform depolarizing
+        at p on every gate, reset, measurement and idle qubit in every layer, on CX circuits."""
         return cls(gate_1q=p, gate_2q=p, readout=p, reset=p, idle_excess=p,
                    idle_measure_excess=p, native_2q="cx", label=f"SD6(p={p:g})")
 
@@ -146,8 +148,9 @@ class NoiseModel:
     def si1000(cls, p: float) -> NoiseModel:
         """SI1000 (Gidney, Newman, Fowler, Broughton, Quantum 5, 605 (2021)): CZ p, 1q gates p/10,
         idle in gate layers p/10, reset flip 2p, readout flip 5p, idle during measurement and
-        during reset 2p each. Our circuits read out and reset in one layer, so its idlers get the
-        two DEPOLARIZE1(2p) composed into one."""
+        during reset 2p each, on CZ circuits. Our circuits read out and reset in one layer, so its
+        idlers get the two DEPOLARIZE1(2p) composed into one. The depolarization after a
+        measurement is left out: every qubit measured here is reset or never used again."""
         return cls(gate_1q=p / 10, gate_2q=p, readout=5 * p, reset=2 * p, idle_excess=p / 10,
                    idle_measure_excess=_compose_depolarizing(2 * p, 2), native_2q="cz",
                    label=f"SI1000(p={p:g})")

@@ -40,6 +40,7 @@ from planner.config.limits import (
 )
 from planner.config.messages import describe_validation_error
 from planner.config.schema import (
+    PRESET_NATIVE_2Q,
     Coherence,
     Device,
     Durations,
@@ -56,7 +57,7 @@ from planner.errors import InputError
 __all__ = [
     "COMPONENTS", "ERROR_LIMITS", "EXAMPLE_TOML", "MAX_DETECTORS", "MAX_DISTANCE", "MAX_DISTANCES",
     "MAX_NAME_LENGTH", "MAX_PROBABILITY", "MAX_QUBITS", "MAX_SCALES", "MAX_START", "MAX_TARGET_BYTES",
-    "MAX_TASKS", "MIN_START", "Coherence", "Device", "Durations", "Errors", "Goal", "Preset", "Rate",
+    "MAX_TASKS", "MIN_START", "PRESET_NATIVE_2Q", "Coherence", "Device", "Durations", "Errors", "Goal", "Preset", "Rate",
     "Roadmap", "Sweep", "Target", "coherence_problem", "distance_problem", "load_target",
     "memory_circuit_size", "parse_target", "size_problem",
 ]

@@ -4,7 +4,7 @@ preset excludes, physical ranges, the grid's size); each names the key it refuse
 from __future__ import annotations
 
 from planner.config.limits import ERROR_LIMITS, MAX_PROBABILITY, MAX_TASKS, coherence_problem, size_problem
-from planner.config.schema import Device, Target
+from planner.config.schema import PRESET_NATIVE_2Q, Device, Target
 from planner.errors import InputError
 
 #: (key path, what is wrong), or None when the check passes
@@ -49,8 +49,13 @@ def _budget_problem(d: Device) -> Problem:
 
 
 def _preset_problem(d: Device) -> Problem:
-    if d.preset is not None and d.preset.model == "si1000" and d.native_2q != "cz":
-        return "device.native_2q", "the si1000 preset is CZ-native: set native_2q = \"cz\""
+    """A preset is its published circuit: its own gate set, no measured sections."""
+    if d.preset is None:
+        return None
+    native = PRESET_NATIVE_2Q[d.preset.model]
+    if d.native_2q != native:
+        return ("device.native_2q", f"the {d.preset.model} preset is defined on {native.upper()} "
+                f"circuits: set native_2q = \"{native}\" or leave the key out")
     for section in ("coherence", "durations"):
         if getattr(d, section) is not None:
             return f"device.{section}", "not used with device.preset: remove it or the preset"

@@ -10,7 +10,7 @@ import unicodedata
 from pathlib import Path
 from typing import Annotated, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, Strict, field_validator
+from pydantic import BaseModel, ConfigDict, Field, Strict, field_validator, model_validator
 
 from planner.config.limits import (
     COMPONENTS,
@@ -49,11 +49,17 @@ Probability = Annotated[Number, Field(ge=0.0, le=1.0)]
 Positive = Annotated[Number, Field(gt=0.0)]
 
 
+#: The two-qubit gate each preset is defined with (Gidney, Newman, Fowler, Broughton, Quantum 5,
+#: 605 (2021)): SD6 on CX circuits, SI1000 on CZ circuits. A preset sets the device's gate set.
+PRESET_NATIVE_2Q: dict[str, str] = {"sd6": "cx", "si1000": "cz"}
+
+
 class Preset(_Frozen):
     """A published noise model instead of a measured budget (for comparison with the literature).
 
-    ``sd6``: uniform depolarizing at p on every operation; ``si1000``: the superconducting-inspired
-    model of Gidney, Newman, Fowler, Broughton, Quantum 5, 605 (2021), CZ-native.
+    ``sd6``: uniform depolarizing at p on every operation, CX-native; ``si1000``: the
+    superconducting-inspired model, CZ-native; both of Gidney, Newman, Fowler, Broughton,
+    Quantum 5, 605 (2021). The preset sets ``device.native_2q`` (see :data:`PRESET_NATIVE_2Q`).
     """
 
     model: Literal["sd6", "si1000"]
@@ -99,6 +105,18 @@ class Device(_Frozen):
     @classmethod
     def _name(cls, v: str) -> str:
         return _plain_text(v)
+
+    @model_validator(mode="before")
+    @classmethod
+    def _preset_gate_set(cls, data: object) -> object:
+        """Without a native_2q key, a preset's own gate set is the device's (one that disagrees
+        is refused by the checks, naming the key)."""
+        if isinstance(data, dict) and "native_2q" not in data:
+            preset = data.get("preset")
+            model = preset.get("model") if isinstance(preset, dict) else getattr(preset, "model", None)
+            if isinstance(model, str) and model in PRESET_NATIVE_2Q:
+                return {**data, "native_2q": PRESET_NATIVE_2Q[model]}
+        return data
 
 
 class Goal(_Frozen):
