@@ -30,7 +30,8 @@ from planner.planning.limits import (
     check_rate,
 )
 from planner.planning.mix import MixAnswer, cheapest_mix, cost_shares, mix_cost
-from planner.planning.model import ResponseModel, largest_distance_within, physical_qubits, qubit_rule
+from planner.planning.model import (ResponseModel, largest_distance_within, not_sampled_note, physical_qubits,
+                                     qubit_rule)
 
 __all__ = [
     "HEADROOM_LIMIT", "MAX_DISTANCE", "MAX_HALVINGS", "MIN_RATE", "TINY", "Boundary", "FactorAnswer",
@@ -45,7 +46,8 @@ class FactorAnswer:
     """The factor one lever (``joint`` or a component alone) needs to reach the goal."""
 
     lever: str
-    reachable: bool
+    #: None when the lever is not sampled (no verdict either way)
+    reachable: bool | None
     factor: float | None
     #: Lambda at the solution, or (not reachable) with the component perfect
     suppression: float
@@ -54,9 +56,11 @@ class FactorAnswer:
     factor_interval: Interval | None = None
     #: bootstrap interval of :attr:`suppression` (same meaning: at the solution, or perfect)
     suppression_interval: Interval | None = None
+    #: False for a component without its own sweep axis: no factor, no Lambda, no verdict
+    sampled: bool = True
 
     def to_json(self) -> dict[str, Any]:
-        return {"lever": self.lever, "reachable": self.reachable, "factor": self.factor,
+        return {"lever": self.lever, "sampled": self.sampled, "reachable": self.reachable, "factor": self.factor,
                 "suppression_factor": _fin(self.suppression), "note": self.note,
                 "extrapolation": list(self.extrapolation), "factor_interval": _ivj(self.factor_interval),
                 "suppression_factor_interval": _ivj(self.suppression_interval)}
@@ -242,7 +246,11 @@ def find_boundary(h: Callable[[float], float], *, lowest: float = 0.0) -> Bounda
 
 def solve_lever(model: ResponseModel, lever: str, *, distance: int, eps_target: float) -> FactorAnswer:
     """The factor ``lever`` (``joint`` or one component alone) needs to meet ``eps_target`` at
-    ``distance`` on ``model`` (or, met today, the headroom)."""
+    ``distance`` on ``model`` (or, met today, the headroom); a component without its own sweep
+    axis gets no answer ("not sampled", with the command that samples it)."""
+    if lever != "joint" and not model.is_sampled(lever):
+        return FactorAnswer(lever=lever, reachable=None, factor=None, suppression=math.nan, sampled=False,
+                            note=not_sampled_note([lever]))
     ln_t = math.log(eps_target)
     found = find_boundary(lambda f: model.ln_eps(_scaled(lever, f), distance) - ln_t,
                           lowest=0.0 if lever != "joint" else 1e-12)
@@ -325,7 +333,7 @@ def requirements(model: ResponseModel, target: Target, *, eps_target: float | No
     if report is not None and (far := distance_extrapolation_note(d, report.sampled_distances)):
         notes.append(far)
     if model.unsampled:
-        notes.append("no own sweep axis, weight split evenly: " + ", ".join(model.unsampled))
+        notes.append(not_sampled_note(model.unsampled) + " (the joint factor moves them together)")
     required = required_suppression(model, distance=d, eps_target=eps)
     if required is None:
         notes.append(f"Lambda needed at d = {d} is above 1e300: beyond any reachable")

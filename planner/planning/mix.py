@@ -14,7 +14,7 @@ from scipy.optimize import brentq, minimize
 from planner.config import COMPONENTS
 from planner.fits import Interval
 from planner.planning.limits import MAX_HALVINGS, _below, _fin, _ivj
-from planner.planning.model import ResponseModel
+from planner.planning.model import ResponseModel, not_sampled_note
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class MixAnswer:
@@ -37,6 +37,8 @@ class MixAnswer:
     cost_share_intervals: dict[str, Interval] = dataclasses.field(default_factory=dict)
     cost_interval: Interval | None = None
     suppression_interval: Interval | None = None
+    #: components without their own sweep axis: the mix never changes them (kept at today's error)
+    not_sampled: tuple[str, ...] = ()
 
     def changed(self) -> list[str]:
         """Components the mix improves (factor below 1), in COMPONENTS order."""
@@ -52,7 +54,8 @@ class MixAnswer:
                 "scale_intervals": {c: v.to_json() for c, v in self.scale_intervals.items()},
                 "cost_share_intervals": {c: v.to_json() for c, v in self.cost_share_intervals.items()},
                 "cost_halvings_interval": _ivj(self.cost_interval),
-                "suppression_factor_interval": _ivj(self.suppression_interval)}
+                "suppression_factor_interval": _ivj(self.suppression_interval),
+                "not_sampled": list(self.not_sampled)}
 
 
 def mix_cost(scales: Mapping[str, float], costs: Mapping[str, float]) -> float:
@@ -77,8 +80,9 @@ def cost_shares(scales: Mapping[str, float], costs: Mapping[str, float]) -> dict
 
 
 def _levers(model: ResponseModel) -> list[str]:
-    """Components whose factor moves Lambda in the model."""
-    return [c for c in COMPONENTS if model.weights[c] > 0 or model.curvature[c] > 0]
+    """Components whose factor moves Lambda in the model (never one without its own sweep axis:
+    its weight is only known together with the others of its group)."""
+    return [c for c in COMPONENTS if (model.weights[c] > 0 or model.curvature[c] > 0) and model.is_sampled(c)]
 
 
 def _minimise(cost: np.ndarray, slack: Callable[[np.ndarray], float],
@@ -105,8 +109,20 @@ def cheapest_mix(model: ResponseModel, *, distance: int, eps_target: float, cost
     """Minimise sum_c cost_c log2(1/s_c) over s_c in (0, 1] with eps_distance(s) <= eps_target.
 
     ``starts`` seed the optimiser; ``default_starts=False`` uses only them (the bootstrap re-solves
-    each replica from the original answer, which is close, to stay fast)."""
+    each replica from the original answer, which is close, to stay fast). Components without
+    their own sweep axis stay at 1 (the mix names them in ``not_sampled`` and its note)."""
     ln_t = math.log(eps_target)
+    kept = tuple(model.unsampled)
+    answer = _mix_answer(model, distance=distance, ln_t=ln_t, costs=costs, starts=starts,
+                         default_starts=default_starts)
+    if not kept:
+        return answer
+    note = "; ".join(n for n in (answer.note, not_sampled_note(kept) + " (kept at today's error)") if n)
+    return dataclasses.replace(answer, not_sampled=kept, note=note)
+
+
+def _mix_answer(model: ResponseModel, *, distance: int, ln_t: float, costs: Mapping[str, float],
+                starts: tuple[dict[str, float], ...], default_starts: bool) -> MixAnswer:
     today = {c: 1.0 for c in COMPONENTS}
     if model.ln_eps(today, distance) <= ln_t:
         return MixAnswer(reachable=True, scales=today, cost=0.0, suppression=model.suppression(today),

@@ -10,7 +10,9 @@ least squares). Then ``eps_d(s) = A(s) * Lambda(s)^(-(d+1)/2)`` (Google Quantum 
 code ``2 d - 1`` (see :func:`physical_qubits`).
 
 Components without their own sweep axis only ever move together with the joint factor; their
-weight is fitted as one lumped column and split evenly between them (``unsampled`` names them).
+weight is fitted as one lumped column (``unsampled`` names them). The model splits it evenly only
+so that it can be evaluated; no answer about one of them alone is given (planning says "not
+sampled" and :func:`not_sampled_note` says how to sample it).
 """
 
 from __future__ import annotations
@@ -28,6 +30,20 @@ from planner.errors import InputError
 from planner.fits import Z_SCORE, FitReport, LambdaFit
 
 FORMS = ("linear", "quadratic")
+#: what every answer about a component without its own sweep axis says instead of a figure
+NOT_SAMPLED = "not sampled"
+
+
+def not_sampled_note(components: "tuple[str, ...] | list[str]") -> str:
+    """How to sample components that have no sweep axis of their own.
+
+    >>> not_sampled_note(["idle"])
+    'not sampled: idle has no sweep axis of its own; add it to sweep.components and run `planner sweep TARGET`'
+    """
+    names = ", ".join(components)
+    one = len(components) == 1
+    return (f"{NOT_SAMPLED}: {names} {'has' if one else 'have'} no sweep axis of {'its' if one else 'their'} own; "
+            f"add {'it' if one else 'them'} to sweep.components and run `planner sweep TARGET`")
 #: leave-one-out |residual|/sigma beyond which the linear form is considered inadequate
 #: (common practice, no source: ~3 sigma)
 LOO_LIMIT = 3.0
@@ -159,6 +175,10 @@ class ResponseModel:
     unsampled: tuple[str, ...]
     quality: FitQuality
 
+    def is_sampled(self, component: str) -> bool:
+        """Whether ``component`` moved on its own in the data (answers about it alone exist)."""
+        return component not in self.unsampled
+
     # -- evaluation -----------------------------------------------------------------------
     def _vec(self, scales: Mapping[str, float] | None) -> dict[str, float]:
         scales = scales or {}
@@ -221,9 +241,16 @@ class ResponseModel:
                 notes.append(f"{c} factor {v:.3g} is above the largest sampled {hi:g}: extrapolated x{v / hi:.2f}")
         return notes
 
+    def weight_together(self) -> float:
+        """The fitted weight of the components without their own sweep axis, together (0: none)."""
+        return sum(self.weights[c] for c in self.unsampled)
+
     def to_json(self) -> dict[str, Any]:
-        return {"form": self.form, "weights": dict(self.weights), "curvature": dict(self.curvature),
-                "ln_prefactor": {"const": self.ln_a_const, "coef": dict(self.ln_a_coef)},
+        # a component without its own axis has no weight of its own (null); its group's is given
+        own = lambda d: {c: (v if self.is_sampled(c) else None) for c, v in d.items()}  # noqa: E731
+        return {"form": self.form, "weights": own(self.weights), "curvature": own(self.curvature),
+                "unsampled_weight_together": self.weight_together() if self.unsampled else None,
+                "ln_prefactor": {"const": self.ln_a_const, "coef": own(self.ln_a_coef)},
                 "sampled_min": dict(self.sampled_min), "sampled_max": dict(self.sampled_max),
                 "unsampled_components": list(self.unsampled), "quality": self.quality.to_json()}
 

@@ -26,7 +26,7 @@ import numpy as np
 from planner.config import COMPONENTS, Rate, Target
 from planner.fits import CONFIDENCE, Interval
 from planner.planning.ask import goal_distance, smallest_distance
-from planner.planning.model import ResponseModel, physical_qubits
+from planner.planning.model import ResponseModel, not_sampled_note, physical_qubits
 from planner.planning.uncertainty import replica_interval
 
 STEPS_PER_YEAR = {"quarter": 4, "year": 1}
@@ -351,6 +351,10 @@ def build_roadmap(target: Target, model: ResponseModel, *, seed: int = 0, num_sc
         f"goal not met within {rm.horizon_years:g} years and {target.goal.max_qubits} qubits at these rates"
     if not rm.rates and not rm.coherence_growth_per_year:
         note = (note + "; " if note else "") + "no rates given: nothing improves"
+    if any(len({st.scales[c] for c in model.unsampled}) > 1 for st in steps):
+        # their weight is known only together: apart, the model's even split decides the dates
+        note = (note + "; " if note else "") + "rates move components without their own sweep axis apart, " \
+            "so these dates rest on an even split of their weight (" + not_sampled_note(model.unsampled) + ")"
     return Roadmap(start=rm.start, step=rm.step, eps_target=eps, max_qubits=target.goal.max_qubits,
                    candidate_distances=cands, steps=tuple(steps), goal=goal, milestones=miles,
                    num_scenarios=len(scen), note=note, goal_distance=dmax, num_replicas=len(models))

@@ -8,6 +8,9 @@ if the component's yearly improvement were :data:`FASTER_POINTS` faster.
 
 Given the bootstrap replica models, every figure also gets an interval: the same figure computed
 on each replica (rates at their central values: these intervals are the fit's uncertainty only).
+
+A component without its own sweep axis gets no figures ("not sampled", ``sampled`` False, None
+values): the data fix only its group's weight, so the group's share together is given instead.
 """
 
 from __future__ import annotations
@@ -20,7 +23,7 @@ from typing import Any
 from planner.config import COMPONENTS, Target
 from planner.fits import Interval
 from planner.planning.ask import goal_distance
-from planner.planning.model import ResponseModel
+from planner.planning.model import ResponseModel, not_sampled_note
 from planner.planning.roadmap import RateSet, goal_years
 from planner.planning.uncertainty import replica_interval
 
@@ -37,19 +40,21 @@ def _ivj(iv: Interval | None) -> dict[str, Any] | None:
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class ComponentSensitivity:
     component: str
-    share: float
-    elasticity: float
-    suppression_halved: float
-    suppression_perfect: float
+    share: float | None
+    elasticity: float | None
+    suppression_halved: float | None
+    suppression_perfect: float | None
     months_earlier: float | None
     note: str = ""
+    #: False for a component without its own sweep axis (every figure None)
+    sampled: bool = True
     #: bootstrap intervals of the figures above, keyed by :data:`FIGURES` (empty without replicas)
     intervals: dict[str, Interval] = dataclasses.field(default_factory=dict)
 
     def to_json(self) -> dict[str, Any]:
         f = lambda x: None if x is None or not math.isfinite(x) else float(x)  # noqa: E731
         iv = lambda k: _ivj(self.intervals.get(k))  # noqa: E731
-        return {"component": self.component, "share_of_inverse_lambda": self.share,
+        return {"component": self.component, "sampled": self.sampled, "share_of_inverse_lambda": self.share,
                 "elasticity": self.elasticity, "suppression_factor_halved": f(self.suppression_halved),
                 "suppression_factor_perfect": f(self.suppression_perfect),
                 "months_earlier": f(self.months_earlier), "note": self.note,
@@ -62,7 +67,8 @@ class ComponentSensitivity:
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class Sensitivity:
     """Each component's share of 1/Lambda today and what improving it alone gives, most
-    limiting first (components without their own sweep axis are marked lumped)."""
+    limiting first; components without their own sweep axis come last, "not sampled", and their
+    group's share together is :attr:`unsampled_share`."""
 
     suppression_today: float
     rows: tuple[ComponentSensitivity, ...]  # most limiting first
@@ -73,13 +79,29 @@ class Sensitivity:
     suppression_today_interval: Interval | None = None
     #: replica models the intervals came from (0: best values only)
     num_replicas: int = 0
+    #: components without their own sweep axis, and their share of 1/Lambda together
+    unsampled: tuple[str, ...] = ()
+    unsampled_share: float | None = None
+    unsampled_share_interval: Interval | None = None
 
     def to_json(self) -> dict[str, Any]:
         return {"suppression_factor_today": self.suppression_today, "faster_points": self.faster_points,
                 "components": [r.to_json() for r in self.rows], "model_form": self.model_form,
                 "model_quality": self.model_quality, "note": self.note,
                 "suppression_factor_today_interval": _ivj(self.suppression_today_interval),
-                "num_replicas": self.num_replicas}
+                "num_replicas": self.num_replicas,
+                "not_sampled": {"components": list(self.unsampled), "share_of_inverse_lambda": self.unsampled_share,
+                                "share_interval": _ivj(self.unsampled_share_interval)}}
+
+
+def group_share(model: ResponseModel) -> float | None:
+    """The share of 1/Lambda today of the components without their own sweep axis, together
+    (None when every component has its axis)."""
+    terms = model.terms(None)
+    total = sum(terms.values())
+    if not model.unsampled or total <= 0:
+        return None
+    return sum(terms[c] for c in model.unsampled) / total
 
 
 def _rows(model: ResponseModel, target: Target) -> dict[str, ComponentSensitivity]:
@@ -96,6 +118,11 @@ def _rows(model: ResponseModel, target: Target) -> dict[str, ComponentSensitivit
         base_t = goal_years(model, central, eps_target=eps, max_distance=dmax, horizon_years=rm.horizon_years)
     rows = {}
     for c in COMPONENTS:
+        if not model.is_sampled(c):
+            rows[c] = ComponentSensitivity(component=c, share=None, elasticity=None, suppression_halved=None,
+                                           suppression_perfect=None, months_earlier=None, sampled=False,
+                                           note=not_sampled_note([c]))
+            continue
         share = terms[c] / total if total > 0 else 0.0
         slope = model.weights[c] + 2 * model.curvature[c]
         elasticity = -slope / total if total > 0 else 0.0
@@ -131,11 +158,13 @@ def sensitivity(model: ResponseModel, target: Target, *, models: Sequence[Respon
             if iv is not None:
                 ivs[k] = iv
         rows.append(dataclasses.replace(row, intervals=ivs))
-    rows.sort(key=lambda r: (-r.share, -(r.months_earlier or 0.0)))
+    rows.sort(key=lambda r: (not r.sampled, -(r.share or 0.0), -(r.months_earlier or 0.0)))
     lam = model.suppression(None)
+    group = group_share(model)
     return Sensitivity(suppression_today=lam, rows=tuple(rows), faster_points=FASTER_POINTS, model_form=model.form,
                        model_quality=model.quality.summary(),
-                       note="unsampled components share a lumped weight: " + ", ".join(model.unsampled)
-                       if model.unsampled else "",
+                       note=not_sampled_note(model.unsampled) if model.unsampled else "",
                        suppression_today_interval=replica_interval(lam, [m.suppression(None) for m in models]),
-                       num_replicas=len(models))
+                       num_replicas=len(models), unsampled=tuple(model.unsampled), unsampled_share=group,
+                       unsampled_share_interval=replica_interval(group, [group_share(m) for m in models])
+                       if group is not None else None)

@@ -142,6 +142,8 @@ def _draw_levers(draws: _Draws, m: ResponseModel, answer: Requirements) -> None:
     """Each lever's factor, and the Lambda meaning the same as the best answer's, on replica ``m``."""
     d, eps = answer.distance, answer.eps_target
     for best_answer in (answer.joint, *answer.components):
+        if not best_answer.sampled:
+            continue  # no answer to put an interval on
         lever = best_answer.lever
         a = solve_lever(m, lever, distance=d, eps_target=eps)
         # a replica with unbounded headroom (factor None) has no number to add: the interval
@@ -189,13 +191,14 @@ def _best_values(answer: Requirements) -> dict[str, float | None]:
         "joint_factor": answer.joint.factor, "lambda_today": answer.today.suppression_model,
         "today_distance": answer.today.distance, "today_eps": answer.today.logical_error_per_cycle,
         "required_lambda": answer.required_suppression}
-    best.update({f"factor.{a.lever}": a.factor for a in answer.components})
+    best.update({f"factor.{a.lever}": a.factor for a in answer.components if a.sampled})
     best.update({f"lambda.{a.lever}": a.suppression for a in (answer.joint, *answer.components)
-                 if a.reachable or a.lever != "joint"})
+                 if a.sampled and (a.reachable or a.lever != "joint")})
     if mix.reachable:
         best.update({"mix.cost": mix.cost, "mix.lambda": mix.suppression})
-        best.update({f"mix.factor.{c}": mix.scales[c] for c in COMPONENTS})
-        best.update({f"mix.share.{c}": mix.cost_shares.get(c, 0.0) for c in COMPONENTS})
+        best.update({f"mix.factor.{c}": mix.scales[c] for c in COMPONENTS if c not in mix.not_sampled})
+        best.update({f"mix.share.{c}": mix.cost_shares.get(c, 0.0) for c in COMPONENTS
+                     if c not in mix.not_sampled})
     return best
 
 

@@ -13,7 +13,7 @@ if TYPE_CHECKING:
     from planner.fits import Interval
     from planner.planning import Answers, FactorAnswer, MixAnswer, Roadmap
     from planner.planning.roadmap import RoadmapStep
-    from planner.planning.sensitivity import ComponentSensitivity
+    from planner.planning.sensitivity import ComponentSensitivity, Sensitivity
 
 
 def lambda_today_model(answers: Answers) -> Interval | None:
@@ -22,8 +22,12 @@ def lambda_today_model(answers: Answers) -> Interval | None:
     return unc.intervals.get("lambda_today") if unc is not None else None
 
 
+#: the cell of every figure of a component without its own sweep axis
+NOT_SAMPLED = "not sampled"
+
+
 def lumped_components(answers: Answers) -> tuple[str, ...]:
-    """Components without their own sweep axis (their weight is split evenly)."""
+    """Components without their own sweep axis ("not sampled": no figure of their own)."""
     return tuple(answers.model.unsampled) if answers.model is not None else ()
 
 
@@ -33,7 +37,9 @@ def lumped_components(answers: Answers) -> tuple[str, ...]:
 
 def lever_cells(a: FactorAnswer) -> tuple[str, str]:
     """The factor one lever needs alone (marked when extrapolated) and the Lambda it reaches
-    ('max': not reachable alone, with the component perfect)."""
+    ('max': not reachable alone, with the component perfect; "not sampled": no own sweep axis)."""
+    if not a.sampled:
+        return NOT_SAMPLED, "—"
     if a.reachable:
         return (estimate(a.factor, a.factor_interval) + (f" {EXTRAPOLATED}" if a.extrapolation else ""),
                 estimate(a.suppression, a.suppression_interval))
@@ -50,14 +56,17 @@ def lever_note(a: FactorAnswer) -> str:
     >>> lever_note(FactorAnswer(lever="idle", reachable=False, factor=None, suppression=1.9, note="not reachable alone: with idle perfect, Lambda = 1.9"))
     'not reachable alone: even with idle perfect, Lambda stays below the Lambda needed'
     """
-    if not a.reachable and a.lever != "joint":
+    if a.sampled and not a.reachable and a.lever != "joint":
         return f"not reachable alone: even with {a.lever} perfect, Lambda stays below the Lambda needed"
     return a.note
 
 
 def mix_cells(mix: MixAnswer, lever: str) -> tuple[str, str, str]:
     """Factor (marked when extrapolated), halvings and cost share (%) of ``lever`` in the
-    cheapest mix ('—' for joint or no mix)."""
+    cheapest mix ('—' for joint or no mix; "not sampled" for a component without its own axis,
+    which the mix leaves at today's error)."""
+    if lever in mix.not_sampled:
+        return NOT_SAMPLED, "—", "—"
     if lever == "joint" or not mix.reachable or lever not in mix.scales:
         return "—", "—", "—"
     f_iv = mix.scale_intervals.get(lever)
@@ -65,6 +74,16 @@ def mix_cells(mix: MixAnswer, lever: str) -> tuple[str, str, str]:
     h, h_iv = halvings(f_iv, mix.scales[lever])
     share = percent(mix.cost_shares.get(lever, 0.0), mix.cost_share_intervals.get(lever))
     return estimate(mix.scales[lever], f_iv) + mark, estimate(h, h_iv), share
+
+
+def group_row(sens: Sensitivity, *, short: bool = False) -> tuple[str, str] | None:
+    """The one row the components without their own axis get together: its label (``short``:
+    without their names, for narrow terminals) and their share of 1/Lambda (%, with its
+    interval), None when every component has its axis."""
+    if not sens.unsampled:
+        return None
+    label = "not sampled, together" if short else f"not sampled separately: {', '.join(sens.unsampled)} (together)"
+    return label, percent(sens.unsampled_share, sens.unsampled_share_interval)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -108,7 +127,10 @@ def event_rows(rm: Roadmap) -> list[tuple[str, str, str, str]]:
 
 def sensitivity_cells(r: ComponentSensitivity) -> dict[str, str]:
     """One component's figures with their intervals: ``share`` (%), ``elasticity``, ``halved``,
-    ``perfect`` (Lambda) and ``earlier`` (months)."""
+    ``perfect`` (Lambda) and ``earlier`` (months); "not sampled" in each for a component without
+    its own sweep axis."""
+    if not r.sampled:
+        return dict.fromkeys(("share", "elasticity", "halved", "perfect", "earlier"), NOT_SAMPLED)
     iv = r.intervals
     return {"share": percent(r.share, iv.get("share")),
             "elasticity": estimate(r.elasticity, iv.get("elasticity")),

@@ -12,7 +12,7 @@ from typing import TYPE_CHECKING, Any
 
 from planner.config import COMPONENTS
 from planner.fits import Interval
-from planner.reports.cells import lever_note
+from planner.reports.cells import group_row, lever_note
 from planner.reports.formats import POINT_VALUE, halvings
 from planner.reports.table import INTEGER_COLUMNS, Table
 
@@ -28,7 +28,7 @@ SENSITIVITY_FIGURES = (("share_of_inverse_lambda", "share"), ("elasticity", "ela
                        ("suppression_factor_perfect", "suppression_perfect"),
                        ("months_earlier", "months_earlier"))
 SENSITIVITY_COLUMNS = ("component", *(f"{name}{end}" for name, _ in SENSITIVITY_FIGURES
-                                      for end in ("", "_low", "_high")), "lumped", "note")
+                                      for end in ("", "_low", "_high")), "lumped", "note", "sampled")
 DATES_COLUMNS = ("event", "date", "low", "high", "fraction_of_scenarios_reached")
 VERIFY_COLUMNS = ("point", "quantity", "distance", "predicted", "predicted_low", "predicted_high",
                   "sampled", "sampled_low", "sampled_high", "zero_errors", "holds")
@@ -83,7 +83,8 @@ def _lever_rows(req: Requirements) -> list[Row]:
                      "; ".join(x for x in (lever_note(a), *a.extrapolation) if x)))
         rows.append(("suppression_factor_reached", a.lever, "ratio", *ends(a.suppression_interval, a.suppression),
                      a.reachable, bool(a.extrapolation),
-                     "" if a.reachable else f"with {a.lever} perfect, the most it gives alone"))
+                     lever_note(a) if not a.sampled
+                     else "" if a.reachable else f"with {a.lever} perfect, the most it gives alone"))
     return rows
 
 
@@ -92,8 +93,9 @@ def _mix_rows(mix: MixAnswer) -> list[Row]:
     for c, s in mix.scales.items():
         extrapolated = any(x.startswith(f"{c} ") for x in mix.extrapolation)
         h, h_iv = halvings(mix.scale_intervals.get(c), s)
+        kept = "not sampled: kept at today's error" if c in mix.not_sampled else ""
         rows.append(("cheapest_mix_factor", c, "x today's error", *ends(mix.scale_intervals.get(c), s),
-                     mix.reachable, extrapolated, ""))
+                     mix.reachable, extrapolated, kept))
         rows.append(("cheapest_mix_halvings", c, "halvings (log2 of 1/factor)", *ends(h_iv, h),
                      mix.reachable, extrapolated, ""))
         rows.append(("cheapest_mix_cost_share", c, "fraction of the cost",
@@ -157,9 +159,17 @@ def roadmap_csv(rm: Roadmap) -> list[Table]:
 
 
 def sensitivity_rows(sens: Sensitivity, *, lumped: Sequence[str] = ()) -> list[Row]:
-    return [(r.component, *(x for _, attr in SENSITIVITY_FIGURES
-                            for x in ends(r.intervals.get(attr), getattr(r, attr))),
-             r.component in lumped, r.note) for r in sens.rows]
+    """One row per component; one without its own sweep axis has empty figures, ``sampled``
+    False, and a note with how to sample it and its group's share together (%)."""
+    rows: list[Row] = []
+    for r in sens.rows:
+        note = r.note
+        if not r.sampled and (group := group_row(sens)) is not None:
+            note = f"{note}; {group[0]}: {group[1]} % of 1/Lambda"
+        rows.append((r.component, *(x for _, attr in SENSITIVITY_FIGURES
+                                    for x in ends(r.intervals.get(attr), getattr(r, attr))),
+                     r.component in lumped or not r.sampled, note, r.sampled))
+    return rows
 
 
 def sensitivity_csv(sens: Sensitivity, *, lumped: Sequence[str] = ()) -> Table:

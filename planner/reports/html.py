@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING
 
 from planner.config import Target
 from planner.fits import CONFIDENCE
+from planner.planning.model import not_sampled_note
 from planner.planning.uncertainty import replica_interval
 from planner.reports import text
 from planner.reports.formats import INTERVAL_NOTE, POINT_VALUE, estimate, num
@@ -44,8 +45,8 @@ PLOT_CAPTIONS = {
     "lambda_vs_component_scale": "Lambda against each component's own scale factor (others at today), "
                                  "ticks at the sampled factors; today's point is shared by every line.",
     "inverse_lambda_budget": "Each component's share of 1/Lambda at today's point, error bars from the "
-                             "bootstrap (hatched: lumped components without their own sweep axis, weight "
-                             "split evenly).",
+                             "bootstrap; components without their own sweep axis get no bar of their own, "
+                             "one hatched bar gives their share together.",
     "roadmap": "Logical error per cycle at the candidate distances over time at the central rates, the "
                "band at the goal distance from the bootstrap models, the goal, and the physical qubits "
                "needed to meet it.",
@@ -167,10 +168,16 @@ def model_rows(answers: Answers) -> list[Pair]:
     replicas = answers.uncertainty.models if answers.uncertainty is not None else ()
     how = "bootstrap interval" if replicas else POINT_VALUE
     for c, w in m.weights.items():
+        if not m.is_sampled(c):
+            rows.append((f"weight w_{c} (1/Lambda per unit scale)", "not sampled"))
+            continue
         iv = replica_interval(w, [r.weights[c] for r in replicas]) if replicas else None
         rows.append((f"weight w_{c} (1/Lambda per unit scale; {how})", estimate(w, iv)))
     if m.unsampled:
-        rows.append(("lumped (no own axis, weight split evenly)", ", ".join(m.unsampled)))
+        w = m.weight_together()
+        iv = replica_interval(w, [r.weight_together() for r in replicas]) if replicas else None
+        rows.append((f"not sampled separately: {', '.join(m.unsampled)} (weight together; {how})", estimate(w, iv)))
+        rows.append(("to sample them", not_sampled_note(m.unsampled)))
     return rows
 
 

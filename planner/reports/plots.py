@@ -36,9 +36,8 @@ if TYPE_CHECKING:
     from matplotlib.axes import Axes
     from matplotlib.figure import Figure
 
-    from planner.fits import LambdaFit, Threshold
+    from planner.fits import Interval, LambdaFit, Threshold
     from planner.planning.roadmap import DatedEvent, RateSet
-    from planner.planning.sensitivity import ComponentSensitivity
     from planner.planning import Answers, ResponseModel, Roadmap, Sensitivity
 
 #: colours of the axes of the sweep (own choice: distinct in print and for common colour blindness)
@@ -169,8 +168,9 @@ def _component_line(ax: Axes, pts: list[LambdaFit], name: str, *, dodge: float) 
     ax.plot(x, [iv.best for iv in ivs], "-", color=colour, linewidth=1.2)
 
 
-def lambda_components_figure(report: FitReport) -> Figure | None:
-    """Lambda against each component's own factor (others today); today's point is shared."""
+def lambda_components_figure(report: FitReport, *, unsampled: Sequence[str] = ()) -> Figure | None:
+    """Lambda against each component's own factor (others today); today's point is shared; the
+    components in ``unsampled`` (no own sweep axis) are named under the plot as not sampled."""
     names = sorted({lf.axis for lf in report.lambdas if lf.axis != "joint" and lf.suppression},
                    key=lambda c: COMPONENTS.index(c) if c in COMPONENTS else 99)
     if not names:
@@ -190,43 +190,61 @@ def lambda_components_figure(report: FitReport) -> Figure | None:
     ax.set_xlabel("component scale factor (x today's error, others today; ticks: sampled)")
     ax.set_ylabel("suppression factor Lambda (eps_d / eps_d+2)")
     title(ax, f"Lambda against each component ({CL} intervals)")
+    if unsampled:
+        ax.text(0.01, 0.01, f"not sampled: {', '.join(unsampled)} (no own sweep axis; add to sweep.components\n"
+                "and run `planner sweep TARGET`)", transform=ax.transAxes, fontsize=7, va="bottom", color="#555555")
     fixed_ticks(ax.xaxis, factors)
     ax.grid(True, which="both", alpha=0.25)
     ax.legend(fontsize=8)
     return fig
 
 
-def _share_bars(ax: Axes, rows: list[ComponentSensitivity], lumped: tuple[str, ...]) -> bool:
-    """The bars of the budget plot, each labelled with its share and interval; whether any has
-    an interval (error bars)."""
-    labels = [r.component + (" (lumped)" if r.component in lumped else "") for r in rows]
-    shares = np.array([100 * r.share for r in rows])
+def _bar_data(sens: Sensitivity) -> tuple[list[str], list[float], list[Interval | None], list[str]]:
+    """Labels, shares, intervals and colours of the budget bars, bottom first: the components with
+    their own axis, and on top one bar for those without, together (none of their own)."""
+    rows = [r for r in reversed(sens.rows) if r.sampled]
+    labels = [r.component for r in rows]
+    shares = [float(r.share or 0.0) for r in rows]
     ivs = [r.intervals.get("share") for r in rows]
-    lo = np.array([100 * (r.share - iv.low) if iv else 0.0 for r, iv in zip(rows, ivs)])
-    hi = np.array([100 * (iv.high - r.share) if iv else 0.0 for r, iv in zip(rows, ivs)])
+    colours = [COLOURS.get(r.component, "#444444") for r in rows]
+    if sens.unsampled and sens.unsampled_share is not None:
+        labels.insert(0, f"not sampled separately:\n{', '.join(sens.unsampled)}")
+        shares.insert(0, sens.unsampled_share)
+        ivs.insert(0, sens.unsampled_share_interval)
+        colours.insert(0, "#bbbbbb")
+    return labels, shares, ivs, colours
+
+
+def _share_bars(ax: Axes, sens: Sensitivity) -> bool:
+    """The bars of the budget plot, each labelled with its share and interval (the group of
+    components without their own axis hatched); whether any has an interval (error bars)."""
+    labels, shares, ivs, colours = _bar_data(sens)
+    share = np.array([100 * x for x in shares])
+    lo = np.array([100 * (x - iv.low) if iv else 0.0 for x, iv in zip(shares, ivs)])
+    hi = np.array([100 * (iv.high - x) if iv else 0.0 for x, iv in zip(shares, ivs)])
     has_iv = any(iv is not None for iv in ivs)
-    bars = ax.barh(labels, shares, color=[COLOURS.get(r.component, "#444444") for r in rows],
+    bars = ax.barh(labels, share, color=colours,
                    xerr=[np.clip(lo, 0, None), np.clip(hi, 0, None)] if has_iv else None,
                    error_kw={"ecolor": "#222222", "capsize": 3, "elinewidth": 1.0})
-    for bar, r in zip(bars, rows):
-        if r.component in lumped:
-            bar.set_hatch("//")
-    for y, (r, iv, top) in enumerate(zip(rows, ivs, shares + hi)):
-        ax.text(top, y, f"  {percent(r.share, iv)} %", va="center", fontsize=8)
+    if sens.unsampled:
+        bars[0].set_hatch("//")
+    for y, (x, iv, top) in enumerate(zip(shares, ivs, share + hi)):
+        ax.text(top, y, f"  {percent(x, iv)} %", va="center", fontsize=8)
     # room right of the longest bar for its "best [low, high] %" label
-    ax.set_xlim(0, max(list(shares + hi) + [1.0]) * 1.7)
+    ax.set_xlim(0, max(list(share + hi) + [1.0]) * 1.7)
     return has_iv
 
 
 def budget_figure(sens: Sensitivity | None, *, lumped: tuple[str, ...] = ()) -> Figure | None:
     """Each component's share of 1/Lambda at today's point (horizontal bars, most limiting on top),
-    error bars from the bootstrap intervals of the shares when there are any."""
+    error bars from the bootstrap intervals of the shares when there are any. Components without
+    their own sweep axis (``sens.unsampled``; ``lumped`` is kept for callers) get no bar of their
+    own: one hatched bar "not sampled separately" gives their share together."""
     if sens is None or not sens.rows:
         return None
-    rows = list(reversed(sens.rows))
-    fig, axs = figure(6.4, 0.5 * len(rows) + 1.6)
+    fig, axs = figure(6.4, 0.5 * len(_bar_data(sens)[0]) + 1.6)
     ax = axs[0][0]
-    has_iv = _share_bars(ax, rows, lumped)
+    has_iv = _share_bars(ax, sens)
     ax.set_xlabel("share of 1/Lambda at today's point (%)")
     lam = estimate(sens.suppression_today, sens.suppression_today_interval)
     how = f"error bars: {CL} bootstrap" if has_iv else "best values, no bootstrap"
@@ -329,7 +347,7 @@ def figures(answers: Answers, *, target: Target) -> dict[str, Figure]:
     figs = {
         "logical_error_vs_distance": rates_figure(report, goal=target.goal.logical_error_per_cycle),
         "lambda_vs_joint_scale": lambda_joint_figure(report, answers.model),
-        "lambda_vs_component_scale": lambda_components_figure(report),
+        "lambda_vs_component_scale": lambda_components_figure(report, unsampled=tuple(lumped)),
         "inverse_lambda_budget": budget_figure(answers.sensitivity, lumped=tuple(lumped)),
         "roadmap": roadmap_figure(answers.roadmap, answers.model, target,
                                   models=answers.uncertainty.models if answers.uncertainty else ()),

@@ -13,7 +13,15 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-from planner.reports.cells import event_rows, goal_distance, lever_cells, mix_cells, sensitivity_cells, step_cells
+from planner.reports.cells import (
+    event_rows,
+    goal_distance,
+    group_row,
+    lever_cells,
+    mix_cells,
+    sensitivity_cells,
+    step_cells,
+)
 from planner.reports.formats import CL, EXTRAPOLATED, ZERO_ERRORS, estimate, interval, num, rate
 from planner.reports.jsondoc import json_text
 from planner.reports.table import Table
@@ -80,7 +88,7 @@ def render_fits(report: FitReport, console: Console, model: ResponseModel | None
     if model is not None:
         say(console, "Response model:", f"{model.form} form;", "fit quality:", *words(model.quality.summary()))
         if model.unsampled:
-            say(console, "  lumped (no own axis):", *words(", ".join(model.unsampled)))
+            say(console, "  not sampled (no own sweep axis, fitted together):", *words(", ".join(model.unsampled)))
     for n in report.notes:
         say(console, "note:", *words(n))
 
@@ -226,6 +234,8 @@ def render_sensitivity(sens: Sensitivity, console: Console) -> None:
     quad = sens.model_form != "linear"
     columns = ("share", *(["elasticity"] if quad else []), "halved", "perfect", "earlier")
     rows = [[r.component, *(c[k] for k in columns)] for r in sens.rows for c in [sensitivity_cells(r)]]
+    if (group := group_row(sens, short=True)) is not None:
+        rows.append([group[0], group[1], *["—"] * (len(columns) - 1)])
     cl = f"{CL}, bootstrap" if sens.num_replicas else "best values, no bootstrap"
     say(console, "Lambda today (model):", estimate(sens.suppression_today, sens.suppression_today_interval) + ".")
     print_table(console, Table(
@@ -237,7 +247,7 @@ def render_sensitivity(sens: Sensitivity, console: Console) -> None:
                + "halved, perfect: Lambda with that component's error halved or removed; earlier: months the "
                f"goal comes sooner if its error fell {sens.faster_points:.0%} more per year",),
         fold_titles=(f"Months earlier to the goal, per component ({cl})",)))
-    footnotes(console, [f"{r.component}: {r.note}" for r in sens.rows if r.note])
+    footnotes(console, [f"{r.component}: {r.note}" for r in sens.rows if r.note and r.sampled])
     say(console, "Model:", f"{sens.model_form} form;", "fit quality:", *words(sens.model_quality))
     if sens.note:
         say(console, "note:", *words(sens.note))

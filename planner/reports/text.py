@@ -19,6 +19,7 @@ from planner.fits import CONFIDENCE, FitReport, Interval
 from planner.reports.cells import (
     event_rows,
     goal_distance,
+    group_row,
     lambda_today_model,
     lever_cells,
     lever_note,
@@ -214,12 +215,16 @@ def roadmap_tables(rm: Roadmap) -> list[Table]:
 
 
 def sensitivity_tables(sens: Sensitivity, *, lumped: Sequence[str] = ()) -> list[Table]:
-    """Shares of the 1/Lambda budget at today's point, most limiting first, with their intervals."""
+    """Shares of the 1/Lambda budget at today's point, most limiting first, with their intervals;
+    components without their own sweep axis (``lumped``, also in ``sens.unsampled``) read "not
+    sampled" and get one row together."""
     rows = []
     for r in sens.rows:
         c = sensitivity_cells(r)
-        rows.append((r.component + (" (lumped)" if r.component in lumped else ""), c["share"], c["elasticity"],
-                     c["halved"], c["perfect"], c["earlier"], r.note))
+        rows.append((r.component, c["share"], c["elasticity"], c["halved"], c["perfect"], c["earlier"], r.note))
+    if (group := group_row(sens)) is not None:
+        rows.append((group[0], group[1], "—", "—", "—", "—",
+                     "their weight is fitted together (they move only with the joint factor)"))
     source = (f"Intervals: best [low, high] over {sens.num_replicas} bootstrap models of the fit, at the "
               "central rates (the spreads of the rates are not in them)." if sens.num_replicas
               else f"Figures: {POINT_VALUE}.")

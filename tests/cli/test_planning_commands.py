@@ -91,7 +91,10 @@ def test_roadmap_and_sensitivity_json(out_dir):
     assert rm["goal"]["date"] is not None and rm["steps"][0]["date"] == "2026-01-01"
     sens = one_json(runner.invoke(app, ["sensitivity", str(out_dir), "--json"]))
     assert sens["components"][0]["component"] == "gate_2q"  # the 2q gate dominates at these invented numbers
-    assert abs(sum(r["share_of_inverse_lambda"] for r in sens["components"]) - 1) < 1e-9
+    # components without their own axis have no share (null): their group's share together completes 1
+    together = sens["not_sampled"]["share_of_inverse_lambda"] or 0.0
+    assert all(r["share_of_inverse_lambda"] is None for r in sens["components"] if not r["sampled"])
+    assert abs(sum(r["share_of_inverse_lambda"] for r in sens["components"] if r["sampled"]) + together - 1) < 1e-9
 
 
 def test_calculator_mode():

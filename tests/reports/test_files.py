@@ -155,7 +155,14 @@ def test_csv_files_have_the_expected_columns(built: Built) -> None:
     assert _header(built.out / "sensitivity.csv") == list(files.SENSITIVITY_COLUMNS)
     sens = _read_csv(built.out / "sensitivity.csv")
     assert sorted(r["component"] for r in sens) == sorted(COMPONENTS)
-    assert math.isclose(sum(float(r["share_of_inverse_lambda"]) for r in sens), 1.0, rel_tol=1e-9)
+    # components without their own axis (here all but gate_2q and readout) have no share of their
+    # own: empty, "sampled" false; the sampled shares and the group's share together make 1
+    unsampled = built.answers.sensitivity.unsampled
+    assert unsampled and all(r["share_of_inverse_lambda"] == "" and r["sampled"] == "false"
+                             for r in sens if r["component"] in unsampled)
+    together = built.answers.sensitivity.unsampled_share
+    assert math.isclose(sum(float(r["share_of_inverse_lambda"]) for r in sens if r["component"] not in unsampled)
+                        + together, 1.0, rel_tol=1e-9)
     rm = built.answers.roadmap
     head = _header(built.out / "roadmap.csv")
     assert head[:2] == ["date", "years"]
@@ -365,6 +372,14 @@ def test_requirement_intervals_agree_across_json_csv_markdown_html(built: Built)
     assert mix["reachable"]
     for lever in (req["joint"], *req["components"]):
         name, iv = lever["lever"], lever["suppression_factor_interval"]
+        if not lever["sampled"]:  # no own sweep axis: no factor, no Lambda, no verdict, no mix factor
+            assert lever["reachable"] is None and lever["factor"] is None and iv is None, name
+            row = csv_rows[("suppression_factor_reached", name)]
+            assert (row["best"], row["low"], row["high"], row["reachable"]) == ("", "", "", ""), name
+            assert md_rows[name][1:6] == ["not sampled", "—", "not sampled", "—", "—"], name
+            assert mix["scales"][name] == 1.0 and name in mix["not_sampled"] and name not in mix["scale_intervals"]
+            checked += 2
+            continue
         assert _csv_iv(csv_rows[("suppression_factor_reached", name)]) == _json_iv(iv)
         assert md_rows[name][2] == ("" if lever["reachable"] else "max ") + _shown(iv)
         checked += 1
@@ -456,7 +471,11 @@ def test_budget_plot_error_bars_are_the_share_intervals(built: Built) -> None:
     bars = [c for c in ax.containers if hasattr(c, "has_xerr") and c.has_xerr]
     assert len(bars) == 1
     segs = bars[0].lines[2][0].get_segments()  # one horizontal segment per bar, bottom bar first
-    want = [(100 * r.intervals["share"].low, 100 * r.intervals["share"].high) for r in reversed(sens.rows)]
+    # components without their own axis have no bar: one bar gives their share together (on top)
+    want = [(100 * r.intervals["share"].low, 100 * r.intervals["share"].high) for r in reversed(sens.rows)
+            if r.sampled]
+    iv = sens.unsampled_share_interval
+    want.insert(0, (100 * iv.low, 100 * iv.high))
     got = [(float(s[:, 0].min()), float(s[:, 0].max())) for s in segs]
     assert np.allclose(got, want, rtol=0, atol=1e-9), (got, want)
 
