@@ -12,20 +12,9 @@ from typer.testing import CliRunner
 
 from planner.cli import app
 from tests.helpers.sampled import SampleOnce, copy_out
+from tests.helpers.targets import TINY_REPETITION
 
-TINY = """
-[device]
-name = "tiny invented chip"
-[device.preset]
-model = "sd6"
-p = {p}
-[goal]
-logical_error_per_cycle = 1e-6
-[sweep]
-code = "repetition"
-distances = [3, 5]
-joint_scales = [0.5, 1.0]
-"""
+TINY = TINY_REPETITION
 
 runner = CliRunner()
 

@@ -25,6 +25,7 @@ from typer.testing import CliRunner
 from planner.cli import app
 from planner.sampling.dask import ClusterError, WorkerCount, connect, dask_log_level, parse_cluster
 from planner.errors import InputError
+from tests.helpers.targets import TINY_REPETITION
 from planner.store.lock import LOCK_NAME, out_dir_lock
 from planner.sampling import SweepProgress, WorkItem, check_workers, max_workers, run_sweep
 from planner.store import SampleStore
@@ -33,19 +34,7 @@ from planner.sweep import StoppingRule
 runner = CliRunner()
 PLANNER = [sys.executable, "-m", "planner"]
 
-TINY = """
-[device]
-name = "tiny invented chip"
-[device.preset]
-model = "sd6"
-p = {p}
-[goal]
-logical_error_per_cycle = 1e-6
-[sweep]
-code = "repetition"
-distances = [3, 5]
-joint_scales = [0.5, 1.0]
-"""
+TINY = TINY_REPETITION
 
 
 def _target(tmp_path: Path, p: float = 0.02) -> Path:

@@ -25,22 +25,11 @@ from planner.store import read_manifest, write_manifest, write_target_copy
 from planner.jobs.review import load_out_dir
 from planner.store import HEADER, SampleStore
 from tests.helpers.sampled import SampleOnce, copy_out
+from tests.helpers.targets import TINY_REPETITION
 
 runner = CliRunner()
 
-TINY = """
-[device]
-name = "tiny invented chip"
-[device.preset]
-model = "sd6"
-p = {p}
-[goal]
-logical_error_per_cycle = 1e-6
-[sweep]
-code = "repetition"
-distances = [3, 5]
-joint_scales = [0.5, 1.0]
-"""
+TINY = TINY_REPETITION
 
 
 # ---------------------------------------------------------------------------------------------
