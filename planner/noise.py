@@ -24,8 +24,10 @@ Scale 1 is today, 0 is a perfect component.
 from __future__ import annotations
 
 import dataclasses
+import functools
 import math
-from collections.abc import Mapping
+import os
+from collections.abc import Iterable, Mapping
 from typing import Any
 
 from planner.config import COMPONENTS, MAX_PROBABILITY, Target, coherence_problem
@@ -87,6 +89,40 @@ def _compose_depolarizing(p: float, times: int) -> float:
     return 0.75 * (1 - (1 - 4 * p / 3) ** times)
 
 
+Coords = tuple[float, float]
+
+
+@dataclasses.dataclass(frozen=True)
+class QubitNoise:
+    """One qubit's own values at ``coords`` (the circuits' qubit coordinates); None is the
+    component value. Gate errors are Pauli probabilities (an RB infidelity is converted first)."""
+
+    coords: Coords
+    gate_1q: float | None = None
+    readout: float | None = None
+    reset: float | None = None
+    t1_us: float | None = None
+    t2_us: float | None = None
+    idle_excess: float | None = None
+    idle_measure_excess: float | None = None
+    #: where the values came from, for error messages (not part of the model's identity)
+    origin: str = dataclasses.field(default="", compare=False, repr=False)
+
+
+@dataclasses.dataclass(frozen=True)
+class PairNoise:
+    """One coupled pair's own two-qubit Pauli error; ``coords`` in ascending order."""
+
+    coords: tuple[Coords, Coords]
+    gate_2q: float
+    origin: str = dataclasses.field(default="", compare=False, repr=False)
+
+
+#: per-qubit field -> the component whose scale factor multiplies it
+QUBIT_COMPONENT: dict[str, str] = {"gate_1q": "gate_1q", "readout": "readout", "reset": "reset",
+                                   "idle_excess": "idle", "idle_measure_excess": "idle_measure"}
+
+
 @dataclasses.dataclass(frozen=True)
 class NoiseModel:
     """Today's error budget of a device and a scale factor per component (see module doc).
@@ -110,6 +146,9 @@ class NoiseModel:
     native_2q: str = "cz"
     label: str = "device"
     scales: tuple[tuple[str, float], ...] = ()
+    #: each listed qubit's and pair's own values (the rest use the component values)
+    qubits: tuple[QubitNoise, ...] = ()
+    pairs: tuple[PairNoise, ...] = ()
 
     # ---- constructors ---------------------------------------------------------------------
 
@@ -133,6 +172,7 @@ class NoiseModel:
             idle_excess=e.idle_excess, idle_measure_excess=e.idle_measure_excess,
             gate_1q_ns=t.gate_1q_ns, gate_2q_ns=t.gate_2q_ns, measure_ns=t.measure_ns,
             reset_ns=t.reset_ns, native_2q=dev.native_2q, label=dev.name,
+            qubits=qubit_noise_from_target(target), pairs=pair_noise_from_target(target),
         )
         model.check()
         return model
@@ -179,21 +219,49 @@ class NoiseModel:
 
     # ---- probabilities as placed ----------------------------------------------------------
 
-    def probability(self, component: str) -> float:
-        """Scaled probability of a gate/readout/reset component (per operation)."""
+    def probability(self, component: str, *, at: Coords | tuple[Coords, Coords] | None = None) -> float:
+        """Scaled probability of a gate/readout/reset component (per operation); ``at``: the
+        qubit's coordinates (a pair's two, for ``gate_2q``) to use its own value where it has one."""
         base = {"gate_1q": self.gate_1q, "gate_2q": self.gate_2q, "readout": self.readout,
                 "reset": self.reset}
         if component not in base:
             raise KeyError(f"{component} is an idle component: use idle_channel()")
-        return base[component] * self.scale(component)
+        value = base[component]
+        if at is not None and component == "gate_2q":
+            pair = self._pair_map.get(tuple(sorted(at)))  # type: ignore[arg-type]
+            value = pair.gate_2q if pair is not None else value
+        elif at is not None:
+            value = self.qubit_value(component, at)  # type: ignore[arg-type]
+        return value * self.scale(component)
 
-    def idle_channel(self, *, duration_ns: float, during_measure: bool) -> tuple[PauliChannel, float]:
+    def qubit_value(self, name: str, at: Coords) -> float:
+        """The qubit's own unscaled value of a :class:`QubitNoise` field, else the component's."""
+        own = self._qubit_map.get(at)
+        value = getattr(own, name) if own is not None else None
+        return value if value is not None else getattr(self, name)
+
+    @functools.cached_property
+    def _qubit_map(self) -> dict[Coords, QubitNoise]:
+        return {q.coords: q for q in self.qubits}
+
+    @functools.cached_property
+    def _pair_map(self) -> dict[tuple[Coords, Coords], PairNoise]:
+        return {p.coords: p for p in self.pairs}
+
+    def idle_channel(self, *, duration_ns: float, during_measure: bool,
+                     at: Coords | None = None) -> tuple[PauliChannel, float]:
         """(twirled T1/T2 channel, excess DEPOLARIZE1 probability) for one idle qubit in one layer,
-        both already scaled by ``idle`` (gate layers) or ``idle_measure`` (measure/reset layers)."""
+        both already scaled by ``idle`` (gate layers) or ``idle_measure`` (measure/reset layers);
+        ``at``: the qubit's coordinates, to use its own T1, T2 and excess where it has them."""
         comp = "idle_measure" if during_measure else "idle"
-        excess = self.idle_measure_excess if during_measure else self.idle_excess
+        name = "idle_measure_excess" if during_measure else "idle_excess"
+        if at is None or at not in self._qubit_map:
+            excess, t1, t2 = getattr(self, name), self.t1_us, self.t2_us
+        else:
+            excess = self.qubit_value(name, at)
+            t1, t2 = self.qubit_value("t1_us", at), self.qubit_value("t2_us", at)
         s = self.scale(comp)
-        twirl = twirl_idle(duration_ns=duration_ns, t1_us=self.t1_us, t2_us=self.t2_us)
+        twirl = twirl_idle(duration_ns=duration_ns, t1_us=t1, t2_us=t2)
         return twirl.scaled(s), excess * s
 
     def layer_duration_ns(self, *, has_2q: bool, has_1q: bool, has_measure: bool, has_reset: bool) -> float:
@@ -208,15 +276,19 @@ class NoiseModel:
 
     def check(self) -> None:
         """Raise :class:`~planner.errors.InputError` (a ValueError) if any scaled probability leaves
-        its meaningful range (:data:`~planner.config.MAX_PROBABILITY`)."""
+        its meaningful range (:data:`~planner.config.MAX_PROBABILITY`), for the component values
+        and every qubit's and pair's own."""
+        places: list[Any] = [None, *(q.coords for q in self.qubits)]
         for comp in ("gate_1q", "gate_2q", "readout", "reset"):
-            p = self.probability(comp)
-            if not 0 <= p <= MAX_PROBABILITY[comp]:
-                raise InputError(f"scaled probability {p:g} is outside [0, {MAX_PROBABILITY[comp]:g}]"
-                                 f" (scale {self.scale(comp):g})", field=comp)
+            for at in ([None, *(p.coords for p in self.pairs)] if comp == "gate_2q" else places):
+                p = self.probability(comp, at=at)
+                if not 0 <= p <= MAX_PROBABILITY[comp]:
+                    where = "" if at is None else f" at {at}"
+                    raise InputError(f"scaled probability {p:g}{where} is outside [0, "
+                                     f"{MAX_PROBABILITY[comp]:g}] (scale {self.scale(comp):g})", field=comp)
         longest = max(self.gate_1q_ns, self.gate_2q_ns, self.measure_ns + self.reset_ns)
-        for measure in (False, True):
-            twirl, excess = self.idle_channel(duration_ns=longest, during_measure=measure)
+        for measure, at in ((m, at) for m in (False, True) for at in places):
+            twirl, excess = self.idle_channel(duration_ns=longest, during_measure=measure, at=at)
             comp = "idle_measure" if measure else "idle"
             if twirl.total > MAX_PROBABILITY[comp] or excess > MAX_PROBABILITY[comp]:
                 raise InputError(f"scaled idle error {twirl.total + excess:g} is too large "
@@ -241,3 +313,57 @@ class NoiseModel:
         tw, ex = self.idle_channel(duration_ns=self.measure_ns + self.reset_ns, during_measure=True)
         out["idle_measure"] = tw.total + ex
         return out
+
+
+# ---------------------------------------------------------------------------------------------
+# per-qubit and per-pair values of a target (planner.config.qubits), as the model holds them
+
+
+def qubit_noise_from_target(target: Target) -> tuple[QubitNoise, ...]:
+    """Each listed qubit's own values (RB infidelities converted like the component's)."""
+    dev = target.device
+    out = []
+    for key, v in sorted(dev.qubits.items(), key=lambda kv: _coords(kv[0])):
+        g1 = v.gate_1q if v.gate_1q_infidelity is None else pauli_error_from_infidelity(
+            v.gate_1q_infidelity, num_qubits=1)
+        out.append(QubitNoise(coords=_coords(key), gate_1q=g1, readout=v.readout, reset=v.reset,
+                              t1_us=v.t1_us, t2_us=v.t2_us, idle_excess=v.idle_excess,
+                              idle_measure_excess=v.idle_measure_excess,
+                              origin=_origin(target, table=dev.qubit_table, inline="qubits", key=key)))
+    return tuple(out)
+
+
+def pair_noise_from_target(target: Target) -> tuple[PairNoise, ...]:
+    """Each listed pair's own two-qubit Pauli error (pairs giving neither value are left out)."""
+    dev = target.device
+    out = []
+    for key, v in sorted(dev.pairs.items()):
+        if v.gate_2q is None and v.gate_2q_infidelity is None:
+            continue
+        g2 = v.gate_2q if v.gate_2q is not None else pauli_error_from_infidelity(
+            v.gate_2q_infidelity or 0.0, num_qubits=2)
+        a, b = key.split("-")
+        out.append(PairNoise(coords=(_coords(a), _coords(b)), gate_2q=g2,
+                             origin=_origin(target, table=dev.pair_table, inline="pairs", key=key)))
+    return tuple(out)
+
+
+def _origin(target: Target, *, table: str | None, inline: str, key: str) -> str:
+    """Where an entry came from, for error messages: the CSV table (relative to the target file)
+    when there is one (inline entries override its rows), else the target's inline table."""
+    if table is not None:
+        base = os.path.dirname(target.source) if target.source != "<memory>" else ""
+        return f"{os.path.join(base, table)}: {key} (or {target.source}: device.{inline}.\"{key}\")"
+    return f'{target.source}: device.{inline}."{key}"'
+
+
+def _coords(key: str) -> Coords:
+    x, y = key.split(",")
+    return float(x), float(y)
+
+
+def with_qubits(model: NoiseModel, qubits: Iterable[QubitNoise], pairs: Iterable[PairNoise]) -> NoiseModel:
+    """A copy of ``model`` with these per-qubit and per-pair values instead of its own (checked)."""
+    out = dataclasses.replace(model, qubits=tuple(qubits), pairs=tuple(pairs))
+    out.check()
+    return out

@@ -27,6 +27,11 @@ Choices made here (they change sampled numbers, so they are stated once):
   kept (never unrolled), so Hadamards across its boundary are left as they are.
 - Channels whose probability is 0 are left out, so a perfect component leaves no instruction.
 - Probabilities carry the 6 significant digits of stim's text form (what sinter samples).
+- A qubit (a pair) with its own values in the model (a per-qubit table) gets its own
+  probability: each channel is one instruction per distinct probability, in the order the
+  targets first appear, so a model whose every qubit has the component values gives exactly the
+  circuit of the component values alone. Qubits are matched by their coordinates
+  (:mod:`planner.circuits.layout`).
 
 This module builds circuits; it samples nothing.
 """
@@ -49,12 +54,24 @@ from planner.circuits.layers import (
     _qubits_of,
     _to_cz,
 )
-from planner.circuits.placement import _emit
+from planner.circuits.layout import (
+    ROLES,
+    Layout,
+    LayoutQubit,
+    check_coordinates,
+    circuit_coordinates,
+    coords_text,
+    layout_rows,
+    qubit_layout,
+)
+from planner.circuits.placement import _emit, where_for
 from planner.config import distance_problem, size_problem
 from planner.errors import InputError
 from planner.noise import NoiseModel
 
-__all__ = ["CODES", "LayerSummary", "build_memory_circuit", "layer_summary", "noiseless_memory_circuit"]
+__all__ = ["CODES", "ROLES", "LayerSummary", "Layout", "LayoutQubit", "build_memory_circuit", "check_coordinates",
+           "circuit_coordinates", "coords_text", "layer_summary", "layout_rows", "noiseless_memory_circuit",
+           "qubit_layout"]
 
 CODES: tuple[str, ...] = ("surface", "repetition")
 
@@ -107,9 +124,12 @@ def build_memory_circuit(model: NoiseModel, *, code: str, distance: int, rounds:
     if model.native_2q == "cz":
         items = _to_cz(items)
     qubits = sorted(_qubits_of(items))
+    if model.qubits or model.pairs:
+        check_coordinates(model, code=code)
+    where = where_for(model, qubits, circuit_coordinates(base, code=code))
     out = stim.Circuit()
     last = max((i for i, it in enumerate(items) if isinstance(it, _Layer)), default=-1)
-    _emit(items, model=model, qubits=qubits, out=out, final_index=last)
+    _emit(items, model=model, where=where, out=out, final_index=last)
     # stim writes (and pickles, which is how sinter ships tasks to its workers) arguments with 6
     # significant digits: return that circuit, so the one printed, hashed and sampled are one
     return stim.Circuit(str(out))

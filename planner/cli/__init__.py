@@ -25,10 +25,12 @@ from planner.cli import (
     ask,
     circuit,
     fit,
+    layout,
     merge,
     roadmap,
     run,
     sensitivity,
+    spread,
     status,
     sweep,
     verify,
@@ -101,6 +103,8 @@ def _root() -> None:
 
 for _module in (run, sweep, fit, ask, roadmap, sensitivity, verify, circuit, merge, status):
     _module.register(app)
+layout.register(app)
+spread.register(app)
 
 
 def main() -> None:

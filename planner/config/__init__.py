@@ -39,6 +39,7 @@ from planner.config.limits import (
     size_problem,
 )
 from planner.config.messages import describe_validation_error
+from planner.config.qubits import resolve_tables
 from planner.config.schema import (
     PRESET_NATIVE_2Q,
     Coherence,
@@ -124,6 +125,7 @@ def parse_target(text: str | bytes, *, source: str = "<memory>") -> Target:
     except ValidationError as exc:
         raise InputError(describe_validation_error(exc, doc, source)) from None
     target = target.model_copy(update={"source": source, "sha256": hashlib.sha256(data).hexdigest()})
+    target = resolve_tables(target)  # per-qubit CSV tables, relative to the target file
     check_consistency(target, source)
     return target
 

@@ -4,6 +4,7 @@ preset excludes, physical ranges, the grid's size); each names the key it refuse
 from __future__ import annotations
 
 from planner.config.limits import ERROR_LIMITS, MAX_PROBABILITY, MAX_TASKS, coherence_problem, size_problem
+from planner.config.qubits import qubits_problem
 from planner.config.schema import PRESET_NATIVE_2Q, Device, Target
 from planner.errors import InputError
 
@@ -107,7 +108,7 @@ def _sweep_problem(t: Target) -> Problem:
 def check_consistency(t: Target, source: str) -> None:
     """Raise :class:`InputError` (``source: key: problem``) for the first check that fails."""
     device = _budget_problem(t.device) if t.device.preset is None else _preset_problem(t.device)
-    problem = device or _roadmap_problem(t) or _sweep_problem(t)
+    problem = device or qubits_problem(t) or _roadmap_problem(t) or _sweep_problem(t)
     if problem is not None:
         key, text = problem
         raise InputError(text, field=key, source=source)

@@ -10,7 +10,16 @@ import unicodedata
 from pathlib import Path
 from typing import Annotated, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, Strict, field_validator, model_validator
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    SerializerFunctionWrapHandler,
+    Strict,
+    field_validator,
+    model_serializer,
+    model_validator,
+)
 
 from planner.config.limits import (
     COMPONENTS,
@@ -22,6 +31,7 @@ from planner.config.limits import (
     MIN_START,
     distance_problem,
 )
+from planner.config.qubits import PairValues, QubitValues, Spread, inline_pairs, inline_qubits
 
 
 def _plain_text(value: str) -> str:
@@ -117,6 +127,42 @@ class Device(_Frozen):
             if isinstance(model, str) and model in PRESET_NATIVE_2Q:
                 return {**data, "native_2q": PRESET_NATIVE_2Q[model]}
         return data
+
+    # ---- per-qubit and per-pair values (planner.config.qubits) -----------------------------
+    #: each qubit's own values, keyed "x,y" (after loading: the CSV table's rows too)
+    qubits: dict[str, QubitValues] = {}
+    #: each coupled pair's own two-qubit error, keyed "x1,y1-x2,y2" (smaller coordinate first)
+    pairs: dict[str, PairValues] = {}
+    #: CSV files of per-qubit / per-pair values, relative to the target file
+    qubit_table: str | None = None
+    pair_table: str | None = None
+    #: qubit-to-qubit spread for `planner spread` (decides no sampled circuit: not hashed)
+    spread: Spread | None = None
+
+    @field_validator("qubits", mode="before")
+    @classmethod
+    def _qubits(cls, v: object) -> object:
+        return inline_qubits(v)
+
+    @field_validator("pairs", mode="before")
+    @classmethod
+    def _pairs(cls, v: object) -> object:
+        return inline_pairs(v)
+
+    @field_validator("qubit_table", "pair_table")
+    @classmethod
+    def _table_path(cls, v: str | None) -> str | None:
+        return None if v is None else _plain_text(v)
+
+    @model_serializer(mode="wrap")
+    def _without_empty_tables(self, handler: SerializerFunctionWrapHandler) -> dict[str, object]:
+        """A device without tables dumps (and hashes) as before they existed; the spread never
+        decides a sampled circuit, so it is left out too."""
+        out = handler(self)
+        for key in ("qubits", "pairs", "qubit_table", "pair_table", "spread"):
+            if key == "spread" or not out.get(key):
+                out.pop(key, None)
+        return out
 
 
 class Goal(_Frozen):
