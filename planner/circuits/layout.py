@@ -87,20 +87,7 @@ def qubit_layout(*, code: str, distance: int) -> Layout:
         raise InputError(problem, field="distance")
     circuit = stim.Circuit.generated(_GENERATORS[code], distance=distance, rounds=1)
     coords = circuit_coordinates(circuit, code=code)
-    controls: set[int] = set()
-    targets: set[int] = set()
-    measured: set[int] = set()
-    links: dict[int, set[int]] = {q: set() for q in coords}
-    for inst in circuit.flattened():
-        qs = [t.value for t in inst.targets_copy() if t.is_qubit_target]
-        if inst.name == "CX":
-            for c, t in zip(qs[::2], qs[1::2]):
-                controls.add(c)
-                targets.add(t)
-                links[c].add(t)
-                links[t].add(c)
-        elif inst.name in ("MR", "MRX"):
-            measured.update(qs)
+    controls, measured, links = _couplings(circuit, coords)
     qubits = []
     for q in sorted(coords):
         role = "data" if q not in measured else ("measure X" if q in controls else "measure Z")
@@ -108,6 +95,23 @@ def qubit_layout(*, code: str, distance: int) -> Layout:
                                   neighbours=tuple(sorted(coords[n] for n in links[q]))))
     pairs = sorted({tuple(sorted((coords[a], coords[b]))) for a in links for b in links[a]})
     return Layout(code=code, distance=distance, qubits=tuple(qubits), pairs=tuple(pairs))  # type: ignore[arg-type]
+
+
+def _couplings(circuit: stim.Circuit, coords: dict[int, Coords]) -> tuple[set[int], set[int], dict[int, set[int]]]:
+    """(CX controls, qubits measured and reset every round, qubit -> qubits it shares a CX with)."""
+    controls: set[int] = set()
+    measured: set[int] = set()
+    links: dict[int, set[int]] = {q: set() for q in coords}
+    for inst in circuit.flattened():
+        qs = [t.value for t in inst.targets_copy() if t.is_qubit_target]
+        if inst.name == "CX":
+            for c, t in zip(qs[::2], qs[1::2]):
+                controls.add(c)
+                links[c].add(t)
+                links[t].add(c)
+        elif inst.name in ("MR", "MRX"):
+            measured.update(qs)
+    return controls, measured, links
 
 
 # ---------------------------------------------------------------------------------------------

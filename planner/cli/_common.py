@@ -90,6 +90,7 @@ OPTION_OF_FIELD: dict[str, str] = {
     "qubits": "--qubits", "eps_target": "--target", "suppression": "--lambda", "eps": "--eps",
     "rounds": "--rounds", "basis": "--basis", "scales": "--scale", "max_cpu": "--max-cpu",
     "max_cpu_seconds": "--max-cpu", "save": "--save",
+    "instances": "--instances", "draw": "--draw",
 }
 
 

@@ -298,16 +298,13 @@ def _table(path: Path, *, kind: str, field: str, source: str) -> dict[str, dict[
     names = [n.strip() for n in (rows[0].keys() if rows else _header(path))]
     _check_columns(names, keys=keys, fields=fields, path=path)
     out: dict[str, dict[str, float]] = {}
-    for line, row in enumerate(rows, start=2):
-        row = {(k or "").strip(): v for k, v in row.items()}
+    for line, raw in enumerate(rows, start=2):
+        row = {(k or "").strip(): v for k, v in raw.items()}
         if None in row.values() or "" in row:
             raise InputError(f"{path}: row {line}: {len(names)} cells expected (as many as the header)")
         where = f"row {line}"
         try:
-            coords = [(row[keys[i]] or "").strip() + "," + (row[keys[i + 1]] or "").strip()
-                      for i in range(0, len(keys), 2)]
-            key = qubit_key(coords[0]) if kind == "qubit" else pair_key("-".join(coords))
-            where = f"row {line} ({key})"
+            key, where = _row_key(row, keys, kind=kind, line=line)
             if key in out:
                 raise ValueError(f"the same {kind} as an earlier row")
             out[key] = _csv_values(row, fields, where=where)
@@ -315,6 +312,13 @@ def _table(path: Path, *, kind: str, field: str, source: str) -> dict[str, dict[
             text = str(exc)
             raise InputError(f"{path}: {text if text.startswith(where) else f'{where}: {text}'}") from None
     return out
+
+
+def _row_key(row: Mapping[str, str | None], keys: tuple[str, ...], *, kind: str, line: int) -> tuple[str, str]:
+    """(canonical key, "row N (key)") of one CSV row."""
+    coords = [(row[keys[i]] or "").strip() + "," + (row[keys[i + 1]] or "").strip() for i in range(0, len(keys), 2)]
+    key = qubit_key(coords[0]) if kind == "qubit" else pair_key("-".join(coords))
+    return key, f"row {line} ({key})"
 
 
 def _header(path: Path) -> list[str]:
