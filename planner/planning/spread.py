@@ -187,29 +187,37 @@ class SpreadSummary:
                 "per_instance": list(self.per_instance), "notes": list(self.notes)}
 
 
-def summarize_spread(fits: FitReport, *, labels: Sequence[str], draw: str, seed: int,
-                     sigmas: Mapping[str, float]) -> SpreadSummary:
-    """The figures across the instances whose scale axis is one of ``labels`` (one per instance)."""
-    rng = np.random.default_rng(seed)
-    distances = tuple(sorted({p.distance for p in fits.distances if p.axis in labels}))
-    eps = {d: [p.per_cycle for p in fits.distances if p.axis in labels and p.distance == d] for d in distances}
-    lams = [lf.suppression for lf in fits.lambdas if lf.axis in labels and lf.suppression is not None]
-    per_instance = []
+def _instance_rows(fits: FitReport, labels: Sequence[str]) -> tuple[dict[str, Any], ...]:
+    rows = []
     for label in labels:
         lam = next((lf.suppression for lf in fits.lambdas if lf.axis == label), None)
-        per_instance.append({"instance": label,
-                             "logical_error_per_cycle": {str(p.distance): p.per_cycle.to_json()
-                                                         for p in fits.distances if p.axis == label},
-                             "lambda": lam.to_json() if lam is not None else None})
+        eps = {str(p.distance): p.per_cycle.to_json() for p in fits.distances if p.axis == label}
+        rows.append({"instance": label, "logical_error_per_cycle": eps,
+                     "lambda": lam.to_json() if lam is not None else None})
+    return tuple(rows)
+
+
+def _notes(fits: FitReport, labels: Sequence[str]) -> tuple[str, ...]:
     notes = []
     if len(labels) < 10:
         notes.append(f"{len(labels)} instances: the 90th percentile rests on few chips (use --instances 20 or more)")
     if any(p.zero_errors for p in fits.distances if p.axis in labels):
         notes.append("some instance saw zero errors at some distance: its rate enters at its upper bound")
+    return tuple(notes)
+
+
+def summarize_spread(fits: FitReport, *, labels: Sequence[str], draw: str, seed: int,
+                     sigmas: Mapping[str, float]) -> SpreadSummary:
+    """The figures across the instances whose scale axis is one of ``labels`` (one per instance)."""
+    rng = np.random.default_rng(seed)
+    mine = [p for p in fits.distances if p.axis in labels]
+    distances = tuple(sorted({p.distance for p in mine}))
+    eps = {d: [p.per_cycle for p in mine if p.distance == d] for d in distances}
+    lams = [lf.suppression for lf in fits.lambdas if lf.axis in labels and lf.suppression is not None]
     return SpreadSummary(
         draw=draw, instances=len(labels), seed=seed, sigmas=dict(sigmas), distances=distances,
         eps_median={d: percentile_interval(v, q=MEDIAN, rng=rng) for d, v in eps.items()},
         eps_worse={d: percentile_interval(v, q=WORSE, rng=rng) for d, v in eps.items()},
         lambda_median=percentile_interval(lams, q=MEDIAN, rng=rng) if lams else None,
         lambda_worse=percentile_interval(lams, q=100 - WORSE, rng=rng) if lams else None,
-        per_instance=tuple(per_instance), notes=tuple(notes))
+        per_instance=_instance_rows(fits, labels), notes=_notes(fits, labels))
