@@ -16,6 +16,9 @@ The public Python API: everything a notebook or a script needs, in the order of 
   intervals), or one at a time: :func:`requirements`, :func:`cheapest_mix`, :func:`calculate`
   (from measured numbers, no samples), :func:`build_roadmap`, :func:`sensitivity`;
 - checks: :func:`run_verification` samples the proposed operating points;
+- qubits: :func:`qubit_layout` and :func:`layout_rows` (the coordinates per-qubit tables are
+  keyed by, and each qubit's values in force); :func:`draw_instances` and :func:`run_spread`
+  (device instances of a spread of qubits -> :class:`SpreadSummary`);
 - reports: :func:`write_all` (and :func:`write_fits`, :func:`write_requirements`,
   :func:`write_roadmap`, :func:`write_sensitivity`, :func:`write_verification`);
 - errors: :class:`InputError` (bad input, in domain terms: ``field`` and ``allowed``).
@@ -46,6 +49,7 @@ _HOME: dict[str, str] = {
     # circuit
     "NoiseModel": "planner.noise", "build_memory_circuit": "planner.circuits",
     "build_circuit": "planner.target_circuit",
+    "qubit_layout": "planner.circuits", "layout_rows": "planner.circuits",
     # sweep
     "BUDGETS": "planner.sweep", "StoppingRule": "planner.sweep", "SweepPlan": "planner.sweep",
     "plan_sweep": "planner.sweep",
@@ -68,6 +72,9 @@ _HOME: dict[str, str] = {
     # checks
     "Verification": "planner.planning.verify", "run_verification": "planner.jobs.verify",
     "Review": "planner.jobs.review", "review": "planner.jobs.review",
+    # spread of qubits
+    "SpreadSummary": "planner.planning.spread", "draw_instances": "planner.planning.spread",
+    "run_spread": "planner.jobs.spread",
     # reports
     "write_all": "planner.reports.files", "write_fits": "planner.reports.files",
     "write_requirements": "planner.reports.files", "write_roadmap": "planner.reports.files",
@@ -78,7 +85,7 @@ __all__ = [
     # target
     "COMPONENTS", "EXAMPLE_TOML", "InputError", "Target", "load_target", "parse_target",
     # circuit
-    "NoiseModel", "build_circuit", "build_memory_circuit",
+    "NoiseModel", "build_circuit", "build_memory_circuit", "layout_rows", "qubit_layout",
     # sweep
     "BUDGETS", "OutDirSamples", "SampleStore", "StoppingRule", "SweepPlan", "SweepSummary",
     "TargetedSummary", "load_out_dir", "plan_sweep", "run_sweep", "run_targeted",
@@ -90,6 +97,8 @@ __all__ = [
     "sensitivity",
     # checks
     "Review", "Verification", "review", "run_verification",
+    # spread of qubits
+    "SpreadSummary", "draw_instances", "run_spread",
     # reports
     "write_all", "write_fits", "write_requirements", "write_roadmap", "write_sensitivity",
     "write_verification",

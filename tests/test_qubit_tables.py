@@ -165,6 +165,9 @@ BAD_TABLES = {
     "short row": ("x,y,readout\n3,3\n", "row 2: 3 cells expected"),
     "same qubit twice": ("x,y,readout\n3,3,0.01\n3.0,3,0.02\n", "the same qubit as an earlier row"),
     "empty file": ("", "empty"),
+    "comments only": ("# invented\n\n", "empty"),
+    "bad number after comments": ("# invented\nx,y,readout\n# a comment\n3,3,0.01\n1,1,abc\n",
+                                  "row 5 (1,1): readout: 'abc'"),
 }
 
 

@@ -81,7 +81,9 @@ def _csv(rows: list[dict[str, Any]], *, pairs: bool) -> str:
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(cols)
     for r in rows:
-        w.writerow([" ".join(r[c]) if c == "neighbours" else _cell(r[c]) for c in cols])
+        # full precision (repr), so a table pasted back gives exactly these values
+        w.writerow([" ".join(r[c]) if c == "neighbours" else "" if r[c] is None else repr(r[c]) if
+                    isinstance(r[c], float) else str(r[c]) for c in cols])
     return buf.getvalue()
 
 

@@ -233,7 +233,8 @@ def _inline(raw: object, *, key: Any, fields: tuple[str, ...], kind: Any) -> dic
 # CSV tables
 
 
-def _read_csv(path: Path, *, field: str, source: str) -> list[dict[str, str]]:
+def _read_csv(path: Path, *, field: str, source: str) -> tuple[list[str], list[tuple[int, dict[str, Any]]]]:
+    """(header, [(line number, row)]) of a CSV table; blank and '#' lines are skipped."""
     try:
         with path.open("rb") as f:
             data = f.read(MAX_TABLE_BYTES + 1)
@@ -245,16 +246,19 @@ def _read_csv(path: Path, *, field: str, source: str) -> list[dict[str, str]]:
         text = data.decode("utf-8-sig")
     except UnicodeDecodeError:
         raise InputError(f"{path}: not UTF-8 text", field=field, source=source) from None
-    reader = csv.DictReader(io.StringIO(text))
+    # a line starting with '#' is a comment: blanked, so line numbers in messages stay the file's
+    lines = ["" if line.lstrip().startswith("#") else line for line in text.splitlines()]
+    skip = next((k for k, line in enumerate(lines) if line.strip()), len(lines))  # to the header
+    reader = csv.DictReader(io.StringIO("\n".join(lines[skip:])))
     rows = []
     for row in reader:
         if len(rows) >= MAX_TABLE_ROWS:
             raise InputError(f"{path}: more than {MAX_TABLE_ROWS:,} rows", field=field, source=source)
-        rows.append(row)
+        rows.append((reader.line_num + skip, row))
     if reader.fieldnames is None:
         raise InputError(f"{path}: empty (give a header line, then one row per qubit)", field=field,
                          source=source)
-    return rows
+    return [n.strip() for n in reader.fieldnames], rows
 
 
 def _check_columns(names: list[str], *, keys: tuple[str, ...], fields: tuple[str, ...], path: Path) -> None:
@@ -294,11 +298,10 @@ def _table(path: Path, *, kind: str, field: str, source: str) -> dict[str, dict[
     """A qubit table (``kind`` "qubit") or a pair table ("pair"), keys canonical."""
     keys = ("x", "y") if kind == "qubit" else ("x1", "y1", "x2", "y2")
     fields = QUBIT_FIELDS if kind == "qubit" else PAIR_FIELDS
-    rows = _read_csv(path, field=field, source=source)
-    names = [n.strip() for n in (rows[0].keys() if rows else _header(path))]
+    names, rows = _read_csv(path, field=field, source=source)
     _check_columns(names, keys=keys, fields=fields, path=path)
     out: dict[str, dict[str, float]] = {}
-    for line, raw in enumerate(rows, start=2):
+    for line, raw in rows:
         row = {(k or "").strip(): v for k, v in raw.items()}
         if None in row.values() or "" in row:
             raise InputError(f"{path}: row {line}: {len(names)} cells expected (as many as the header)")
@@ -319,11 +322,6 @@ def _row_key(row: Mapping[str, str | None], keys: tuple[str, ...], *, kind: str,
     coords = [(row[keys[i]] or "").strip() + "," + (row[keys[i + 1]] or "").strip() for i in range(0, len(keys), 2)]
     key = qubit_key(coords[0]) if kind == "qubit" else pair_key("-".join(coords))
     return key, f"row {line} ({key})"
-
-
-def _header(path: Path) -> list[str]:
-    first = path.read_text(encoding="utf-8-sig").splitlines()[:1]
-    return next(csv.reader(first), []) if first else []
 
 
 def _merged(table: dict[str, dict[str, float]], inline: Mapping[str, BaseModel], kind: Any) -> dict[str, Any]:

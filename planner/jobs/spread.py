@@ -56,6 +56,9 @@ def choose_draw(target: Target, draw: str | None) -> str:
                          source=target.source)
     if draw not in DRAWS:
         raise InputError(f"{draw!r} is not a way to draw instances", field="draw", allowed=", ".join(DRAWS))
+    if draw == "table" and not has_table:
+        raise InputError("--draw table needs per-qubit or per-pair values to resample (device.qubits, "
+                         "device.qubit_table, device.pairs or device.pair_table)", source=target.source)
     if draw == "spread" and dev.spread is None:
         raise InputError("--draw spread needs a [device.spread] section (a log-normal sigma per value, "
                          "e.g. gate_2q = 0.3)", source=target.source)

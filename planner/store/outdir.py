@@ -35,6 +35,7 @@ PLANNER_ENTRIES = frozenset({
     MANIFEST, TARGET_COPY, "samples", "verify", "plots", "report.html", "fits.json",
     "requirements.md", "requirements.csv", "roadmap.md", "roadmap.csv", "roadmap_dates.csv",
     "sensitivity.md", "sensitivity.csv",
+    "spread", "spread.md", "spread.csv", "spread.json",  # planner spread (its default out is DIR/spread)
 })
 
 

@@ -142,6 +142,14 @@ MATRIX = [
     case("circuit", MAL, "--distance", "3", needle="malformed.toml: not valid TOML"),
     case("circuit", BAD, "--distance", "3", needle="device.errors.gate_2q"),
     case("circuit", T, "--distance", "4", needle="--distance"),
+    # layout
+    case("layout", _p("missing", "x.toml"), "--distance", "3", needle="x.toml: no such target file"),
+    case("layout", BAD, "--distance", "3", needle="device.errors.gate_2q"),
+    case("layout", T, "--distance", "4", needle="--distance"),
+    # spread
+    case("spread", _p("missing", "x.toml"), "--out", OUT, needle="x.toml: no such target file"),
+    case("spread", T, "--out", OUT, needle="nothing to draw instances from"),
+    case("spread", T, "--out", OUT, "--draw", "spread", needle="needs a [device.spread]"),
     # merge
     case("merge", MISS, "--out", OUT, needle="no such out directory"),
     case("merge", EMPTY, "--out", OUT, needle="manifest.json"),
