@@ -138,6 +138,8 @@ def test_spread_command_end_to_end(tmp_path: Path) -> None:
     assert eps[5]["median"]["high"] < eps[3]["median"]["low"]
     assert doc["lambda"]["median"]["best"] > 1 and doc["lambda"]["p10"]["best"] <= doc["lambda"]["median"]["best"]
     assert len(doc["per_instance"]) == 3
+    listed = {row["d"]: row["logical_error_per_cycle"] for row in doc["as_listed"]}
+    assert set(listed) == {3, 5} and doc["lambda"]["as_listed"]["best"] > 1
     assert {p.name for p in out.iterdir()} >= {"spread.md", "spread.csv", "spread.json", "samples"}
     # run again: the same seed draws the same chips, whose samples are all there
     again = run_spread(parse_target(path.read_text(), source=str(path)), out_dir=out, instances=3,

@@ -24,6 +24,8 @@ from planner.sweep import StoppingRule, bases_for, rounds_for, task_metadata
 
 __all__ = ["DEFAULT_INSTANCES", "SPREAD_RULE", "SpreadRun", "check_instances", "choose_draw", "run_spread", "spread_tasks"]
 
+#: the scale axis of the model as the target lists it (sampled beside the instances)
+LISTED = "as listed"
 #: instances drawn by default: a laptop samples them in about a minute at d <= 7
 DEFAULT_INSTANCES = 10
 #: most instances one job may draw (each is a full set of circuits)
@@ -74,10 +76,11 @@ def check_instances(instances: object) -> int:
 
 
 def spread_tasks(target: Target, instances: list[NoiseModel]) -> tuple[list[sinter.Task], list[str]]:
-    """The tasks of every instance at the target's distances and bases, and the instance labels
-    (each instance is its own scale axis, "instance K", so the fits keep them apart)."""
+    """The tasks of every model at the target's distances and bases, and their labels (each is
+    its own scale axis, so the fits keep them apart): the first model is the target's as listed
+    ("as listed"), the others the instances ("instance K")."""
     code = target.sweep.code
-    labels = [f"instance {k + 1}" for k in range(len(instances))]
+    labels = [LISTED, *(f"instance {k}" for k in range(1, len(instances)))]
     tasks = []
     for label, model in zip(labels, instances):
         for d in target.sweep.distances:
@@ -108,8 +111,9 @@ def run_spread(target: Target, *, out_dir: Path, instances: int = DEFAULT_INSTAN
                       f"of the d={layout.distance} patch", soft_wrap=True, markup=False)
     chips = draw_instances(model, layout, draw=how, count=instances, seed=seed,
                            sigmas=sigmas if how == "spread" else None)
-    tasks, labels = spread_tasks(target, chips)
+    tasks, labels = spread_tasks(target, [model, *chips])
     summary = run_sweep(tasks, store=SampleStore(out_dir), rule=rule, workers=workers, console=console)
     fits = fit_stats(list(summary.totals))
-    result = summarize_spread(fits, labels=labels, draw=how, seed=seed, sigmas=sigmas if how == "spread" else {})
+    result = summarize_spread(fits, labels=labels[1:], draw=how, seed=seed, listed=labels[0],
+                              sigmas=sigmas if how == "spread" else {})
     return SpreadRun(summary=result, out_dir=Path(out_dir), new_shots=summary.new_shots)

@@ -173,6 +173,9 @@ class SpreadSummary:
     lambda_median: Interval | None
     lambda_worse: Interval | None
     per_instance: tuple[dict[str, Any], ...]
+    #: the model as the target lists it (no draw), for comparison; empty when not sampled
+    eps_listed: dict[int, Interval] = dataclasses.field(default_factory=dict)
+    lambda_listed: Interval | None = None
     notes: tuple[str, ...] = ()
 
     def to_json(self) -> dict[str, Any]:
@@ -183,7 +186,9 @@ class SpreadSummary:
                 "confidence": CONFIDENCE,
                 "logical_error_per_cycle": [{"d": d, "median": iv(self.eps_median[d]),
                                              "p90": iv(self.eps_worse[d])} for d in self.distances],
-                "lambda": {"median": iv(self.lambda_median), "p10": iv(self.lambda_worse)},
+                "lambda": {"median": iv(self.lambda_median), "p10": iv(self.lambda_worse),
+                           "as_listed": iv(self.lambda_listed)},
+                "as_listed": [{"d": d, "logical_error_per_cycle": iv(x)} for d, x in sorted(self.eps_listed.items())],
                 "per_instance": list(self.per_instance), "notes": list(self.notes)}
 
 
@@ -206,18 +211,30 @@ def _notes(fits: FitReport, labels: Sequence[str]) -> tuple[str, ...]:
     return tuple(notes)
 
 
+def _lambdas(fits: FitReport, labels: Sequence[str]) -> list[Interval]:
+    return [lf.suppression for lf in fits.lambdas if lf.axis in labels and lf.suppression is not None]
+
+
+def _across(values: Sequence[Interval], rng: np.random.Generator, *, worse: float) -> tuple[Interval | None, ...]:
+    """(median, the ``worse`` percentile) of ``values``, (None, None) without values."""
+    if not values:
+        return None, None
+    return percentile_interval(values, q=MEDIAN, rng=rng), percentile_interval(values, q=worse, rng=rng)
+
+
 def summarize_spread(fits: FitReport, *, labels: Sequence[str], draw: str, seed: int,
-                     sigmas: Mapping[str, float]) -> SpreadSummary:
-    """The figures across the instances whose scale axis is one of ``labels`` (one per instance)."""
+                     sigmas: Mapping[str, float], listed: str | None = None) -> SpreadSummary:
+    """The figures across the instances whose scale axis is one of ``labels`` (one per instance);
+    ``listed``: the scale axis of the model as listed (no draw), reported beside them."""
     rng = np.random.default_rng(seed)
     mine = [p for p in fits.distances if p.axis in labels]
     distances = tuple(sorted({p.distance for p in mine}))
-    eps = {d: [p.per_cycle for p in mine if p.distance == d] for d in distances}
-    lams = [lf.suppression for lf in fits.lambdas if lf.axis in labels and lf.suppression is not None]
+    eps = {d: _across([p.per_cycle for p in mine if p.distance == d], rng, worse=WORSE) for d in distances}
+    lam = _across(_lambdas(fits, labels), rng, worse=100 - WORSE)
+    ref = next((lf.suppression for lf in fits.lambdas if lf.axis == listed), None)
     return SpreadSummary(
         draw=draw, instances=len(labels), seed=seed, sigmas=dict(sigmas), distances=distances,
-        eps_median={d: percentile_interval(v, q=MEDIAN, rng=rng) for d, v in eps.items()},
-        eps_worse={d: percentile_interval(v, q=WORSE, rng=rng) for d, v in eps.items()},
-        lambda_median=percentile_interval(lams, q=MEDIAN, rng=rng) if lams else None,
-        lambda_worse=percentile_interval(lams, q=100 - WORSE, rng=rng) if lams else None,
-        per_instance=_instance_rows(fits, labels), notes=_notes(fits, labels))
+        eps_median={d: v[0] for d, v in eps.items()}, eps_worse={d: v[1] for d, v in eps.items()},
+        lambda_median=lam[0], lambda_worse=lam[1],
+        per_instance=_instance_rows(fits, labels), notes=_notes(fits, labels),
+        eps_listed={p.distance: p.per_cycle for p in fits.distances if p.axis == listed}, lambda_listed=ref)
