@@ -263,3 +263,19 @@ def test_layout_rows_of_the_repetition_code() -> None:
     rows = layout_rows(NoiseModel.sd6(0.001), code="repetition", distance=3)
     assert [r["key"] for r in rows] == ["0,0", "1,0", "2,0", "3,0", "4,0"]
     assert [r["role"] for r in rows] == ["data", "measure Z", "data", "measure Z", "data"]
+
+
+def test_the_example_table_pasted_back_from_layout_gives_the_same_circuit(tmp_path: Path) -> None:
+    example = Path(__file__).resolve().parents[1] / "examples" / "qubits_demo.toml"
+    result = runner.invoke(app, ["layout", str(example), "--distance", "7", "--csv"])
+    assert result.exit_code == 0, result.stderr
+    (tmp_path / "pasted.csv").write_text(result.stdout)
+    copy = tmp_path / "copy.toml"
+    copy.write_text(example.read_text().replace('"qubits_demo.csv"', '"pasted.csv"'))
+    original = NoiseModel.from_target(load_target(example))
+    assert len(original.qubits) == 97 and len(original.pairs) == 1
+    pasted = NoiseModel.from_target(load_target(copy))
+    for d in (3, 5):
+        a = build_memory_circuit(original, code="surface", distance=d, rounds=2, basis="x")
+        b = build_memory_circuit(pasted, code="surface", distance=d, rounds=2, basis="x")
+        assert str(a) == str(b)

@@ -60,6 +60,10 @@ class Layout:
         return {q.coords: q for q in self.qubits}
 
     @functools.cached_property
+    def pair_set(self) -> frozenset[tuple[Coords, Coords]]:
+        return frozenset(self.pairs)
+
+    @functools.cached_property
     def coords_of_index(self) -> dict[int, Coords]:
         return {q.index: q.coords for q in self.qubits}
 
@@ -134,7 +138,7 @@ def _is_qubit(code: str, xy: Coords) -> bool:
 
 def _is_pair(code: str, ends: tuple[Coords, Coords]) -> bool:
     d = _smallest_distance(code, max(max(ends[0]), max(ends[1])))
-    return any(ends in set(qubit_layout(code=code, distance=k).pairs) for k in (d, d + 2) if k <= MAX_DISTANCE)
+    return any(ends in qubit_layout(code=code, distance=k).pair_set for k in (d, d + 2) if k <= MAX_DISTANCE)
 
 
 def check_coordinates(model: NoiseModel, *, code: str) -> None:
