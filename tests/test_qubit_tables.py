@@ -279,3 +279,25 @@ def test_the_example_table_pasted_back_from_layout_gives_the_same_circuit(tmp_pa
         a = build_memory_circuit(original, code="surface", distance=d, rounds=2, basis="x")
         b = build_memory_circuit(pasted, code="surface", distance=d, rounds=2, basis="x")
         assert str(a) == str(b)
+
+
+@pytest.mark.slow
+def test_an_out_directory_keeps_the_tables_its_target_names(tmp_path: Path) -> None:
+    from planner.jobs.review import load_out_dir
+    from planner.sampling import run_sweep
+    from planner.store import SampleStore
+    from planner.sweep import StoppingRule, plan_sweep
+
+    src = tmp_path / "src"
+    src.mkdir()
+    (src / "q.csv").write_text("x,y,readout\n1,0,0.04\n")
+    text = EXAMPLE_TOML.replace('native_2q = "cz"\n', 'native_2q = "cz"\nqubit_table = "q.csv"\n').replace(
+        "distances = [3, 5]", 'code = "repetition"\nbases = ["z"]\ndistances = [3, 5]')
+    (src / "rep.toml").write_text(text)
+    spec = load_target(src / "rep.toml")
+    out = tmp_path / "out"
+    run_sweep(plan_sweep(spec).tasks, store=SampleStore(out), rule=StoppingRule(max_errors=20, max_shots=2_000),
+              workers=1, target=spec)
+    assert (out / "q.csv").read_bytes() == (src / "q.csv").read_bytes()
+    copy = load_out_dir(out).target  # the target copy reads the same table
+    assert copy.device.qubits == spec.device.qubits and copy.sampling_sha256 == spec.sampling_sha256

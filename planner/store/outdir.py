@@ -171,7 +171,22 @@ def prepare_sweep_dir(out_dir: Path, *, target: Target, tasks: Sequence[sinter.T
     manifest = Manifest.for_sweep(target_sha256=target.sha256, target_name=target.name,
                                   sample_sha256=target.sampling_sha256, tasks=tasks, budget=budget,
                                   max_errors=max_errors, max_shots=max_shots)
-    return prepare_out_dir(out_dir, target_bytes=target_bytes_of(target), manifest=manifest)
+    prepared = prepare_out_dir(out_dir, target_bytes=target_bytes_of(target), manifest=manifest)
+    copy_tables(out_dir, target)
+    return prepared
+
+
+def copy_tables(out_dir: Path, target: Target) -> None:
+    """The per-qubit CSV tables the target names (relative to it) beside its copy, so that
+    ``DIR/target.toml`` reads the same tables. A table given by an absolute path is read from
+    there; one outside the target's directory ('..') cannot be placed beside the copy."""
+    base = Path(target.source).parent
+    for name in (target.device.qubit_table, target.device.pair_table):
+        if name is None or Path(name).is_absolute() or ".." in Path(name).parts:
+            continue
+        dest = Path(out_dir) / name
+        dest.parent.mkdir(parents=True, exist_ok=True)
+        atomic_write(dest, (base / name).read_bytes())
 
 
 def require_out_dir(directory: Path | str, *, hint: str = "") -> Path:
