@@ -16,6 +16,12 @@ that component's probabilities *as placed in the circuit*:
 So ``idle = 0.5`` halves the twirled idle probabilities (it is *not* a statement about T1 alone).
 Scale 1 is today, 0 is a perfect component.
 
+A model may also hold each listed qubit's own values (:class:`QubitNoise`: gate_1q, readout,
+reset, T1, T2, the idle excesses) and each listed pair's own gate_2q (:class:`PairNoise`), keyed
+by the circuits' qubit coordinates; the rest use the component values. The same formulas apply
+to them (the twirl of the qubit's own T1/T2, the RB conversion), and a component's scale factor
+multiplies every qubit's value of that component.
+
 >>> m = NoiseModel.sd6(0.001).with_scales({"gate_2q": 0.5})
 >>> m.probability("gate_2q"), m.probability("readout")
 (0.0005, 0.001)
