@@ -145,3 +145,10 @@ def test_spread_command_end_to_end(tmp_path: Path) -> None:
     again = run_spread(parse_target(path.read_text(), source=str(path)), out_dir=out, instances=3,
                        rule=StoppingRule(max_errors=1_000, max_shots=1_000_000), workers=2)
     assert again.new_shots == 0
+
+
+def test_a_bad_spread_names_its_key() -> None:
+    with pytest.raises(ValueError, match="gate2q: unknown field; did you mean 'gate_2q'"):
+        parse_target(example("[device.spread]\ngate2q = 0.3"), source="x.toml")
+    with pytest.raises(ValueError, match="device.spread.readout"):
+        parse_target(example("[device.spread]\nreadout = -0.1"), source="x.toml")

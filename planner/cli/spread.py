@@ -9,13 +9,13 @@ from typing import Annotated
 import typer
 
 from planner.cli._common import one_line_errors, say_written, stderr_console, stdout_console
-from planner.cli.options import BudgetOpt, JsonOpt, OutOpt, QuietOpt, WorkersOpt
+from planner.cli.options import BudgetOpt, JsonOpt, QuietOpt, WorkersOpt
 
 
 def register(app: typer.Typer) -> None:
     app.command("spread", no_args_is_help=True,
                 help="Draw device instances from the target's per-qubit table (resampled) or from its "
-                "[device.spread] (a log-normal sigma per value), sample each at the target's distances, "
+                "\\[device.spread] (a log-normal sigma per value), sample each at the target's distances, "
                 "and print the median and the worse tenth of chips of the logical error per cycle and of "
                 "Lambda (95% intervals); writes spread.md, .csv and .json under --out "
                 "(default out/<target>/spread).")(spread_command)
@@ -29,10 +29,11 @@ def spread_command(
         rich_help_panel="Spread")] = None,
     draw: Annotated[str | None, typer.Option(
         "--draw", metavar="table|spread", help="How to draw: resample the per-qubit table, or the "
-        "stated [device.spread] (default: spread if stated, else table).", rich_help_panel="Spread")] = None,
+        "stated \\[device.spread] (default: spread if stated, else table).", rich_help_panel="Spread")] = None,
     seed: Annotated[int, typer.Option("--seed", help="Seed of the draws (same seed, same instances).",
                                       rich_help_panel="Spread")] = 0,
-    out: OutOpt = None,
+    out: Annotated[Path | None, typer.Option(
+        "--out", help="Out directory (default: out/<target file stem>/spread).", rich_help_panel="Output")] = None,
     budget: BudgetOpt = None,
     workers: WorkersOpt = None,
     json: JsonOpt = False,

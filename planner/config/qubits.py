@@ -107,6 +107,18 @@ class Spread(_Frozen):
         return {f: float(getattr(self, f)) for f in SPREAD_FIELDS}
 
 
+def spread_keys(raw: object) -> object:
+    """``[device.spread]``'s keys checked (an unknown one suggests the nearest field); the values
+    are checked by :class:`Spread`."""
+    if isinstance(raw, Mapping):
+        for name in raw:
+            if name not in SPREAD_FIELDS:
+                near = difflib.get_close_matches(str(name), SPREAD_FIELDS, n=1, cutoff=0.5)
+                hint = f"; did you mean '{near[0]}'?" if near else ""
+                raise ValueError(f"{name}: unknown field{hint} (fields: {', '.join(SPREAD_FIELDS)})")
+    return raw
+
+
 # ---------------------------------------------------------------------------------------------
 # keys
 

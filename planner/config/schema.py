@@ -31,7 +31,7 @@ from planner.config.limits import (
     MIN_START,
     distance_problem,
 )
-from planner.config.qubits import PairValues, QubitValues, Spread, inline_pairs, inline_qubits
+from planner.config.qubits import PairValues, QubitValues, Spread, inline_pairs, inline_qubits, spread_keys
 
 
 def _plain_text(value: str) -> str:
@@ -148,6 +148,11 @@ class Device(_Frozen):
     @classmethod
     def _pairs(cls, v: object) -> object:
         return inline_pairs(v)
+
+    @field_validator("spread", mode="before")
+    @classmethod
+    def _spread(cls, v: object) -> object:
+        return spread_keys(v)
 
     @field_validator("qubit_table", "pair_table")
     @classmethod
