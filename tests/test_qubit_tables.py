@@ -199,10 +199,11 @@ def test_a_bad_inline_table_is_one_line_and_exit_2(tmp_path: Path, case: str) ->
     extra, needle = BAD_INLINE[case]
     path = tmp_path / "chip.toml"
     path.write_text(with_tables(extra))
-    result = runner.invoke(app, ["circuit", str(path), "--distance", "3"])
-    assert result.exit_code == 2, (result.stdout[-300:], result.stderr)
-    lines = result.stderr.strip().splitlines()
-    assert len(lines) == 1 and needle in lines[0] and "chip.toml" in lines[0], result.stderr
+    for command in ("circuit", "layout"):
+        result = runner.invoke(app, [command, str(path), "--distance", "3"])
+        assert result.exit_code == 2, (result.stdout[-300:], result.stderr)
+        lines = result.stderr.strip().splitlines()
+        assert len(lines) == 1 and needle in lines[0] and "chip.toml" in lines[0], result.stderr
 
 
 def test_a_preset_takes_no_table() -> None:

@@ -175,6 +175,7 @@ def layout_rows(model: NoiseModel, *, code: str, distance: int) -> list[dict[str
     >>> rows[0]["key"], rows[0]["role"], rows[0]["readout"]
     ('1,1', 'data', 0.001)
     """
+    check_coordinates(model, code=code)
     lay = qubit_layout(code=code, distance=distance)
     listed = {q.coords for q in model.qubits}
     rows = []
