@@ -89,7 +89,8 @@ OPTION_OF_FIELD: dict[str, str] = {
     "cluster": "--cluster", "out_dir": "--out", "out": "--out", "distance": "--distance",
     "qubits": "--qubits", "eps_target": "--target", "suppression": "--lambda", "eps": "--eps",
     "rounds": "--rounds", "basis": "--basis", "scales": "--scale", "max_cpu": "--max-cpu",
-    "max_cpu_seconds": "--max-cpu", "save": "--save",
+    "max_cpu_seconds": "--max-cpu", "save": "--save", "suppression_sigma": "--lambda-sigma",
+    "eps_sigma": "--eps-sigma",
 }
 
 
