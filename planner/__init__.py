@@ -16,6 +16,7 @@ The public Python API: everything a notebook or a script needs, in the order of 
   intervals), or one at a time: :func:`requirements`, :func:`cheapest_mix`, :func:`calculate`
   (from measured numbers, no samples), :func:`build_roadmap`, :func:`sensitivity`;
 - checks: :func:`run_verification` samples the proposed operating points;
+- two devices: :func:`compare_directories` (or :func:`compare_answers`) puts two out directories side by side;
 - reports: :func:`write_all` (and :func:`write_fits`, :func:`write_requirements`,
   :func:`write_roadmap`, :func:`write_sensitivity`, :func:`write_verification`);
 - errors: :class:`InputError` (bad input, in domain terms: ``field`` and ``allowed``).
@@ -67,6 +68,8 @@ _HOME: dict[str, str] = {
     "physical_qubits": "planner.planning",
     # checks
     "Verification": "planner.planning.verify", "run_verification": "planner.jobs.verify",
+    "Comparison": "planner.planning.compare", "compare_answers": "planner.planning.compare",
+    "compare_directories": "planner.jobs.compare",
     "Review": "planner.jobs.review", "review": "planner.jobs.review",
     # reports
     "write_all": "planner.reports.files", "write_fits": "planner.reports.files",
@@ -90,6 +93,7 @@ __all__ = [
     "sensitivity",
     # checks
     "Review", "Verification", "review", "run_verification",
+    "Comparison", "compare_answers", "compare_directories",
     # reports
     "write_all", "write_fits", "write_requirements", "write_roadmap", "write_sensitivity",
     "write_verification",

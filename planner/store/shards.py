@@ -96,6 +96,15 @@ class StoreRead:
         return list(totals.values())
 
 
+def _row_kind(row: SampleRow, wanted: set[str] | None, retired: set[str], seen: set[str]) -> str:
+    """Whether a row is read ("keep"), a repeat of a chunk ("duplicate"), a task the sweep no
+    longer lists ("aside") or a task of another sweep ("ignored")."""
+    sid = row.stats.strong_id
+    if wanted is not None and sid not in wanted:
+        return "aside" if sid in retired else "ignored"
+    return "duplicate" if row.chunk_id in seen else "keep"
+
+
 class SampleStore:
     """The sample shards of one out directory (``root/samples``) or of a shard directory.
 
@@ -201,12 +210,12 @@ class SampleStore:
                 damaged += len(scan.damaged)
                 self.note(damaged_notice(path, [n for n, _, _ in scan.damaged], moved=False))
             for row in scan.rows:
-                if wanted is not None and row.stats.strong_id not in wanted:
-                    if row.stats.strong_id in retired:
-                        aside += 1
-                    else:
-                        ignored += 1
-                elif row.chunk_id in seen:
+                kind = _row_kind(row, wanted, retired, seen)
+                if kind == "ignored":
+                    ignored += 1
+                elif kind == "aside":
+                    aside += 1
+                elif kind == "duplicate":
                     duplicates += 1
                 else:
                     seen.add(row.chunk_id)
