@@ -19,6 +19,7 @@ The public Python API: everything a notebook or a script needs, in the order of 
 - qubits: :func:`qubit_layout` and :func:`layout_rows` (the coordinates per-qubit tables are
   keyed by, and each qubit's values in force); :func:`draw_instances` and :func:`run_spread`
   (device instances of a spread of qubits -> :class:`SpreadSummary`);
+- two devices: :func:`compare_directories` (or :func:`compare_answers`) puts two out directories side by side;
 - reports: :func:`write_all` (and :func:`write_fits`, :func:`write_requirements`,
   :func:`write_roadmap`, :func:`write_sensitivity`, :func:`write_verification`);
 - errors: :class:`InputError` (bad input, in domain terms: ``field`` and ``allowed``).
@@ -71,6 +72,8 @@ _HOME: dict[str, str] = {
     "physical_qubits": "planner.planning",
     # checks
     "Verification": "planner.planning.verify", "run_verification": "planner.jobs.verify",
+    "Comparison": "planner.planning.compare", "compare_answers": "planner.planning.compare",
+    "compare_directories": "planner.jobs.compare",
     "Review": "planner.jobs.review", "review": "planner.jobs.review",
     # spread of qubits
     "SpreadSummary": "planner.planning.spread", "draw_instances": "planner.planning.spread",
@@ -99,6 +102,7 @@ __all__ = [
     "Review", "Verification", "review", "run_verification",
     # spread of qubits
     "SpreadSummary", "draw_instances", "run_spread",
+    "Comparison", "compare_answers", "compare_directories",
     # reports
     "write_all", "write_fits", "write_requirements", "write_roadmap", "write_sensitivity",
     "write_verification",

@@ -24,6 +24,7 @@ from planner.cli._common import printable
 from planner.cli import (
     ask,
     circuit,
+    compare,
     fit,
     layout,
     merge,
@@ -101,7 +102,7 @@ def _root() -> None:
     """Error-budget planning for surface-code memory experiments."""
 
 
-for _module in (run, sweep, fit, ask, roadmap, sensitivity, verify, circuit, merge, status):
+for _module in (run, sweep, fit, ask, roadmap, sensitivity, verify, circuit, merge, status, compare):
     _module.register(app)
 layout.register(app)
 spread.register(app)

@@ -91,6 +91,8 @@ OPTION_OF_FIELD: dict[str, str] = {
     "rounds": "--rounds", "basis": "--basis", "scales": "--scale", "max_cpu": "--max-cpu",
     "max_cpu_seconds": "--max-cpu", "save": "--save",
     "instances": "--instances", "draw": "--draw",
+    "max_cpu_seconds": "--max-cpu", "save": "--save", "suppression_sigma": "--lambda-sigma",
+    "eps_sigma": "--eps-sigma",
 }
 
 

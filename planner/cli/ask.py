@@ -42,6 +42,12 @@ def ask_command(
         "--lambda", help="Measured suppression factor Lambda.", rich_help_panel=P_CALC)] = None,
     eps: Annotated[float | None, typer.Option(
         "--eps", help="Measured logical error per cycle at --distance.", rich_help_panel=P_CALC)] = None,
+    lambda_sigma: Annotated[float | None, typer.Option(
+        "--lambda-sigma", help="One-sigma uncertainty of --lambda (then the answers carry intervals).",
+        rich_help_panel=P_CALC)] = None,
+    eps_sigma: Annotated[float | None, typer.Option(
+        "--eps-sigma", help="One-sigma uncertainty of --eps (then the answers carry intervals).",
+        rich_help_panel=P_CALC)] = None,
     save: Annotated[Path | None, typer.Option(
         "--save", metavar="PATH.md", help="Also write the answer to PATH.md (and PATH.csv). A what-if "
         "(--target, --distance or --qubits other than the goal) is otherwise only printed; the "
@@ -55,15 +61,18 @@ def ask_command(
         if directory is not None:
             raise InputError("calculator mode (--lambda/--eps) takes no DIR")
         _calculator(lambda_=lambda_, eps=eps, distance=distance, eps_target=eps_target, qubits=qubits,
-                    save=save, json=json)
+                    save=save, json=json, sigmas=(lambda_sigma, eps_sigma))
         return
+    if lambda_sigma is not None or eps_sigma is not None:
+        raise InputError("--lambda-sigma and --eps-sigma belong to calculator mode (--lambda, --eps)")
     if directory is None:
         raise InputError("give DIR (an out directory) or --lambda, --eps, --distance, --target")
     _review(directory, eps_target=eps_target, distance=distance, qubits=qubits, save=save, json=json)
 
 
 def _calculator(*, lambda_: float | None, eps: float | None, distance: int | None,
-                eps_target: float | None, qubits: int | None, save: Path | None, json: bool) -> None:
+                eps_target: float | None, qubits: int | None, save: Path | None, json: bool,
+                sigmas: tuple[float | None, float | None] = (None, None)) -> None:
     """Calculator mode: parse the measured numbers, call the calculator, render."""
     from planner.errors import InputError
     from planner.planning import calculate
@@ -73,11 +82,10 @@ def _calculator(*, lambda_: float | None, eps: float | None, distance: int | Non
                               ("--target", eps_target)) if v is None]
     if missing:
         raise InputError(f"calculator mode needs {', '.join(missing)}")
-    if qubits is not None:
-        raise InputError("--qubits is not used in calculator mode")
     if save is not None:
         raise InputError("--save is not used in calculator mode (there is no out directory)")
-    ans = calculate(suppression=lambda_, eps=eps, distance=distance, eps_target=eps_target)
+    ans = calculate(suppression=lambda_, eps=eps, distance=distance, eps_target=eps_target, qubits=qubits,
+                    suppression_sigma=sigmas[0], eps_sigma=sigmas[1])
     if json:
         typer.echo(json_text(ans.to_json()))
     else:

@@ -176,17 +176,36 @@ def _render_mix(r: Requirements, console: Console) -> None:
 
 
 def render_calculator(a: CalculatorAnswer, console: Console) -> None:
-    """The answer from measured numbers (no sampling, no interval)."""
-    rows = [["Lambda", num(a.suppression)], [f"eps per cycle at d={a.measured_distance}", rate(a.eps_measured)],
+    """The answer from measured numbers (no sampling): intervals where uncertainties were given."""
+    iv = a.intervals
+    rows = [["Lambda", _given(a.suppression, a.suppression_sigma)],
+            [f"eps per cycle at d={a.measured_distance}", _given(a.eps_measured, a.eps_sigma, rate)],
             ["target eps per cycle", rate(a.eps_target)], ["prefactor A", num(a.prefactor)],
-            [f"required Lambda at d={a.measured_distance}", num(a.required_suppression)],
-            ["smallest distance", num(a.distance) if a.reachable else "not reachable"],
-            ["physical qubits (2d^2-1)", num(a.physical_qubits)],
-            ["eps per cycle at that distance", rate(a.logical_error_per_cycle)]]
+            [f"required Lambda at d={a.measured_distance}",
+             estimate(a.required_suppression, iv.get("required_suppression_factor"))],
+            ["smallest distance", estimate(a.distance, iv.get("distance")) if a.reachable else "not reachable"],
+            ["physical qubits (2d^2-1)", estimate(a.physical_qubits, iv.get("physical_qubits"))],
+            ["eps per cycle at that distance", estimate(a.logical_error_per_cycle, iv.get("logical_error_per_cycle"))]]
+    if a.qubit_budget is not None:
+        met = "meets the target" if a.budget_meets_target else "misses the target"
+        rows += [[f"largest distance within {a.qubit_budget:,} qubits",
+                  f"{a.budget_distance} ({a.budget_physical_qubits:,} qubits)"],
+                 ["eps per cycle there", f"{estimate(a.budget_logical_error_per_cycle, iv.get('budget_logical_error_per_cycle'))} ({met})"]]
+    exact = a.suppression_sigma is None and a.eps_sigma is None
+    notes = ["ansatz eps_d = A Lambda^-(d+1)/2; " + (
+        "inputs are taken as exact (no interval; give --lambda-sigma/--eps-sigma for intervals)" if exact else
+        f"{CL} from the one-sigma inputs (log-normal, independent); the ansatz itself is taken as exact")]
+    if not exact and a.reachable_fraction is not None and a.reachable_fraction < 1:
+        notes.append(f"the target is reachable in {a.reachable_fraction:.0%} of draws of the inputs")
     print_table(console, Table(title="From measured numbers (no sampling)", headers=("quantity", "value"), rows=rows,
-                               notes=("ansatz eps_d = A Lambda^-(d+1)/2; inputs are taken as exact (no interval)",)))
+                               notes=tuple(notes)))
     if a.note:
         say(console, *words(a.note))
+
+
+def _given(value: float, sigma: float | None, fmt: Any = None) -> str:
+    shown = (fmt or num)(value)
+    return shown if sigma is None else f"{shown} +- {(fmt or num)(sigma)} (1 sigma)"
 
 
 # ---------------------------------------------------------------------------------------------

@@ -8,7 +8,7 @@ from __future__ import annotations
 import contextlib
 import hashlib
 import os
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -20,6 +20,8 @@ from planner.store.manifest import (
     MANIFEST,
     TARGET_COPY,
     Manifest,
+    device_identity,
+    grow,
     identity_difference,
     read_manifest,
     write_manifest,
@@ -98,19 +100,32 @@ def writable_dir(path: Path, *, field: str = "out_dir", option: str | None = Non
     return path
 
 
-def prepare_out_dir(out_dir: Path, *, target_bytes: bytes, manifest: Manifest) -> Manifest:
+def prepare_out_dir(out_dir: Path, *, target_bytes: bytes, manifest: Manifest,
+                    notify: Callable[[str], None] | None = None) -> Manifest:
     """Create or resume ``out_dir`` for ``manifest``: refuse another identity, never mix.
 
     Writes ``target.toml`` (byte copy) and ``manifest.json``; a resumed directory keeps its
-    tasks and records the latest budget.
+    tasks and records the latest budget. A sweep of the same device whose grid changed (a
+    distance, a round count, a basis or a scale point added or removed) keeps the samples of
+    every unchanged task; ``notify`` is told what was kept and what is new.
     """
     out_dir = writable_dir(Path(out_dir))
     old = read_manifest(out_dir)
     if old is not None:
         diff = identity_difference(old, manifest)
-        if diff is None and old.strong_ids != manifest.strong_ids:
+        if diff is None and old.device is None and old.strong_ids != manifest.strong_ids:
             diff = (f"the sweep's tasks differ ({len(manifest.strong_ids - old.strong_ids)} new, "
-                    f"{len(old.strong_ids - manifest.strong_ids)} gone)")
+                    f"{len(old.strong_ids - manifest.strong_ids)} gone) and this directory was written "
+                    "before sweeps could grow")
+        if diff is None and old.device is not None:
+            grown = grow(old, manifest)
+            if isinstance(grown, str):
+                diff = grown
+            else:
+                changed = grown[0].strong_ids != old.strong_ids
+                manifest, growth = grown
+                if changed and notify is not None:
+                    notify(growth.describe(str(out_dir)))
         if diff is not None:
             raise InputError(f"{out_dir}: holds samples of another sweep: {diff}; use another "
                              f"--out or delete {out_dir}")
@@ -165,13 +180,16 @@ def target_bytes_of(target: Target) -> bytes:
 
 
 def prepare_sweep_dir(out_dir: Path, *, target: Target, tasks: Sequence[sinter.Task], budget: str | None,
-                      max_errors: int | None, max_shots: int | None) -> Manifest:
+                      max_errors: int | None, max_shots: int | None,
+                      notify: Callable[[str], None] | None = None) -> Manifest:
     """Write (or check, on a resume) the manifest of a sweep of ``tasks`` and the target copy:
     another target or other software versions are refused (see :func:`prepare_out_dir`)."""
     manifest = Manifest.for_sweep(target_sha256=target.sha256, target_name=target.name,
                                   sample_sha256=target.sampling_sha256, tasks=tasks, budget=budget,
-                                  max_errors=max_errors, max_shots=max_shots)
-    prepared = prepare_out_dir(out_dir, target_bytes=target_bytes_of(target), manifest=manifest)
+                                  max_errors=max_errors, max_shots=max_shots,
+                                  device=device_identity(target))
+    prepared = prepare_out_dir(out_dir, target_bytes=target_bytes_of(target), manifest=manifest,
+                               notify=notify)
     copy_tables(out_dir, target)
     return prepared
 

@@ -96,6 +96,15 @@ class StoreRead:
         return list(totals.values())
 
 
+def _row_kind(row: SampleRow, wanted: set[str] | None, retired: set[str], seen: set[str]) -> str:
+    """Whether a row is read ("keep"), a repeat of a chunk ("duplicate"), a task the sweep no
+    longer lists ("aside") or a task of another sweep ("ignored")."""
+    sid = row.stats.strong_id
+    if wanted is not None and sid not in wanted:
+        return "aside" if sid in retired else "ignored"
+    return "duplicate" if row.chunk_id in seen else "keep"
+
+
 class SampleStore:
     """The sample shards of one out directory (``root/samples``) or of a shard directory.
 
@@ -139,6 +148,13 @@ class SampleStore:
         manifest = read_manifest(self.manifest_path.parent)
         return None if manifest is None else manifest.strong_ids
 
+    def _wanted(self) -> tuple[set[str] | None, set[str]]:
+        """The manifest's task ids (None: no manifest) and its retired tasks' ids."""
+        manifest = read_manifest(self.manifest_path.parent)
+        if manifest is None:
+            return None, set()
+        return manifest.strong_ids, manifest.retired_ids
+
     @property
     def out_dir(self) -> Path:
         """The out directory a sweep into this store locks and records its manifest in."""
@@ -156,7 +172,7 @@ class SampleStore:
         from planner.store.outdir import prepare_sweep_dir
 
         return prepare_sweep_dir(self.out_dir, target=target, tasks=tasks, budget=budget,
-                                 max_errors=max_errors, max_shots=max_shots)
+                                 max_errors=max_errors, max_shots=max_shots, notify=self.note)
 
     def _csv_files(self) -> list[Path]:
         if not self.samples_dir.is_dir():
@@ -178,12 +194,12 @@ class SampleStore:
         """Every readable row, each chunk id once (first kept); rows of tasks outside the
         manifest are left out unless ``all_tasks``. An unreadable row is an InputError naming
         the file and the line; a damaged row is skipped (and said)."""
-        wanted = None if all_tasks else self.task_ids()
+        wanted, retired = (None, set()) if all_tasks else self._wanted()
         files = self._csv_files()
         sample_files = self.shard_files()
         seen: set[str] = set()
         rows: list[SampleRow] = []
-        ignored = damaged = duplicates = 0
+        ignored = damaged = duplicates = aside = 0
         for path in sample_files:
             try:
                 scan = scan_shard(path)
@@ -194,9 +210,12 @@ class SampleStore:
                 damaged += len(scan.damaged)
                 self.note(damaged_notice(path, [n for n, _, _ in scan.damaged], moved=False))
             for row in scan.rows:
-                if wanted is not None and row.stats.strong_id not in wanted:
+                kind = _row_kind(row, wanted, retired, seen)
+                if kind == "ignored":
                     ignored += 1
-                elif row.chunk_id in seen:
+                elif kind == "aside":
+                    aside += 1
+                elif kind == "duplicate":
                     duplicates += 1
                 else:
                     seen.add(row.chunk_id)
@@ -204,6 +223,9 @@ class SampleStore:
         if ignored:
             self.note(f"{self.samples_dir}: ignored {ignored} row(s) of tasks that "
                       f"{self.manifest_path} does not list (samples of another target or sweep)")
+        if aside:
+            self.note(f"{self.samples_dir}: {aside} row(s) of tasks no longer in the sweep stay on "
+                      "disk, not read (they count again if the sweep lists those tasks again)")
         foreign = tuple(p for p in files if p not in sample_files and p.exists())
         return StoreRead(rows=tuple(rows), ignored_rows=ignored, damaged_rows=damaged,
                          duplicate_rows=duplicates, foreign_files=foreign)

@@ -47,4 +47,4 @@ def test_goal_edit_reuses_samples_device_edit_is_refused(tmp_path: Path) -> None
     target.write_text(TINY.format(p=0.031, goal=1e-9))
     res = runner.invoke(app, ["sweep", str(target), "--out", str(out), "--workers", "1"])
     assert res.exit_code == 2
-    assert "device or sweep section changed" in res.stderr
+    assert "the device changed: device.preset.p 0.03 vs 0.031" in res.stderr
