@@ -241,3 +241,26 @@ class NoiseModel:
         tw, ex = self.idle_channel(duration_ns=self.measure_ns + self.reset_ns, during_measure=True)
         out["idle_measure"] = tw.total + ex
         return out
+
+
+# ---------------------------------------------------------------------------------------------
+# leakage (see planner.config.leakage): parameters for the leakage sampler, not circuit noise
+
+
+def leakage_parameters(target: Target, scale: float = 1.0) -> dict[str, Any] | None:
+    """The ``[device.leakage]`` section with the ``leakage`` component's ``scale`` applied to its
+    injection rates, plus the layer durations heating needs: JSON-native, for a task's metadata
+    (so the parameters are part of its strong id). None without the section.
+
+    >>> from planner.config import EXAMPLE_TOML, parse_target
+    >>> leakage_parameters(parse_target(EXAMPLE_TOML)) is None
+    True
+    """
+    section = target.device.leakage
+    if section is None:
+        return None
+    doc: dict[str, Any] = section.scaled(scale).model_dump(mode="json")
+    durations = target.device.durations
+    for key in ("gate_1q_ns", "gate_2q_ns", "measure_ns", "reset_ns"):
+        doc[key] = float(getattr(durations, key)) if durations is not None else 0.0
+    return doc
