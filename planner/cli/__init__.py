@@ -25,6 +25,7 @@ from planner.cli import (
     ask,
     circuit,
     fit,
+    leakage,
     merge,
     roadmap,
     run,
@@ -99,7 +100,7 @@ def _root() -> None:
     """Error-budget planning for surface-code memory experiments."""
 
 
-for _module in (run, sweep, fit, ask, roadmap, sensitivity, verify, circuit, merge, status):
+for _module in (run, sweep, fit, ask, roadmap, sensitivity, verify, circuit, merge, status, leakage):
     _module.register(app)
 
 
