@@ -133,3 +133,12 @@ def steady_state_two_level(*, leak_per_round: float, return_per_round: float) ->
     """
     total = leak_per_round + return_per_round
     return leak_per_round / total if total > 0 else 0.0
+
+
+def present_components(model: Any) -> tuple[str, ...]:
+    """The components a fitted model's device has: all but one that never left 0 in the data
+    (leakage, when the target has no ``[device.leakage]``: it is zero today and the answers
+    leave it out rather than print a lever that cannot move anything)."""
+    from planner.config import COMPONENTS
+
+    return tuple(c for c in COMPONENTS if model.sampled_max[c] > 0)
