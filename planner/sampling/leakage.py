@@ -26,7 +26,7 @@ from __future__ import annotations
 
 import dataclasses
 import time
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -159,14 +159,17 @@ class _Run:
 class CompiledLeakageSampler(sinter.CompiledSampler):
     """Samples one task with leakage (see the module doc); ``sample`` returns sinter stats."""
 
-    def __init__(self, task: sinter.Task, *, seed: int | None = None) -> None:
+    def __init__(self, task: sinter.Task, *, seed: int | None = None, every_layer: bool = False) -> None:
+        """``every_layer``: step through every layer even when nothing leaks (for
+        ``leaked_after_first_layer`` with all rates zero)."""
         self.task = task
         self.circuit = task.circuit
         self.params: dict[str, Any] = dict(task.json_metadata["leakage"])
         self.partner_total = sum(float(self.params[k]) for k in ("partner_px", "partner_py", "partner_pz"))
         self.rng = np.random.default_rng(seed)
         self.num_qubits = self.circuit.num_qubits
-        self.layers = _joined(split_layers(self.circuit, self.params), self.params)
+        layers = split_layers(self.circuit, self.params)
+        self.layers = layers if every_layer else _joined(layers, self.params)
         self.measure = measure_qubits(self.layers)
         used = sorted({int(t.value) for inst in self.circuit.flattened() for t in inst.targets_copy()
                        if t.is_qubit_target})
@@ -181,12 +184,17 @@ class CompiledLeakageSampler(sinter.CompiledSampler):
         self.decoder = sinter.BUILT_IN_DECODERS[base_decoder(task.decoder)].compile_decoder_for_dem(dem=dem)
         self.det_rounds = detector_rounds(self.circuit)
 
-    def simulate(self, batch: int, trace: LeakageTrace | None = None) -> tuple[np.ndarray, np.ndarray]:
-        """One batch: detection events and observable flips, both bool, shape (rows, batch)."""
+    def simulate(self, batch: int, trace: LeakageTrace | None = None, *,
+                 leaked_after_first_layer: Sequence[int] = ()) -> tuple[np.ndarray, np.ndarray]:
+        """One batch: detection events and observable flips, both bool, shape (rows, batch).
+        ``leaked_after_first_layer``: qubits put in the leaked state in every shot once the first
+        layer (the initial reset) is done (to study one leaked qubit's effect)."""
         run = _Run(self, batch)
-        for layer in self.layers:
+        for i, layer in enumerate(self.layers):
             run.sim.do(layer.ops)
             run.step(layer, trace)
+            if i == 0 and len(leaked_after_first_layer):
+                run.leaked[np.asarray(leaked_after_first_layer, dtype=np.int64)] = True
         meas = run.measurements()
         dets, obs = self.detectors.apply(meas), self.observables.apply(meas)
         if trace is not None:
