@@ -25,6 +25,7 @@ Per layer, after stim has simulated it (gates and their Pauli noise):
 from __future__ import annotations
 
 import dataclasses
+import math
 import time
 from collections.abc import Mapping, Sequence
 from typing import Any
@@ -45,7 +46,8 @@ from planner.sampling.leakage_schedule import (
 from planner.sweep import detector_error_model_for
 
 SUFFIX = "+leakage"
-BATCH = 1024  # shots simulated together (a multiple of 256: stim's word size)
+BATCH = 4096  # shots simulated together (a multiple of 256: stim's word size)
+DENSE_P = 0.05  # draw Bernoulli(p) arrays densely from this p on, sparsely (by hits) below
 
 
 def base_decoder(decoder: str) -> str:
@@ -86,44 +88,60 @@ class _Run:
         self.overrides: list[tuple[np.ndarray, np.ndarray]] = []
         self.round = 0
 
-    def rand(self, rows: int, p: float) -> np.ndarray:
-        return self.s.rng.random((rows, self.leaked.shape[1]), dtype=np.float32) < p
+    def hits(self, rows: int, p: float) -> tuple[np.ndarray, np.ndarray]:
+        """(row, shot) indices of the hits of independent Bernoulli(p) draws on a (rows, batch)
+        array. Small p: a Poisson number of uniform positions with mean -ln(1 - p) each (a
+        position hit at least once has probability exactly p, independently), so the cost
+        follows the hits, not the array."""
+        batch = self.leaked.shape[1]
+        if p >= DENSE_P:
+            return np.nonzero(self.s.rng.random((rows, batch), dtype=np.float32) < p)
+        n = rows * batch
+        flat = self.s.rng.integers(0, n, self.s.rng.poisson(-math.log1p(-p) * n))
+        return np.divmod(flat, batch)
 
-    def pauli(self, mask: np.ndarray, *, px: float, py: float, pz: float) -> None:
-        """One draw of the Pauli channel (px, py, pz) where ``mask`` (shape (qubits, batch))."""
-        u = self.s.rng.random(mask.shape, dtype=np.float32)
-        self.sim.broadcast_pauli_errors(pauli="X", mask=mask & (u < px + py))
-        self.sim.broadcast_pauli_errors(pauli="Z", mask=mask & (u >= px) & (u < px + py + pz))
-
-    def randomize(self, mask: np.ndarray) -> None:
-        """Qubits coming back from leakage: a random computational state."""
-        self.sim.broadcast_pauli_errors(pauli="X", mask=mask, p=0.5)
-        self.sim.broadcast_pauli_errors(pauli="Z", mask=mask, p=0.5)
+    def flip(self, qubits: np.ndarray, shots: np.ndarray, *, px: float, py: float, pz: float) -> None:
+        """One draw of the Pauli channel (px, py, pz) on each (qubit, shot)."""
+        if not len(qubits):
+            return
+        u = self.s.rng.random(len(qubits))
+        for pauli, sel in (("X", u < px + py), ("Z", (u >= px) & (u < px + py + pz))):
+            if sel.any():
+                mask = np.zeros(self.leaked.shape, dtype=np.bool_)
+                mask[qubits[sel], shots[sel]] = True
+                self.sim.broadcast_pauli_errors(pauli=pauli, mask=mask)
 
     def gates(self, layer: LeakLayer) -> None:
         p, a, b, lk = self.s.params, layer.pair_a, layer.pair_b, self.leaked
-        la, lb = lk[a], lk[b]
-        if self.s.partner_total > 0 and (la.any() or lb.any()):
-            mask = np.zeros_like(lk)
-            mask[b] = la
-            mask[a] |= lb
-            self.pauli(mask, px=p["partner_px"], py=p["partner_py"], pz=p["partner_pz"])
+        la, lb = lk[a], lk[b]  # leaked before the gate
+        if self.s.partner_total > 0:
+            ia, sa = np.nonzero(la)
+            ib, sb = np.nonzero(lb)
+            self.flip(np.concatenate([b[ia], a[ib]]), np.concatenate([sa, sb]),
+                      px=p["partner_px"], py=p["partner_py"], pz=p["partner_pz"])
         if p["transport"] > 0:
-            lk[b] |= la & self.rand(len(a), p["transport"])
-            lk[a] |= lb & self.rand(len(b), p["transport"])
+            for src, dst, leaked in ((a, b, la), (b, a, lb)):
+                r, c = self.hits(len(src), p["transport"])
+                keep = leaked[r, c]
+                lk[dst[r[keep]], c[keep]] = True
         if p["gate_2q"] > 0:
-            lk[a] |= self.rand(len(a), p["gate_2q"])
-            lk[b] |= self.rand(len(b), p["gate_2q"])
+            for qs in (a, b):
+                r, c = self.hits(len(qs), p["gate_2q"])
+                lk[qs[r], c] = True
 
     def release(self, qubits: np.ndarray, p: float, *, randomize: bool) -> None:
         if p <= 0 or not len(qubits):
             return
-        back = self.leaked[qubits] & (self.rand(len(qubits), p) if p < 1 else True)
-        if randomize and back.any():
-            mask = np.zeros_like(self.leaked)
-            mask[qubits] = back
-            self.randomize(mask)
-        self.leaked[qubits] &= ~back
+        if p >= 1:
+            r, c = np.nonzero(self.leaked[qubits])
+        else:
+            r, c = self.hits(len(qubits), p)
+            keep = self.leaked[qubits[r], c]
+            r, c = r[keep], c[keep]
+        q = qubits[r]
+        self.leaked[q, c] = False
+        if randomize:  # back in a random computational state: X and Z each with 1/2
+            self.flip(q, c, px=0.25, py=0.25, pz=0.25)
 
     def step(self, layer: LeakLayer, trace: LeakageTrace | None) -> None:
         p = self.s.params
@@ -141,7 +159,8 @@ class _Run:
             self.round += 1
         heat = heating_probability(p, layer.duration_ns)
         if heat > 0:
-            self.leaked |= self.rand(self.leaked.shape[0], heat) & self.s.used
+            r, c = self.hits(len(self.s.all_qubits), heat)
+            self.leaked[self.s.all_qubits[r], c] = True
 
     def measurements(self) -> np.ndarray:
         meas = self.sim.get_measurement_flips()
@@ -175,8 +194,6 @@ class CompiledLeakageSampler(sinter.CompiledSampler):
                        if t.is_qubit_target})
         self.all_qubits = np.array(used, dtype=np.int64)
         self.data = np.setdiff1d(self.all_qubits, self.measure)
-        self.used = np.zeros((self.num_qubits, 1), dtype=np.bool_)
-        self.used[self.all_qubits] = True
         self.reference = np.asarray(self.circuit.reference_sample(), dtype=np.bool_)
         dets, obs = record_index_sets(self.circuit)
         self.detectors, self.observables = ParityMap.from_sets(dets), ParityMap.from_sets(obs)
