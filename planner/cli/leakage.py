@@ -48,6 +48,9 @@ def leakage_command(
                                                "for the removal comparison (default 200; 0 skips it).")] = None,
     workers: Annotated[str | None, typer.Option("--workers", metavar="N", help="Sampling processes.")] = None,
     out: Annotated[Path | None, typer.Option("--out", metavar="DIR", help="Write JSON, CSV and PNG here.")] = None,
+    lever: Annotated[str | None, typer.Option("--removal-lever", metavar="reset|data|both", help=(
+        "Also answer which removal efficiency (measure-qubit reset, data-qubit step, or both) meets "
+        "the goal: samples the target's distances at efficiencies 0, 0.5, 0.9, 1."))] = None,
     as_json: Annotated[bool, typer.Option("--json", help="Print one JSON object on stdout.")] = False,
 ) -> None:
     from planner.config import load_target, size_problem
@@ -64,12 +67,19 @@ def leakage_command(
     w = check_workers(_positive(workers, field="workers", default=default_workers()))
     study = run_leakage_study(spec, distance=d, rounds=r, shots=n, max_errors=e, max_shots=1000 * e,
                               workers=w or 1, compare=not (errors or "").strip() == "0")
+    answer = None
+    if lever is not None:
+        from planner.jobs.leakage_lever import removal_lever
+
+        answer = removal_lever(spec, lever=lever.strip().lower(), max_errors=e, max_shots=1000 * e, workers=w or 1)
     if as_json:
-        typer.echo(json.dumps(study.to_json()))
+        typer.echo(json.dumps({**study.to_json(), "removal_lever": answer.to_json() if answer else None}))
     else:
-        from planner.reports.leakage import render
+        from planner.reports.leakage import render, render_lever
 
         render(study, stdout_console())
+        if answer is not None:
+            render_lever(answer, stdout_console())
     if out is not None:
         from planner.reports.leakage import write
 

@@ -142,3 +142,24 @@ def present_components(model: Any) -> tuple[str, ...]:
     from planner.config import COMPONENTS
 
     return tuple(c for c in COMPONENTS if model.sampled_max[c] > 0)
+
+
+def efficiency_for_goal(points: Sequence[tuple[float, float]], ln_goal: float) -> float | None:
+    """The smallest removal efficiency whose ln(eps) meets ``ln_goal``, interpolated linearly in
+    the efficiency between sampled points ``(efficiency, ln eps)`` (None: no sampled efficiency,
+    not even 1, meets it; 0 when the smallest sampled one already does).
+
+    >>> efficiency_for_goal([(0.0, -10.0), (0.5, -12.0), (1.0, -13.0)], -11.0)
+    0.25
+    >>> efficiency_for_goal([(0.0, -10.0), (1.0, -11.0)], -12.0) is None
+    True
+    """
+    pts = sorted(points)
+    if not pts:
+        return None
+    if pts[0][1] <= ln_goal:
+        return pts[0][0]
+    for (e0, y0), (e1, y1) in zip(pts, pts[1:]):
+        if y1 <= ln_goal:
+            return e0 + (e1 - e0) * (y0 - ln_goal) / (y0 - y1)
+    return None

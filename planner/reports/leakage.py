@@ -15,6 +15,7 @@ from rich.table import Table
 
 from planner.fits import Interval
 from planner.jobs.leakage import LeakageStudy, steady_comparison
+from planner.jobs.leakage_lever import LEVERS, RemovalLever
 from planner.reports.files import ensure_dir, write_atomic
 from planner.reports.formats import interval
 
@@ -63,6 +64,19 @@ def render(study: LeakageStudy, console: Console, *, every_depth: bool = False) 
             vt.add_row(v.label, v.description, f"{v.shots:,}", f"{v.errors:,}", _iv(v.per_cycle))
         console.print(vt)
         console.print(verdict(study), soft_wrap=True)
+
+
+def render_lever(answer: RemovalLever, console: Console) -> None:
+    """The removal efficiency meeting the goal, and the points it was read from."""
+    table = Table("efficiency", "Lambda", f"eps per cycle at d={answer.distance} (extrapolated)",
+                  title=f"Removal lever '{answer.lever}' ({', '.join(LEVERS[answer.lever])}): goal "
+                  f"{answer.goal:g} per cycle at d={answer.distance}")
+    for p in answer.points:
+        table.add_row(f"{p.efficiency:g}", _iv(p.suppression), _iv(p.eps_at_goal))
+    console.print(table)
+    head = (f"efficiency needed: {_iv(answer.efficiency)}" if answer.efficiency is not None
+            else "efficiency needed: none of the sampled ones")
+    console.print(f"{head} ({answer.note})", soft_wrap=True)
 
 
 def verdict(study: LeakageStudy) -> str:
