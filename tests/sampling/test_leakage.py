@@ -152,3 +152,23 @@ def test_a_sweep_with_leakage_samples_through_sinter_into_the_store_and_the_answ
     assert ask.exit_code == 0, ask.stderr
     levers = {c["lever"] for c in json.loads(ask.stdout)["components"]}
     assert "leakage" in levers
+
+
+def test_leakage_command_json_and_files(tmp_path):
+    # a small study (no comparison: --errors 0): one JSON object on stdout, the files written
+    import json
+
+    from typer.testing import CliRunner
+
+    from planner.cli import app
+
+    path = tmp_path / "t.toml"
+    path.write_text(LEAKY_TOML)
+    out = tmp_path / "out"
+    res = CliRunner().invoke(app, ["leakage", str(path), "-d", "3", "-r", "4", "--shots", "512",
+                                   "--errors", "0", "--out", str(out), "--json"])
+    assert res.exit_code == 0, res.stderr
+    doc = json.loads(res.stdout)
+    assert [d["rounds"] for d in doc["depths"]] == [1, 2, 4] and doc["variants"] == []
+    assert len(doc["rate_equations"]["data"]) == 4 and doc["removal_lever"] is None
+    assert {p.name for p in out.iterdir()} == {"leakage.json", "leakage_population.csv", "leakage.png"}
