@@ -142,7 +142,7 @@ def test_a_sweep_with_leakage_samples_through_sinter_into_the_store_and_the_answ
     from planner.cli import app
     from planner.sweep import StoppingRule
 
-    sampled = sample_once(LEAKY_TOML, rule=StoppingRule(max_errors=150, max_shots=40_000), workers=2)
+    sampled = sample_once(LEAKY_TOML, rule=StoppingRule(max_errors=80, max_shots=20_000), workers=2)
     runner = CliRunner()
     status = runner.invoke(app, ["status", str(sampled.out), "--json"])
     assert status.exit_code == 0, status.stderr
@@ -172,3 +172,20 @@ def test_leakage_command_json_and_files(tmp_path):
     assert [d["rounds"] for d in doc["depths"]] == [1, 2, 4] and doc["variants"] == []
     assert len(doc["rate_equations"]["data"]) == 4 and doc["removal_lever"] is None
     assert {p.name for p in out.iterdir()} == {"leakage.json", "leakage_population.csv", "leakage.png"}
+
+
+def test_the_dask_engine_passes_leakage_tasks_to_its_workers(tmp_path):
+    # chunks carry the leakage parameters to the worker, which samples with the leakage sampler
+    from rich.console import Console
+
+    from planner.config import parse_target
+    from planner.sampling import run_sweep
+    from planner.store import SampleStore
+    from planner.sweep import StoppingRule, plan_sweep
+
+    target = parse_target(EXAMPLE_TOML.replace("[goal]", "[device.leakage]\ngate_2q = 1e-3\n\n[goal]"))
+    summary = run_sweep(plan_sweep(target).tasks, store=SampleStore(tmp_path), cluster="local:1",
+                        rule=StoppingRule(max_errors=50, max_shots=2000), console=Console(stderr=True, quiet=True))
+    stats = SampleStore(tmp_path).stats()
+    assert summary.new_shots > 0 and stats
+    assert {s.decoder for s in stats} == {"pymatching+leakage"} and all(s.shots >= 256 for s in stats)
