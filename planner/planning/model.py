@@ -119,7 +119,8 @@ class ModelData:
         if not rows:
             raise InputError("no scale point has a Lambda: sample at least two distances", field="samples")
         return cls(
-            scales=np.array([[lf.scales.get(c, 0.0 if c == "leakage" else 1.0) for c in COMPONENTS] for lf in rows], float),  # no leakage section: zero
+            # a task without [device.leakage] carries no leakage scale: there, that component is 0
+            scales=np.array([[lf.scales.get(c, float(c != "leakage")) for c in COMPONENTS] for lf in rows], float),
             inv_lambda=np.array([1 / lf.suppression.best for lf in rows]),
             inv_sigma=np.array([_inv_sigma(lf) for lf in rows]),
             ln_a=np.array([lf.ln_prefactor.best for lf in rows]),
