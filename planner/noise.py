@@ -11,7 +11,10 @@ that component's probabilities *as placed in the circuit*:
 - ``idle``: each of p_x, p_y, p_z of the Pauli-twirled T1/T2 channel over a gate layer's duration,
   and the excess DEPOLARIZE1 probability, for every qubit not acted on in that layer;
 - ``idle_measure``: the same for qubits idle in a measure/reset layer (the data qubits while the
-  measure qubits are read out and reset), over that layer's duration.
+  measure qubits are read out and reset), over that layer's duration;
+- ``leakage``: not placed in the circuit: it multiplies the injection rates of a
+  ``[device.leakage]`` section, which the leakage sampler reads from the task
+  (:func:`leakage_parameters`); zero without the section.
 
 So ``idle = 0.5`` halves the twirled idle probabilities (it is *not* a statement about T1 alone).
 Scale 1 is today, 0 is a perfect component.
