@@ -125,6 +125,7 @@ def plot(study: LeakageStudy) -> bytes:
         best, lo, hi = _series(series)
         ax.errorbar(rounds, best, yerr=[lo, hi], fmt="o", ms=3, capsize=2, label=f"{name} qubits (sampled)")
         ax.plot(rounds, rate, "--", label=f"{name} qubits (rate equations)")
+    ax.axhline(study.rate.steady_data, color="grey", ls=":", label="data steady state (rate equations)")
     ax.set_xlabel("round")
     ax.set_ylabel("leaked fraction")
     ax.legend(fontsize=8)
