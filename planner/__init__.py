@@ -22,6 +22,9 @@ The public Python API: everything a notebook or a script needs, in the order of 
 - two devices: :func:`compare_directories` (or :func:`compare_answers`) puts two out directories side by side;
 - reports: :func:`write_all` (and :func:`write_fits`, :func:`write_requirements`,
   :func:`write_roadmap`, :func:`write_sensitivity`, :func:`write_verification`);
+- leakage: :class:`Leakage` (the ``[device.leakage]`` section), :class:`LeakageSampler` (sinter's
+  custom sampler for ``<decoder>+leakage`` tasks), :func:`population_curve` (rate equations),
+  :func:`run_leakage_study`, :func:`removal_lever`;
 - errors: :class:`InputError` (bad input, in domain terms: ``field`` and ``allowed``).
 
 Names load on first use, so ``import planner`` is fast and imports neither stim nor dask.
@@ -82,6 +85,10 @@ _HOME: dict[str, str] = {
     "write_all": "planner.reports.files", "write_fits": "planner.reports.files",
     "write_requirements": "planner.reports.files", "write_roadmap": "planner.reports.files",
     "write_sensitivity": "planner.reports.files", "write_verification": "planner.reports.files",
+    # leakage
+    "Leakage": "planner.config.leakage", "LeakageSampler": "planner.sampling.leakage",
+    "population_curve": "planner.planning.leakage", "run_leakage_study": "planner.jobs.leakage",
+    "removal_lever": "planner.jobs.leakage_lever",
 }
 
 __all__ = [
@@ -106,6 +113,8 @@ __all__ = [
     # reports
     "write_all", "write_fits", "write_requirements", "write_roadmap", "write_sensitivity",
     "write_verification",
+    # leakage
+    "Leakage", "LeakageSampler", "population_curve", "removal_lever", "run_leakage_study",
 ]
 
 

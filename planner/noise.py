@@ -11,7 +11,10 @@ that component's probabilities *as placed in the circuit*:
 - ``idle``: each of p_x, p_y, p_z of the Pauli-twirled T1/T2 channel over a gate layer's duration,
   and the excess DEPOLARIZE1 probability, for every qubit not acted on in that layer;
 - ``idle_measure``: the same for qubits idle in a measure/reset layer (the data qubits while the
-  measure qubits are read out and reset), over that layer's duration.
+  measure qubits are read out and reset), over that layer's duration;
+- ``leakage``: not placed in the circuit: it multiplies the injection rates of a
+  ``[device.leakage]`` section, which the leakage sampler reads from the task
+  (:func:`leakage_parameters`); zero without the section.
 
 So ``idle = 0.5`` halves the twirled idle probabilities (it is *not* a statement about T1 alone).
 Scale 1 is today, 0 is a perfect component.
@@ -373,3 +376,23 @@ def with_qubits(model: NoiseModel, qubits: Iterable[QubitNoise], pairs: Iterable
     out = dataclasses.replace(model, qubits=tuple(qubits), pairs=tuple(pairs))
     out.check()
     return out
+# leakage (see planner.config.leakage): parameters for the leakage sampler, not circuit noise
+
+
+def leakage_parameters(target: Target, scale: float = 1.0) -> dict[str, Any] | None:
+    """The ``[device.leakage]`` section with the ``leakage`` component's ``scale`` applied to its
+    injection rates, plus the layer durations heating needs: JSON-native, for a task's metadata
+    (so the parameters are part of its strong id). None without the section.
+
+    >>> from planner.config import EXAMPLE_TOML, parse_target
+    >>> leakage_parameters(parse_target(EXAMPLE_TOML)) is None
+    True
+    """
+    section = target.device.leakage
+    if section is None:
+        return None
+    doc: dict[str, Any] = section.scaled(scale).model_dump(mode="json")
+    durations = target.device.durations
+    for key in ("gate_1q_ns", "gate_2q_ns", "measure_ns", "reset_ns"):
+        doc[key] = float(getattr(durations, key)) if durations is not None else 0.0
+    return doc

@@ -24,7 +24,7 @@ import stim
 from planner.circuits import build_memory_circuit
 from planner.config import COMPONENTS, Target
 from planner.errors import InputError
-from planner.noise import NoiseModel
+from planner.noise import NoiseModel, leakage_parameters
 
 METADATA_KEYS: tuple[str, ...] = ("code", "d", "basis", "rounds", "axis", "factor", "scales")
 JOINT = "joint"
@@ -117,8 +117,21 @@ def tasks_for_scales(target: Target, scales: Mapping[str, float], *, distances: 
             circuit = build_memory_circuit(model, code=target.sweep.code, distance=d, rounds=r, basis=basis)
             meta = task_metadata(code=target.sweep.code, distance=d, basis=basis, rounds=r,
                                  axis=label, factor=factor, scales=scales)
-            tasks.append(sinter.Task(circuit=circuit, decoder=target.sweep.decoder, json_metadata=meta))
+            tasks.append(sinter.Task(circuit=circuit, json_metadata=meta,
+                                     **_leakage_task(target, meta, scales.get("leakage", 1.0))))
     return tasks
+
+
+def _leakage_task(target: Target, meta: dict[str, Any], scale: float) -> dict[str, Any]:
+    """The decoder of a task: ``<decoder>+leakage`` with the leakage parameters in ``meta`` (its
+    strong id) when the target has a ``[device.leakage]`` section; without one, the plain decoder
+    and no ``leakage`` scale in ``meta`` (tasks and strong ids as before the component existed)."""
+    params = leakage_parameters(target, scale)
+    if params is None:
+        meta["scales"].pop("leakage", None)
+        return {"decoder": target.sweep.decoder}
+    meta["leakage"] = params
+    return {"decoder": f"{target.sweep.decoder}+leakage"}
 
 
 def check_scale_points(target: Target) -> None:

@@ -30,7 +30,7 @@ def check_scales(scales: Mapping[str, float]) -> dict[str, float]:
     >>> check_scales({"gate2q": 0.5})
     Traceback (most recent call last):
     ...
-    planner.errors.InputError: scales: unknown component 'gate2q'; did you mean 'gate_2q'? (components: gate_1q, gate_2q, readout, reset, idle, idle_measure)
+    planner.errors.InputError: scales: unknown component 'gate2q'; did you mean 'gate_2q'? (components: gate_1q, gate_2q, readout, reset, idle, idle_measure, leakage)
     """
     out: dict[str, float] = {}
     for name, factor in scales.items():

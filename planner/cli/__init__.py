@@ -27,6 +27,7 @@ from planner.cli import (
     compare,
     fit,
     layout,
+    leakage,
     merge,
     roadmap,
     run,
@@ -102,10 +103,9 @@ def _root() -> None:
     """Error-budget planning for surface-code memory experiments."""
 
 
-for _module in (run, sweep, fit, ask, roadmap, sensitivity, verify, circuit, merge, status, compare):
+for _module in (run, sweep, fit, ask, roadmap, sensitivity, verify, circuit, merge, status, compare,
+                leakage, layout, spread):
     _module.register(app)
-layout.register(app)
-spread.register(app)
 
 
 def main() -> None:

@@ -3,6 +3,7 @@ preset excludes, physical ranges, the grid's size); each names the key it refuse
 
 from __future__ import annotations
 
+from planner.config.leakage import leakage_axis_problem
 from planner.config.limits import ERROR_LIMITS, MAX_PROBABILITY, MAX_TASKS, coherence_problem, size_problem
 from planner.config.qubits import qubits_problem
 from planner.config.schema import PRESET_NATIVE_2Q, Device, Target
@@ -95,7 +96,8 @@ def _sweep_problem(t: Target) -> Problem:
     if sw.code == "repetition" and "bases" in sw.model_fields_set and sw.bases != ("z",):
         return ("sweep.bases", "the repetition-code memory exists in basis 'z' only: set bases = "
                 "[\"z\"] or leave the key out")
-    problem = _size_problem(t)
+    problem = _size_problem(t) or leakage_axis_problem(has_section=t.device.leakage is not None,
+                                                       components=sw.components)
     if problem is not None:
         return problem
     smallest = min(sw.distances)

@@ -7,7 +7,7 @@ import datetime as _dt
 
 #: The named hardware components. Every answer planner gives is stated as a scale factor on
 #: these (1 = today, 0.5 = half today's error, 0 = perfect).
-COMPONENTS: tuple[str, ...] = ("gate_1q", "gate_2q", "readout", "reset", "idle", "idle_measure")
+COMPONENTS: tuple[str, ...] = ("gate_1q", "gate_2q", "readout", "reset", "idle", "idle_measure", "leakage")
 
 #: Largest meaningful probability per component: the point where the channel is fully mixing
 #: (DEPOLARIZE1 3/4, DEPOLARIZE2 15/16, a classical flip 1/2).
@@ -18,6 +18,7 @@ MAX_PROBABILITY: dict[str, float] = {
     "reset": 0.5,
     "idle": 0.75,
     "idle_measure": 0.75,
+    "leakage": 1.0,  # leakage probabilities (see planner.config.leakage), capped at 1 when scaled
 }
 
 #: Largest value of each ``device.errors`` key: the probabilities above (full mixing); the

@@ -9,6 +9,7 @@ from typing import Any
 
 from pydantic import BaseModel, ValidationError
 
+from planner.config.leakage import Leakage
 from planner.config.limits import COMPONENTS
 from planner.config.schema import (
     Coherence,
@@ -29,7 +30,7 @@ from planner.config.schema import (
 _SECTION_MODELS: dict[str, type[BaseModel]] = {
     "": Target, "device": Device, "device.errors": Errors, "device.coherence": Coherence,
     "device.durations": Durations, "device.preset": Preset, "goal": Goal, "sweep": Sweep,
-    "roadmap": Roadmap,
+    "roadmap": Roadmap, "device.leakage": Leakage,
 }
 
 

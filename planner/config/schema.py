@@ -21,6 +21,7 @@ from pydantic import (
     model_validator,
 )
 
+from planner.config.leakage import Leakage
 from planner.config.limits import (
     COMPONENTS,
     MAX_DISTANCES,
@@ -110,6 +111,7 @@ class Device(_Frozen):
     errors: Errors = Errors()
     coherence: Coherence | None = None
     durations: Durations | None = None
+    leakage: Leakage | None = None  # [device.leakage]: see planner.config.leakage
 
     @field_validator("name")
     @classmethod
@@ -266,7 +268,10 @@ class Target(_Frozen):
     @property
     def components(self) -> tuple[str, ...]:
         """Components with their own scale axis in the sweep (all by default)."""
-        return tuple(self.sweep.components) if self.sweep.components else COMPONENTS
+        if self.sweep.components:
+            return tuple(self.sweep.components)
+        # without a [device.leakage] section the leakage component is zero: no axis for it
+        return COMPONENTS if self.device.leakage is not None else tuple(c for c in COMPONENTS if c != "leakage")
 
     @property
     def sampling_sha256(self) -> str:

@@ -15,6 +15,7 @@ from typing import Any
 from scipy.optimize import brentq
 
 from planner.config import COMPONENTS, Target
+from planner.planning.leakage import present_components
 from planner.errors import InputError
 from planner.fits import FitReport, Interval
 from planner.planning.limits import (
@@ -324,7 +325,7 @@ def requirements(model: ResponseModel, target: Target, *, eps_target: float | No
     check_rate("eps_target" if eps_target is not None else "goal.logical_error_per_cycle", eps)
     d, source = choose_distance(target, distance=distance, qubits=qubits)
     joint = solve_lever(model, "joint", distance=d, eps_target=eps)
-    comps = tuple(solve_lever(model, c, distance=d, eps_target=eps) for c in COMPONENTS)
+    comps = tuple(solve_lever(model, c, distance=d, eps_target=eps) for c in present_components(model))
     starts = tuple(_scaled(a.lever, a.factor) for a in (joint, *comps)
                    if a.reachable and a.factor is not None and a.factor < 1)
     mix = cheapest_mix(model, distance=d, eps_target=eps, costs={c: target.cost(c) for c in COMPONENTS},

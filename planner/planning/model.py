@@ -119,7 +119,8 @@ class ModelData:
         if not rows:
             raise InputError("no scale point has a Lambda: sample at least two distances", field="samples")
         return cls(
-            scales=np.array([[lf.scales.get(c, 1.0) for c in COMPONENTS] for lf in rows], float),
+            # a task without [device.leakage] carries no leakage scale: there, that component is 0
+            scales=np.array([[lf.scales.get(c, float(c != "leakage")) for c in COMPONENTS] for lf in rows], float),
             inv_lambda=np.array([1 / lf.suppression.best for lf in rows]),
             inv_sigma=np.array([_inv_sigma(lf) for lf in rows]),
             ln_a=np.array([lf.ln_prefactor.best for lf in rows]),
@@ -234,6 +235,8 @@ class ResponseModel:
         notes = []
         for c, v in self._vec(scales).items():
             lo, hi = self.sampled_min[c], self.sampled_max[c]
+            if hi <= 0 and not (self.weights[c] or self.curvature[c]):
+                continue  # a component the device does not have (leakage without its section)
             if v < lo * (1 - 1e-9):
                 how = "perfect" if v <= 0 else f"x{lo / v:.2f}"
                 notes.append(f"{c} factor {v:.3g} is below the smallest sampled {lo:g}: extrapolated {how}")

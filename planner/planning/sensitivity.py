@@ -20,7 +20,8 @@ import math
 from collections.abc import Sequence
 from typing import Any
 
-from planner.config import COMPONENTS, Target
+from planner.config import Target
+from planner.planning.leakage import present_components
 from planner.fits import Interval
 from planner.planning.ask import goal_distance
 from planner.planning.model import ResponseModel, not_sampled_note
@@ -117,7 +118,7 @@ def _rows(model: ResponseModel, target: Target) -> dict[str, ComponentSensitivit
         central = RateSet.from_rates(rm.rates, target=target)
         base_t = goal_years(model, central, eps_target=eps, max_distance=dmax, horizon_years=rm.horizon_years)
     rows = {}
-    for c in COMPONENTS:
+    for c in present_components(model):  # leakage without its section is zero today: left out
         if not model.is_sampled(c):
             rows[c] = ComponentSensitivity(component=c, share=None, elasticity=None, suppression_halved=None,
                                            suppression_perfect=None, months_earlier=None, sampled=False,

@@ -155,7 +155,9 @@ def _predicted(models: Sequence[Any], best: float, values: list[float]) -> Inter
 
 
 def _same_scales(a: dict[str, float], b: dict[str, float]) -> bool:
-    return all(math.isclose(a.get(c, 1.0), b.get(c, 1.0), rel_tol=1e-9, abs_tol=1e-12) for c in COMPONENTS)
+    # the task's own components (a task without [device.leakage] carries no leakage scale)
+    return all(math.isclose(a.get(c, 1.0), b.get(c, 1.0), rel_tol=1e-9, abs_tol=1e-12)
+               for c in COMPONENTS if c in a)
 
 
 def _sampled_at(stats: Sequence[sinter.TaskStats], points: Sequence[OperatingPoint]) -> FitReport | None:

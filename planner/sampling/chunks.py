@@ -27,6 +27,7 @@ from planner.sampling.dask import (
     parse_cluster,
     worker_timeout,
 )
+from planner.sampling.leakage import leakage_of, sample_leakage_chunk
 from planner.sampling.work import ChunkSink, WorkItem, new_chunk_id
 from planner.sweep import StoppingRule, detector_error_model_for
 
@@ -78,11 +79,15 @@ def _compiled(strong_id: str, circuit_text: str, decoder: str) -> tuple[Any, Any
 
 
 def sample_chunk(*, chunk_id: str, strong_id: str, circuit_text: str, decoder: str,
-                 shots: int) -> ChunkResult:
+                 shots: int, leakage: dict[str, Any] | None = None) -> ChunkResult:
     """Runs on a worker: sample ``shots`` shots, decode, count wrong observable predictions.
 
     ``seconds`` is the time spent sampling and decoding (compiling is not counted, as in sinter).
     """
+    if leakage is not None:  # a leakage task: its own sampler (planner.sampling.leakage)
+        done, errors, seconds = sample_leakage_chunk(strong_id=strong_id, circuit_text=circuit_text,
+                                                     decoder=decoder, shots=shots, leakage=leakage)
+        return ChunkResult(chunk_id=chunk_id, shots=done, errors=errors, discards=0, seconds=seconds)
     sampler, compiled_decoder = _compiled(strong_id, circuit_text, decoder)
     t0 = time.monotonic()
     dets, obs = sampler.sample(shots=shots, bit_packed=True, separate_observables=True)
@@ -190,6 +195,7 @@ def drive_chunks(client: Any, items: Sequence[WorkItem], sink: ChunkSink, *,
     def submit(tp: _Progress, shots: int, chunk_id: str, attempt: int) -> None:
         fut = client.submit(sample_chunk, chunk_id=chunk_id, strong_id=tp.item.strong_id,
                             circuit_text=tp.text, decoder=str(tp.item.task.decoder), shots=shots,
+                            leakage=leakage_of(tp.item.task),
                             key=f"planner-chunk-{chunk_id}-{attempt}", pure=False,
                             priority=tp.item.size)
         tp.in_flight[chunk_id] = shots

@@ -16,6 +16,7 @@ import sinter
 from rich.console import Console
 
 from planner.sampling.dask import ClusterSpec, parse_cluster
+from planner.sampling.leakage import leakage_samplers
 from planner.sampling.work import ChunkSink, WorkItem, check_workers, default_workers
 
 
@@ -41,7 +42,8 @@ def run_local(items: Sequence[WorkItem], *, workers: int, sink: ChunkSink) -> No
     tasks = [_capped(it) for it in items]
     # the token makes each worker exit when this process dies (see planner.sampling.orphans)
     for progress in sinter.iter_collect(num_workers=workers, tasks=tasks, hint_num_tasks=len(tasks),
-                                        custom_decoders={GuardToken.NAME: GuardToken()}):
+                                        custom_decoders={GuardToken.NAME: GuardToken(),
+                                                                         **leakage_samplers()}):
         for stats in progress.new_stats:
             if stats.shots:
                 sink(stats, None)

@@ -162,6 +162,12 @@ MATRIX = [
     case("status", _p("bad_manifest_dir"), needle="manifest.json"),
     case("status", FILE, needle="exists and is not a directory"),
     case("merge", FILE, "--out", MISS, needle="exists and is not a directory"),
+    # leakage
+    case("leakage", _p("missing", "x.toml"), "--distance", "3", needle="x.toml: no such target file"),
+    case("leakage", MAL, "--distance", "3", needle="malformed.toml: not valid TOML"),
+    case("leakage", BAD, "--distance", "3", needle="device.errors.gate_2q"),
+    case("leakage", T, "--distance", "3", needle="device.leakage: missing section"),
+    case("leakage", T, "--distance", "4", needle="--distance"),
 ]
 
 

@@ -29,22 +29,27 @@ def shot_rate(eps: float, rounds: int) -> float:
     return (1 - (1 - 2 * eps) ** rounds) / 2
 
 
+#: the components of a target without a [device.leakage] section (its tasks carry no leakage scale)
+PAULI_COMPONENTS = tuple(c for c in COMPONENTS if c != "leakage")
+
+
 def synthetic_stats(*, weights: Mapping[str, float], prefactor: float, distances: Sequence[int],
                     joint_scales: Sequence[float], component_scales: Sequence[float] = (),
-                    components: Sequence[str] = COMPONENTS, shots: int | Mapping[int, int] = 100_000,
+                    components: Sequence[str] = PAULI_COMPONENTS, shots: int | Mapping[int, int] = 100_000,
                     bases: Sequence[str] = ("z", "x"), seed: int = 0,
                     curvature: Mapping[str, float] | None = None) -> list[sinter.TaskStats]:
     """Binomial counts for the grid, one TaskStats per (point, d, basis); seeded and deterministic."""
     rng = np.random.default_rng(seed)
-    points = [("joint", f, {c: f for c in COMPONENTS}) for f in joint_scales]
+    keys = COMPONENTS if "leakage" in weights or "leakage" in components else PAULI_COMPONENTS
+    points = [("joint", f, {c: f for c in keys}) for f in joint_scales]
     for c in components:
         for f in component_scales:
             if f != 1.0:
-                points.append((c, f, {k: (f if k == c else 1.0) for k in COMPONENTS}))
+                points.append((c, f, {k: (f if k == c else 1.0) for k in keys}))
     out = []
     for axis, factor, scales in points:
         inv = sum(weights.get(c, 0.0) * scales[c] + (curvature or {}).get(c, 0.0) * scales[c] ** 2
-                  for c in COMPONENTS)
+                  for c in keys)
         for d in distances:
             eps = min(prefactor * inv ** ((d + 1) / 2), 0.499)
             p = shot_rate(eps, d)

@@ -20,12 +20,12 @@ from planner.config import COMPONENTS, EXAMPLE_TOML, parse_target
 from planner.planning import answer_all
 from planner.reports import files, tables
 from planner.reports.formats import percent
-from tests.helpers.synthetic import synthetic_stats
+from tests.helpers.synthetic import PAULI_COMPONENTS, synthetic_stats
 
 # invented weights (1/Lambda per unit scale): total 0.47, Lambda today ~2.1
 W = {"gate_1q": 0.02, "gate_2q": 0.2, "readout": 0.08, "reset": 0.02, "idle": 0.1, "idle_measure": 0.05}
 AXES = ("gate_2q", "readout")
-OTHERS = tuple(c for c in COMPONENTS if c not in AXES)
+OTHERS = tuple(c for c in PAULI_COMPONENTS if c not in AXES)  # no [device.leakage]: no leakage
 # the sampled components made expensive: a mix free to change the others would pick them
 COSTS = "\n[costs]\ngate_2q = 50.0\nreadout = 50.0\n"
 ROADMAP = "\n[roadmap]\nstart = 2030-01-01\nhorizon_years = 10\n[roadmap.rates]\ngate_2q = {per_year = 0.3}\n"
@@ -49,7 +49,7 @@ def subset():
 
 @pytest.fixture(scope="module")
 def every():
-    return _answers(COMPONENTS)
+    return _answers(PAULI_COMPONENTS)
 
 
 def _terminal(answers) -> str:

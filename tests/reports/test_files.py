@@ -24,6 +24,7 @@ from planner.reports import files, html, plots, text
 from planner.store import SampleStore
 from planner.sweep import StoppingRule
 from tests.helpers.sampled import SampleOnce, copy_out
+from tests.helpers.synthetic import PAULI_COMPONENTS
 
 #: small but real: 4 scale points x d = 3, 5 x two bases, 200 errors or 50k shots per task
 RULE = StoppingRule(max_errors=200, max_shots=50_000)
@@ -148,13 +149,13 @@ def test_csv_files_have_the_expected_columns(built: Built) -> None:
     assert _header(built.out / "requirements.csv") == list(files.REQUIREMENTS_COLUMNS)
     rows = _read_csv(built.out / "requirements.csv")
     levers = [r["lever"] for r in rows if r["quantity"] == "factor_needed"]
-    assert levers == ["joint", *COMPONENTS]
+    assert levers == ["joint", *PAULI_COMPONENTS]  # no [device.leakage]: leakage is left out
     for r in rows:  # numbers or empty, never a formatted interval
         for k in ("best", "low", "high"):
             assert r[k] == "" or math.isfinite(float(r[k])), r
     assert _header(built.out / "sensitivity.csv") == list(files.SENSITIVITY_COLUMNS)
     sens = _read_csv(built.out / "sensitivity.csv")
-    assert sorted(r["component"] for r in sens) == sorted(COMPONENTS)
+    assert sorted(r["component"] for r in sens) == sorted(PAULI_COMPONENTS)
     # components without their own axis (here all but gate_2q and readout) have no share of their
     # own: empty, "sampled" false; the sampled shares and the group's share together make 1
     unsampled = built.answers.sensitivity.unsampled
@@ -396,7 +397,7 @@ def test_requirement_intervals_agree_across_json_csv_markdown_html(built: Built)
                                   abs=1e-12)
         assert h[1] <= h[0] <= h[2]
         checked += 1
-    assert checked == len(singles) + 1 + 2 * len(COMPONENTS)
+    assert checked == len(singles) + 1 + 2 * len(PAULI_COMPONENTS)
     assert all(r in page.rows for r in md_rows.values())
 
 
