@@ -162,6 +162,14 @@ MATRIX = [
     case("status", _p("bad_manifest_dir"), needle="manifest.json"),
     case("status", FILE, needle="exists and is not a directory"),
     case("merge", FILE, "--out", MISS, needle="exists and is not a directory"),
+    # compare
+    case("compare", MISS, SAMPLED, needle="no such out directory"),
+    case("compare", SAMPLED, NOSAMP, needle="no samples"),
+    case("compare", SAMPLED, SAMPLED, needle="same directory"),
+    case("compare", SAMPLED, _p("bad_target_dir"), "--out", FILE, needle="exists and is not a directory"),
+    # ask, calculator uncertainties
+    case("ask", "--lambda", "2", "--eps", "1e-3", "--distance", "5", "--target", "1e-6", "--eps-sigma", "1",
+         needle="--eps-sigma"),
     # leakage
     case("leakage", _p("missing", "x.toml"), "--distance", "3", needle="x.toml: no such target file"),
     case("leakage", MAL, "--distance", "3", needle="malformed.toml: not valid TOML"),
