@@ -344,8 +344,8 @@ def grow(old: Manifest, new: Manifest) -> tuple[Manifest, Growth] | str:
     >>> e = lambda sid, d: TaskEntry(strong_id=sid, decoder="pymatching", json_metadata={"d": d})
     >>> a = Manifest(target_sha256="a", target_name="t", versions={}, tasks=(e("x", 3),))
     >>> grown, g = grow(a, dataclasses.replace(a, tasks=(e("x", 3), e("y", 5))))
-    >>> g, grow(a, dataclasses.replace(a, tasks=(e("z", 3),)))[:39]
-    (Growth(kept=1, added=1, retired=0), 'a task with the same settings ({"d": 3}) ')
+    >>> g, grow(a, dataclasses.replace(a, tasks=(e("z", 3),)))[:40]
+    (Growth(kept=1, added=1, retired=0), 'a task with the same settings ({"d": 3})')
     """
     by_key = {_task_key(e.json_metadata): e for e in (*old.retired, *old.tasks)}
     for e in new.tasks:
