@@ -214,6 +214,16 @@ def lambda_windows(points: Sequence[DistanceFit]) -> tuple[LambdaWindow, ...]:
     return tuple(out)
 
 
+def _lambda_note(zero: bool, used: Sequence[DistanceFit], usable: Sequence[DistanceFit],
+                 drift: LambdaDrift | None) -> str:
+    notes = ["includes zero-error points at their upper bound: Lambda leans low"] if zero else []
+    if len(used) < len(usable):
+        notes.append(f"projection Lambda from the largest distances {','.join(str(p.distance) for p in used)}")
+    if drift is not None and drift.significant:
+        notes.append(f"Lambda drifts with d: x{drift.ratio_per_step.best:.3g} per step d -> d+2")
+    return "; ".join(notes)
+
+
 #: distances the projection Lambda is fitted over when more are sampled (the largest ones)
 PROJECTION_WINDOW = 3
 
@@ -238,16 +248,11 @@ def fit_lambda(points: Sequence[DistanceFit]) -> LambdaFit:
     line = suppression_line([p.distance for p in used], [math.log(p.per_cycle.best) for p in used],
                             [p.log_sigma for p in used])
     lam = _z_interval(-line.slope, line.slope_se).map(math.exp)
-    notes = ["includes zero-error points at their upper bound: Lambda leans low"] if zero else []
-    if len(used) < len(usable):
-        notes.append(f"projection Lambda from the largest distances {','.join(str(p.distance) for p in used)}")
     drift = lambda_drift([p.distance for p in usable], [math.log(p.per_cycle.best) for p in usable],
                          [p.log_sigma for p in usable])
-    if drift is not None and drift.significant:
-        notes.append(f"Lambda drifts with d: x{drift.ratio_per_step.best:.3g} per step d -> d+2")
     return LambdaFit(**point, distances=tuple(p.distance for p in used),
                      suppression=lam, ln_prefactor=_z_interval(line.intercept, line.intercept_se),
-                     chi2_per_dof=line.chi2_per_dof, note="; ".join(notes),
+                     chi2_per_dof=line.chi2_per_dof, note=_lambda_note(zero, used, usable, drift),
                      sampled_distances=tuple(p.distance for p in usable), windows=lambda_windows(usable),
                      drift=drift)
 
