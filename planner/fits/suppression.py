@@ -199,6 +199,12 @@ def lambda_drift(distances: Sequence[int], ln_eps: Sequence[float], log_sigmas: 
     return LambdaDrift(per_step=per_step, significant=not per_step.low <= 0 <= per_step.high, chi2_per_dof=chi)
 
 
+def _columns(points: Sequence[DistanceFit]) -> tuple[list[int], list[float], list[float]]:
+    """Distances, ln eps and log sigmas of ``points`` (nonzero rates)."""
+    return ([p.distance for p in points], [math.log(p.per_cycle.best) for p in points],
+            [p.log_sigma for p in points])
+
+
 def lambda_windows(points: Sequence[DistanceFit]) -> tuple[LambdaWindow, ...]:
     """Lambda over every run of two and of three consecutive distances of ``points`` (sorted by
     distance, one per distance, nonzero rates), in order of size then centre."""
@@ -206,8 +212,7 @@ def lambda_windows(points: Sequence[DistanceFit]) -> tuple[LambdaWindow, ...]:
     for size in (2, 3):
         for i in range(len(points) - size + 1):
             run = points[i:i + size]
-            line = suppression_line([p.distance for p in run], [math.log(p.per_cycle.best) for p in run],
-                                    [p.log_sigma for p in run])
+            line = suppression_line(*_columns(run))
             out.append(LambdaWindow(distances=tuple(p.distance for p in run),
                                     suppression=_z_interval(-line.slope, line.slope_se).map(math.exp),
                                     ln_prefactor=_z_interval(line.intercept, line.intercept_se)))
@@ -245,11 +250,9 @@ def fit_lambda(points: Sequence[DistanceFit]) -> LambdaFit:
         return LambdaFit(**point, distances=ds, suppression=None, ln_prefactor=None, chi2_per_dof=None,
                          note="rates at fewer than two distances are nonzero: no Lambda")
     used = usable[-PROJECTION_WINDOW:] if len(usable) > PROJECTION_WINDOW else usable
-    line = suppression_line([p.distance for p in used], [math.log(p.per_cycle.best) for p in used],
-                            [p.log_sigma for p in used])
+    line = suppression_line(*_columns(used))
     lam = _z_interval(-line.slope, line.slope_se).map(math.exp)
-    drift = lambda_drift([p.distance for p in usable], [math.log(p.per_cycle.best) for p in usable],
-                         [p.log_sigma for p in usable])
+    drift = lambda_drift(*_columns(usable))
     return LambdaFit(**point, distances=tuple(p.distance for p in used),
                      suppression=lam, ln_prefactor=_z_interval(line.intercept, line.intercept_se),
                      chi2_per_dof=line.chi2_per_dof, note=_lambda_note(zero, used, usable, drift),
