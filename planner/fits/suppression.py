@@ -219,16 +219,6 @@ def lambda_windows(points: Sequence[DistanceFit]) -> tuple[LambdaWindow, ...]:
     return tuple(out)
 
 
-def _lambda_note(zero: bool, used: Sequence[DistanceFit], usable: Sequence[DistanceFit],
-                 drift: LambdaDrift | None) -> str:
-    notes = ["includes zero-error points at their upper bound: Lambda leans low"] if zero else []
-    if len(used) < len(usable):
-        notes.append(f"projection Lambda from the largest distances {','.join(str(p.distance) for p in used)}")
-    if drift is not None and drift.significant:
-        notes.append(f"Lambda drifts with d: x{drift.ratio_per_step.best:.3g} per step d -> d+2")
-    return "; ".join(notes)
-
-
 #: distances the projection Lambda is fitted over when more are sampled (the largest ones)
 PROJECTION_WINDOW = 3
 
@@ -255,7 +245,7 @@ def fit_lambda(points: Sequence[DistanceFit]) -> LambdaFit:
     drift = lambda_drift(*_columns(usable))
     return LambdaFit(**point, distances=tuple(p.distance for p in used),
                      suppression=lam, ln_prefactor=_z_interval(line.intercept, line.intercept_se),
-                     chi2_per_dof=line.chi2_per_dof, note=_lambda_note(zero, used, usable, drift),
+                     chi2_per_dof=line.chi2_per_dof, note="includes zero-error points at their upper bound: Lambda leans low" if zero else "",
                      sampled_distances=tuple(p.distance for p in usable), windows=lambda_windows(usable),
                      drift=drift)
 
