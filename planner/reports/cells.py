@@ -85,6 +85,9 @@ def lever_note(a: FactorAnswer) -> str:
     >>> lever_note(FactorAnswer(lever="idle", reachable=False, factor=None, suppression=1.9, note="not reachable alone: with idle perfect, Lambda = 1.9"))
     'not reachable alone: even with idle perfect, Lambda stays below the Lambda needed'
     """
+    if a.sampled and a.marginal:
+        return (f"marginal: reached on some replicas or distance-window models and not on others"
+                + ("" if a.reachable else f"; with {a.lever} perfect, Lambda is within its interval of the one needed"))
     if a.sampled and not a.reachable and a.lever != "joint":
         return f"not reachable alone: even with {a.lever} perfect, Lambda stays below the Lambda needed"
     return a.note

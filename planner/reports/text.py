@@ -15,7 +15,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from typing import TYPE_CHECKING
 
-from planner.fits import CONFIDENCE, FitReport, Interval
+from planner.fits import CONFIDENCE, FitReport, Interval, LambdaFit
 from planner.reports.cells import (
     MARGINAL_NOTE,
     MISFIT_NOTE,
@@ -259,17 +259,35 @@ def sensitivity_tables(sens: Sensitivity, *, lumped: Sequence[str] = ()) -> list
 # fits
 
 
+def _windows_cell(lf: LambdaFit) -> str:
+    """Lambda over each run of consecutive distances, e.g. ``3-5: 1.92; 5-7: 1.70``."""
+    return "; ".join(f"{w.distances[0]}-{w.distances[-1]}: {num(w.suppression.best)}" for w in lf.windows) or "—"
+
+
+def _drift_cell(lf: LambdaFit) -> str:
+    """Lambda's factor per step d -> d+2 with its interval, marked when the interval excludes 1."""
+    if lf.drift is None:
+        return "—"
+    return interval(lf.drift.ratio_per_step) + (" drifts" if lf.drift.significant else "")
+
+
 def fits_tables(report: FitReport) -> list[Table]:
-    """Lambda per scale point and the threshold estimate."""
+    """Lambda per scale point (over the distances used for projection), its windows and drift
+    with distance, and the threshold estimate."""
     rows = tuple((lf.axis, num(lf.factor), ",".join(map(str, lf.distances)), interval(lf.suppression),
-                  interval(lf.ln_prefactor), num(lf.chi2_per_dof), lf.note) for lf in report.lambdas)
+                  interval(lf.ln_prefactor), num(lf.chi2_per_dof), _windows_cell(lf), _drift_cell(lf), lf.note)
+                 for lf in report.lambdas)
     th = report.threshold
     lead = (f"Threshold (joint factor where Lambda = 1): {interval(th.factor)}; {th.note}.",)
+    notes = ("distances: those the projection Lambda is fitted over (the three largest when more are sampled).",
+             "windows: Lambda over each run of two and three consecutive sampled distances (best values).",
+             "Lambda per d+2: how Lambda changes from d to d+2 (weighted quadratic of ln eps in (d+1)/2, "
+             "1 = no drift); 'drifts': the interval excludes 1.", *report.notes)
     return [Table(
         key="fits", title="Suppression factor Lambda per scale point",
         headers=("axis", "factor (x today's error)", "distances", "Lambda (eps_d / eps_d+2)",
-                 "ln A (ln per cycle)", "chi2/dof", "note"),
-        rows=rows, lead=lead, notes=tuple(report.notes))]
+                 "ln A (ln per cycle)", "chi2/dof", "windows (Lambda)", "Lambda per d+2 (ratio)", "note"),
+        rows=rows, lead=lead, notes=notes)]
 
 
 # ---------------------------------------------------------------------------------------------
