@@ -13,6 +13,7 @@ from rich.console import Console
 from planner.config import COMPONENTS, EXAMPLE_TOML, parse_target
 from planner.fits import DistanceFit, Interval, Z_SCORE, fit_lambda, fit_stats
 from planner.planning import FactorAnswer, Uncertainty, answer_all, fit_model
+from planner.planning.model import ModelData, fit_response
 from planner.planning.modelerror import _marginal, combine_parts
 from planner.reports import tables
 from planner.reports.cells import lever_cells
@@ -168,3 +169,25 @@ def test_chosen_form_is_judged_on_held_out_points(misfit_answers):
     assert model.form in ("linear", "quadratic", "interaction")
     assert model.quality.loo_max_abs_residual is not None
     assert model.to_json()["quality"]["limits"]["chi2_per_dof"] == 3.0
+
+
+def test_near_threshold_grid_fits_or_carries_the_flag_on_every_answer():
+    # invented device near threshold (Lambda today ~1.15) whose budget grows faster than linearly:
+    # the fit either stays within the limits or every answer built on it says so
+    near = {c: 0.9 * w for c, w in W.items()}
+    curv = {c: 0.8 * w for c, w in W.items()}
+    stats = synthetic_stats(weights=near, curvature=curv, prefactor=0.1, joint_scales=(0.5, 0.7, 1.0), seed=6,
+                            **GRID)
+    a = answer_all(TARGET, stats, seed=2, replicas=20)
+    q, req = a.model.quality, a.requirements
+    assert q.misfit == bool(q.misfit_reasons) == req.model_misfit
+    if q.misfit:  # the limits: chi2/dof 3 and 3 sigma held out (model.py)
+        assert (q.chi2_per_dof or 0) > 3 or (q.loo_max_abs_residual or 0) > 3
+    doc = req.to_json()
+    for ans in (doc["joint"], *(c for c in doc["components"] if c["sampled"])):
+        assert ans["model_misfit"] == q.misfit and (not ans["reliable"] if q.misfit else True), ans["lever"]
+    assert doc["cheapest_mix"]["model_misfit"] == doc["today"]["model_misfit"] == q.misfit
+    # curvature in the truth (seeded draw): the linear form misfits, the quadratic predicts the
+    # held-out points better, is chosen, and fits within the limits
+    linear = fit_response(ModelData.from_fits(a.fits), form="linear").quality
+    assert linear.misfit and a.model.form == "quadratic" and not q.misfit
