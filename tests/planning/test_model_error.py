@@ -191,3 +191,20 @@ def test_near_threshold_grid_fits_or_carries_the_flag_on_every_answer():
     # held-out points better, is chosen, and fits within the limits
     linear = fit_response(ModelData.from_fits(a.fits), form="linear").quality
     assert linear.misfit and a.model.form == "quadratic" and not q.misfit
+
+
+def test_larger_distances_at_some_points_project_with_them():
+    # today's point also at d = 9, 11 (as the sweep does where the answers depend on it)
+    base = synthetic_stats(weights=W, prefactor=0.1, joint_scales=(0.5, 0.7, 1.0), seed=7, **GRID)
+    extra = synthetic_stats(weights=W, prefactor=0.1, distances=(9, 11), joint_scales=(1.0,), components=(),
+                            shots=2_000_000, seed=8)
+    a = answer_all(TARGET, base + extra, seed=3, replicas=REPLICAS)
+    today = a.fits.today()
+    assert today.sampled_distances == (3, 5, 7, 9, 11) and today.distances == (7, 9, 11)
+    others = [lf for lf in a.fits.lambdas if lf is not today]
+    assert all(lf.distances == (3, 5, 7) for lf in others)
+    me = a.uncertainty.model_error
+    assert set(me.window_models) == {"lowest pair", "highest pair", "lowest three"}
+    # truth 1/0.47 (no drift in the synthetic law) within the combined interval
+    iv = a.requirements.today.suppression_model_interval
+    assert iv.low <= 1 / 0.47 <= iv.high
