@@ -98,5 +98,7 @@ def answer_all(target: Target, stats: Sequence[sinter.TaskStats], *, seed: int =
     rm = build_roadmap(target, model, seed=seed, models=models, eps_target=eps_target)
     if rm is not None and (far := distance_extrapolation_note(rm.goal_distance, report.sampled_distances)):
         rm = dataclasses.replace(rm, note="; ".join(n for n in (rm.note, far) if n))
-    return Answers(fits=report, model=model, requirements=req, roadmap=rm,
-                   sensitivity=sensitivity(model, target, models=models), uncertainty=unc)
+    sens = sensitivity(model, target, models=models)
+    if unc is not None and "lambda_today" in unc.intervals:  # the same Lambda today as the requirements
+        sens = dataclasses.replace(sens, suppression_today_interval=unc.intervals["lambda_today"])
+    return Answers(fits=report, model=model, requirements=req, roadmap=rm, sensitivity=sens, uncertainty=unc)
