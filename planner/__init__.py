@@ -65,6 +65,7 @@ _HOME: dict[str, str] = {
     "CONFIDENCE": "planner.fits", "FitReport": "planner.fits", "Interval": "planner.fits",
     "fit_stats": "planner.fits",
     "ResponseModel": "planner.planning", "fit_model": "planner.planning",
+    "ModelError": "planner.planning", "model_error": "planner.planning",
     # answers
     "Answers": "planner.planning", "answer_all": "planner.planning",
     "Requirements": "planner.planning", "requirements": "planner.planning",
@@ -101,6 +102,7 @@ __all__ = [
     "TargetedSummary", "load_out_dir", "plan_sweep", "run_sweep", "run_targeted",
     # fits
     "CONFIDENCE", "FitReport", "Interval", "ResponseModel", "fit_model", "fit_stats",
+    "ModelError", "model_error",
     # answers
     "Answers", "CalculatorAnswer", "MixAnswer", "Requirements", "Roadmap", "Sensitivity",
     "answer_all", "build_roadmap", "calculate", "cheapest_mix", "physical_qubits", "requirements",

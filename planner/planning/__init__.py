@@ -36,13 +36,14 @@ from planner.planning.model import (
 )
 from planner.planning.roadmap import Roadmap, build_roadmap
 from planner.planning.sensitivity import Sensitivity, sensitivity
+from planner.planning.modelerror import ModelError, flag_answers, model_error, with_model_error
 from planner.planning.uncertainty import Uncertainty, bootstrap, with_intervals
 
 __all__ = [
-    "Answers", "CalculatorAnswer", "FactorAnswer", "FitQuality", "MixAnswer", "Requirements",
+    "Answers", "CalculatorAnswer", "FactorAnswer", "FitQuality", "MixAnswer", "ModelError", "Requirements",
     "ResponseModel", "Roadmap", "Sensitivity", "TodayAnswer", "Uncertainty", "answer_all",
     "build_roadmap", "calculate", "cheapest_mix", "fit_model", "largest_distance_within",
-    "no_model_reason", "physical_qubits", "requirements", "sensitivity", "smallest_distance",
+    "model_error", "no_model_reason", "physical_qubits", "requirements", "sensitivity", "smallest_distance",
 ]
 
 
@@ -87,13 +88,17 @@ def answer_all(target: Target, stats: Sequence[sinter.TaskStats], *, seed: int =
                        uncertainty=None, notes=(no_model_reason(report),))
     model = fit_model(report)
     req = requirements(model, target, eps_target=eps_target, distance=distance, qubits=qubits, report=report)
-    unc = bootstrap(stats, report, model, req, replicas=replicas, seed=seed,
-                    costs={c: target.cost(c) for c in COMPONENTS}) if replicas > 0 else None
-    if unc is not None:
+    costs = {c: target.cost(c) for c in COMPONENTS}
+    unc = bootstrap(stats, report, model, req, replicas=replicas, seed=seed, costs=costs) if replicas > 0 else None
+    if unc is not None:  # the model-form part (windows, misfit) joins the bootstrap's
+        unc = with_model_error(unc, model_error(report, model), req, costs)
         req = with_intervals(req, unc)
+    req = flag_answers(req, unc, model)
     models = unc.models if unc else ()
     rm = build_roadmap(target, model, seed=seed, models=models, eps_target=eps_target)
     if rm is not None and (far := distance_extrapolation_note(rm.goal_distance, report.sampled_distances)):
         rm = dataclasses.replace(rm, note="; ".join(n for n in (rm.note, far) if n))
-    return Answers(fits=report, model=model, requirements=req, roadmap=rm,
-                   sensitivity=sensitivity(model, target, models=models), uncertainty=unc)
+    sens = sensitivity(model, target, models=models)
+    if unc is not None and "lambda_today" in unc.intervals:  # the same Lambda today as the requirements
+        sens = dataclasses.replace(sens, suppression_today_interval=unc.intervals["lambda_today"])
+    return Answers(fits=report, model=model, requirements=req, roadmap=rm, sensitivity=sens, uncertainty=unc)

@@ -59,9 +59,27 @@ class FactorAnswer:
     suppression_interval: Interval | None = None
     #: False for a component without its own sweep axis: no factor, no Lambda, no verdict
     sampled: bool = True
+    #: the response model exceeds its misfit limits (the answer is unreliable)
+    model_misfit: bool = False
+    #: the verdict flips with sampling noise or the model form (see planning.modelerror)
+    marginal: bool = False
+    #: which part of the interval dominates: "sampling", "model" or "" (no interval)
+    interval_source: str = ""
+
+    @property
+    def verdict(self) -> str:
+        """reachable, not reachable, marginal or not sampled."""
+        if not self.sampled:
+            return "not sampled"
+        if self.marginal:
+            return "marginal"
+        return "reachable" if self.reachable else "not reachable"
 
     def to_json(self) -> dict[str, Any]:
         return {"lever": self.lever, "sampled": self.sampled, "reachable": self.reachable, "factor": self.factor,
+                "verdict": self.verdict, "marginal": self.marginal, "model_misfit": self.model_misfit,
+                "reliable": self.sampled and not (self.model_misfit or self.marginal),
+                "interval_source": self.interval_source or None,
                 "suppression_factor": _fin(self.suppression), "note": self.note,
                 "extrapolation": list(self.extrapolation), "factor_interval": _ivj(self.factor_interval),
                 "suppression_factor_interval": _ivj(self.suppression_interval)}
@@ -84,9 +102,13 @@ class TodayAnswer:
     suppression_model_interval: Interval | None = None
     logical_error_per_cycle_interval: Interval | None = None
     max_qubits: int | None = None
+    model_misfit: bool = False
+    interval_source: str = ""
 
     def to_json(self) -> dict[str, Any]:
         return {"suppression_factor_model": _fin(self.suppression_model),
+                "model_misfit": self.model_misfit, "reliable": not self.model_misfit,
+                "interval_source": self.interval_source or None,
                 "suppression_factor_fitted": _ivj(self.suppression_fitted),
                 "above_threshold": self.above_threshold, "distance": self.distance,
                 "physical_qubits": self.physical_qubits, "within_max_qubits": self.within_max_qubits,
@@ -116,6 +138,10 @@ class Requirements:
     notes: tuple[str, ...] = ()
     required_suppression_interval: Interval | None = None
     code: str = "surface"
+    #: the response model exceeds its misfit limits: every answer here is unreliable
+    model_misfit: bool = False
+    #: per interval key: combined best/low/high, ``sampling_interval``, ``model_interval``, ``dominant``
+    interval_parts: dict[str, dict[str, Any]] = dataclasses.field(default_factory=dict)
 
     @property
     def qubit_rule(self) -> str:
@@ -130,7 +156,8 @@ class Requirements:
                 "required_suppression_factor_interval": _ivj(self.required_suppression_interval),
                 "joint": self.joint.to_json(), "components": [c.to_json() for c in self.components],
                 "cheapest_mix": self.mix.to_json(), "today": self.today.to_json(),
-                "model": {"form": self.model_form, "quality": self.model_quality},
+                "model": {"form": self.model_form, "quality": self.model_quality, "misfit": self.model_misfit},
+                "model_misfit": self.model_misfit, "intervals": dict(self.interval_parts),
                 "notes": list(self.notes)}
 
 

@@ -39,6 +39,11 @@ class MixAnswer:
     suppression_interval: Interval | None = None
     #: components without their own sweep axis: the mix never changes them (kept at today's error)
     not_sampled: tuple[str, ...] = ()
+    #: the response model exceeds its misfit limits (the answer is unreliable)
+    model_misfit: bool = False
+    #: reached on only part of the replicas (see planning.modelerror)
+    marginal: bool = False
+    interval_source: str = ""
 
     def changed(self) -> list[str]:
         """Components the mix improves (factor below 1), in COMPONENTS order."""
@@ -55,7 +60,9 @@ class MixAnswer:
                 "cost_share_intervals": {c: v.to_json() for c, v in self.cost_share_intervals.items()},
                 "cost_halvings_interval": _ivj(self.cost_interval),
                 "suppression_factor_interval": _ivj(self.suppression_interval),
-                "not_sampled": list(self.not_sampled)}
+                "not_sampled": list(self.not_sampled), "model_misfit": self.model_misfit,
+                "marginal": self.marginal, "reliable": not (self.model_misfit or self.marginal),
+                "interval_source": self.interval_source or None}
 
 
 def mix_cost(scales: Mapping[str, float], costs: Mapping[str, float]) -> float:

@@ -2,9 +2,14 @@
 
 Error-budget form (``linear``): ``1/Lambda = sum_c w_c s_c`` with ``w_c >= 0`` (weighted NNLS):
 every component adds its share of "distance to threshold", a perfect device has no logical error.
-If held-out points disagree beyond their intervals, the ``quadratic`` form adds a non-negative
-curvature term per component, ``1/Lambda = sum_c (w_c s_c + v_c s_c^2)``, and is kept when it
-predicts the held-out points better. The prefactor is ``ln A = a_0 + sum_c a_c s_c`` (weighted
+When the linear form misfits (chi2/dof above :data:`CHI2_LIMIT` or a held-out point missed by
+more than :data:`LOO_LIMIT` sigma), richer forms are tried and the one predicting the held-out
+points best (leave-one-out, over the points every form can hold out) is kept: ``quadratic`` adds
+a non-negative curvature term per component, ``1/Lambda = sum_c (w_c s_c + v_c s_c^2)``;
+``interaction`` adds to the linear form one shared pairwise term ``u sum_{c<c'} (s_c - 1)(s_c' - 1)``
+(of either sign: zero on every single-component axis, it lets the joint axis depart from the sum
+of the axes). A chosen form that still exceeds the limits is a misfit (:attr:`FitQuality.misfit`):
+every answer built on it carries the flag. The prefactor is ``ln A = a_0 + sum_c a_c s_c`` (weighted
 least squares). Then ``eps_d(s) = A(s) * Lambda(s)^(-(d+1)/2)`` (Google Quantum AI, Nature 638,
 920 (2025), eq. 1); a surface code needs ``2 d^2 - 1`` physical qubits (same paper), a repetition
 code ``2 d - 1`` (see :func:`physical_qubits`).
@@ -23,13 +28,20 @@ from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
-from scipy.optimize import nnls
 
 from planner.config import COMPONENTS
 from planner.errors import InputError
 from planner.fits import Z_SCORE, FitReport, LambdaFit
+from planner.planning.heldout import held_out_residuals as _loo
+from planner.planning.heldout import mean_square as _mean_square
+from planner.planning.heldout import solve as _solve
+from planner.planning.codes import CODES, largest_distance_within, physical_qubits, qubit_rule
 
-FORMS = ("linear", "quadratic")
+__all__ = ["CHI2_LIMIT", "CODES", "FORMS", "LOO_LIMIT", "NOT_SAMPLED", "FitQuality", "ModelData", "ResponseModel",
+           "fit_model", "fit_response", "largest_distance_within", "not_sampled_note", "pair_term",
+           "physical_qubits", "qubit_rule"]
+
+FORMS = ("linear", "quadratic", "interaction")
 #: what every answer about a component without its own sweep axis says instead of a figure
 NOT_SAMPLED = "not sampled"
 
@@ -44,62 +56,14 @@ def not_sampled_note(components: "tuple[str, ...] | list[str]") -> str:
     one = len(components) == 1
     return (f"{NOT_SAMPLED}: {names} {'has' if one else 'have'} no sweep axis of {'its' if one else 'their'} own; "
             f"add {'it' if one else 'them'} to sweep.components and run `planner sweep TARGET`")
-#: leave-one-out |residual|/sigma beyond which the linear form is considered inadequate
-#: (common practice, no source: ~3 sigma)
+#: leave-one-out |residual|/sigma beyond which a form misfits (common practice, no source: ~3 sigma)
 LOO_LIMIT = 3.0
-
-
-#: the codes planner plans for, and how many physical qubits a distance-d patch of each uses
-CODES = ("surface", "repetition")
-
-
-def _check_code(code: str) -> None:
-    if code not in CODES:
-        raise InputError(f"{code!r} is not a code planner plans for", field="code", allowed=", ".join(CODES))
-
-
-def physical_qubits(distance: int, code: str = "surface") -> int:
-    """Physical qubits of one distance-``distance`` memory: ``2 d^2 - 1`` for the rotated surface
-    code (d^2 data + d^2 - 1 measure qubits; Google Quantum AI, Nature 638, 920 (2025)), ``2 d - 1``
-    for the repetition code (d data + d - 1 measure qubits, common practice).
-
-    >>> physical_qubits(7), physical_qubits(7, "repetition")
-    (97, 13)
-    """
-    _check_code(code)
-    return 2 * distance - 1 if code == "repetition" else 2 * distance * distance - 1
-
-
-def qubit_rule(code: str = "surface") -> str:
-    """The qubit count of :func:`physical_qubits` as a short formula for tables.
-
-    >>> qubit_rule(), qubit_rule("repetition")
-    ('2d^2-1', '2d-1')
-    """
-    _check_code(code)
-    return "2d-1" if code == "repetition" else "2d^2-1"
-
-
-def largest_distance_within(qubits: int, code: str = "surface") -> int | None:
-    """Largest odd d >= 3 with ``physical_qubits(d, code) <= qubits`` (None if even d = 3 does not
-    fit).
-
-    >>> largest_distance_within(97), largest_distance_within(96), largest_distance_within(10)
-    (7, 5, None)
-    >>> largest_distance_within(13, "repetition"), largest_distance_within(12, "repetition")
-    (7, 5)
-    """
-    _check_code(code)
-    qubits = int(qubits)
-    if code == "repetition":
-        d = (qubits + 1) // 2
-    else:
-        d = int(math.isqrt(max(qubits + 1, 0) // 2))
-    if d % 2 == 0:
-        d -= 1
-    while d >= 3 and physical_qubits(d, code) > qubits:
-        d -= 2
-    return d if d >= 3 else None
+#: chi2 per degree of freedom beyond which a form misfits (common practice, no source: with ~10
+#: degrees of freedom, chi2/dof > 3 has a chance below 1e-3 when the model is right)
+CHI2_LIMIT = 3.0
+#: a richer form is kept only when its held-out mean square is below this share of the simpler
+#: one's (common practice, no source: guards against fitting noise)
+RICHER_GAIN = 0.8
 
 
 @dataclasses.dataclass(frozen=True)
@@ -145,9 +109,34 @@ class FitQuality:
     num_points: int
     worst_point: str
 
+    @property
+    def misfit_reasons(self) -> tuple[str, ...]:
+        """Which limit the fit exceeds (empty: within both)."""
+        out = []
+        if self.chi2_per_dof is not None and self.chi2_per_dof > CHI2_LIMIT:
+            out.append(f"chi2/dof {self.chi2_per_dof:.3g} > {CHI2_LIMIT:g}")
+        if self.loo_max_abs_residual is not None and self.loo_max_abs_residual > LOO_LIMIT:
+            out.append(f"held-out residual {self.loo_max_abs_residual:.3g} sigma > {LOO_LIMIT:g}")
+        return tuple(out)
+
+    @property
+    def misfit(self) -> bool:
+        """The model misses its own points beyond the limits: answers built on it are unreliable."""
+        return bool(self.misfit_reasons)
+
+    @property
+    def inflation(self) -> float:
+        """Factor (>= 1) on the variance of every answer for the model's misfit: the larger of
+        chi2/dof and the held-out mean square residual."""
+        vals = [v for v in (self.chi2_per_dof, self.loo_chi2_per_point) if v is not None and math.isfinite(v)]
+        return max([1.0, *vals])
+
     def to_json(self) -> dict[str, Any]:
         f = lambda x: None if x is None or not math.isfinite(x) else float(x)  # noqa: E731
-        return {"chi2_per_dof": f(self.chi2_per_dof), "max_abs_residual_sigma": f(self.max_abs_residual),
+        return {"misfit": self.misfit, "misfit_reasons": list(self.misfit_reasons),
+                "limits": {"chi2_per_dof": CHI2_LIMIT, "leave_one_out_abs_residual_sigma": LOO_LIMIT},
+                "variance_inflation": self.inflation,
+                "chi2_per_dof": f(self.chi2_per_dof), "max_abs_residual_sigma": f(self.max_abs_residual),
                 "leave_one_out_max_abs_residual_sigma": f(self.loo_max_abs_residual),
                 "leave_one_out_chi2_per_point": f(self.loo_chi2_per_point),
                 "num_points": self.num_points, "worst_point": self.worst_point}
@@ -159,6 +148,8 @@ class FitQuality:
         parts.append(f"max |res| {self.max_abs_residual:.1f} sigma")
         if self.loo_max_abs_residual is not None:
             parts.append(f"held-out max |res| {self.loo_max_abs_residual:.1f} sigma")
+        if self.misfit:
+            parts.append("MISFIT (" + "; ".join(self.misfit_reasons) + ")")
         return ", ".join(parts)
 
 
@@ -175,6 +166,8 @@ class ResponseModel:
     sampled_max: dict[str, float]
     unsampled: tuple[str, ...]
     quality: FitQuality
+    #: u of the ``interaction`` form (0 otherwise)
+    interaction: float = 0.0
 
     def is_sampled(self, component: str) -> bool:
         """Whether ``component`` moved on its own in the data (answers about it alone exist)."""
@@ -194,7 +187,11 @@ class ResponseModel:
         return {c: self.weights[c] * s[c] + self.curvature[c] * s[c] ** 2 for c in COMPONENTS}
 
     def inverse_suppression(self, scales: Mapping[str, float] | None = None) -> float:
-        return sum(self.terms(scales).values())
+        inv = sum(self.terms(scales).values())
+        if self.interaction:
+            s = self._vec(scales)
+            inv += self.interaction * float(pair_term(np.array([[s[c] for c in COMPONENTS]]))[0])
+        return inv
 
     def suppression(self, scales: Mapping[str, float] | None = None) -> float:
         """Lambda at ``scales`` (inf for a perfect device)."""
@@ -220,15 +217,20 @@ class ResponseModel:
         w = np.array([self.weights[c] for c in COMPONENTS])
         v = np.array([self.curvature[c] for c in COMPONENTS])
         a = np.array([self.ln_a_coef[c] for c in COMPONENTS])
-        inv = scales @ w + (scales**2) @ v
-        with np.errstate(divide="ignore"):
-            return self.ln_a_const + scales @ a + (distance + 1) / 2 * np.log(inv)
+        inv = self._inv_array(scales)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return np.where(inv > 0, self.ln_a_const + scales @ a + (distance + 1) / 2 * np.log(np.maximum(inv, 1e-300)),
+                            -np.inf)
 
-    def suppression_array(self, scales: np.ndarray) -> np.ndarray:
+    def _inv_array(self, scales: np.ndarray) -> np.ndarray:
         w = np.array([self.weights[c] for c in COMPONENTS])
         v = np.array([self.curvature[c] for c in COMPONENTS])
+        return scales @ w + (scales**2) @ v + self.interaction * pair_term(scales)
+
+    def suppression_array(self, scales: np.ndarray) -> np.ndarray:
+        inv = self._inv_array(scales)
         with np.errstate(divide="ignore"):
-            return 1 / (scales @ w + (scales**2) @ v)
+            return np.where(inv > 0, 1 / np.maximum(inv, 1e-300), np.inf)
 
     def extrapolation(self, scales: Mapping[str, float]) -> list[str]:
         """Notes for each factor outside the sampled range of its component."""
@@ -252,6 +254,7 @@ class ResponseModel:
         # a component without its own axis has no weight of its own (null); its group's is given
         own = lambda d: {c: (v if self.is_sampled(c) else None) for c, v in d.items()}  # noqa: E731
         return {"form": self.form, "weights": own(self.weights), "curvature": own(self.curvature),
+                "interaction": self.interaction,
                 "unsampled_weight_together": self.weight_together() if self.unsampled else None,
                 "ln_prefactor": {"const": self.ln_a_const, "coef": own(self.ln_a_coef)},
                 "sampled_min": dict(self.sampled_min), "sampled_max": dict(self.sampled_max),
@@ -278,45 +281,45 @@ def _columns(scales: np.ndarray) -> tuple[list[list[int]], tuple[str, ...]]:
     return groups, lumped
 
 
+def pair_term(scales: np.ndarray) -> np.ndarray:
+    """``sum_{c<c'} (s_c - 1)(s_c' - 1)`` per row of ``scales`` (shape (n, 6)): zero today and on
+    every single-component axis, ``15 (s - 1)^2`` on the joint axis.
+
+    >>> pair_term(np.array([[0.5] * 6, [0.5, 1, 1, 1, 1, 1]])).tolist()
+    [3.75, 0.0]
+    """
+    x = np.asarray(scales, float) - 1.0
+    return ((x.sum(axis=1)) ** 2 - (x**2).sum(axis=1)) / 2
+
+
 def _design(scales: np.ndarray, groups: list[list[int]], form: str) -> np.ndarray:
     cols = [scales[:, g].mean(axis=1) for g in groups]
     if form == "quadratic":
         cols += [c**2 for c in cols]
+    if form == "interaction":
+        p = pair_term(scales)
+        cols += [p, -p]  # two non-negative columns: a coefficient of either sign
     return np.stack(cols, axis=1)
 
 
-def _solve(x: np.ndarray, y: np.ndarray, sigma: np.ndarray) -> np.ndarray:
-    coef, _ = nnls(x / sigma[:, None], y / sigma)
-    return coef
-
-
-def _loo(x: np.ndarray, y: np.ndarray, sigma: np.ndarray) -> np.ndarray:
-    """Held-out residuals: refit without point i, predict it; the residual is divided by the
-    point's sigma combined with the prediction's (unconstrained) standard error. Points whose
-    removal leaves a column undetermined (a component's only own point) cannot be held out."""
-    n = len(y)
-    z = []
-    for i in range(n):
-        keep = np.arange(n) != i
-        xk = x[keep] / sigma[keep, None]
-        used = np.any(np.abs(x) > 0, axis=0)
-        if np.linalg.matrix_rank(xk[:, used]) < used.sum() or keep.sum() <= used.sum():
+def _pick_form(results: Mapping[str, tuple[np.ndarray, ...]], quality: Mapping[str, FitQuality]) -> str:
+    """Linear unless it misfits (:attr:`FitQuality.misfit`); then the form whose held-out mean
+    square, over the points both it and the linear form could hold out, is lowest, if it is
+    below :data:`RICHER_GAIN` times the linear form's there."""
+    if not quality["linear"].misfit:
+        return "linear"
+    lin = results["linear"][3]
+    best, best_gain = "linear", RICHER_GAIN
+    for form, r in results.items():
+        if form == "linear" or not r[3].size:
             continue
-        coef = _solve(x[keep], y[keep], sigma[keep])
-        cov = np.linalg.pinv(xk[:, used].T @ xk[:, used])
-        var = float(x[i, used] @ cov @ x[i, used])
-        z.append((y[i] - x[i] @ coef) / math.sqrt(sigma[i] ** 2 + var))
-    return np.array(z)
-
-
-def _pick_form(results: Mapping[str, tuple[np.ndarray, ...]]) -> str:
-    """Linear, unless it misses a held-out point by more than :data:`LOO_LIMIT` sigma and the
-    quadratic form predicts the held-out points better."""
-    lin_loo, quad_loo = results["linear"][3], results["quadratic"][3]
-    if lin_loo.size and np.max(np.abs(lin_loo)) > LOO_LIMIT and \
-            quad_loo.size and np.sum(quad_loo**2) < np.sum(lin_loo**2):
-        return "quadratic"
-    return "linear"
+        both = ~np.isnan(lin) & ~np.isnan(r[3])
+        if both.sum() < max(3, 0.5 * np.count_nonzero(~np.isnan(lin))):
+            continue  # too few held-out points to judge it on
+        gain = _mean_square(r[3], both) / max(_mean_square(lin, both), 1e-300)
+        if gain < best_gain:
+            best, best_gain = form, gain
+    return best
 
 
 def _split_columns(coef: np.ndarray, groups: list[list[int]],
@@ -336,26 +339,29 @@ def _split_columns(coef: np.ndarray, groups: list[list[int]],
 
 def _quality(data: ModelData, coef: np.ndarray, res: np.ndarray, loo: np.ndarray) -> FitQuality:
     dof = len(res) - int(np.count_nonzero(coef > 0))
+    held = loo[~np.isnan(loo)] if loo.size else loo
     return FitQuality(
         chi2_per_dof=float(np.sum(res**2) / dof) if dof > 0 else None,
         max_abs_residual=float(np.max(np.abs(res))),
-        loo_max_abs_residual=float(np.max(np.abs(loo))) if loo.size else None,
-        loo_chi2_per_point=float(np.mean(loo**2)) if loo.size else None,
+        loo_max_abs_residual=float(np.max(np.abs(held))) if held.size else None,
+        loo_chi2_per_point=float(np.mean(held**2)) if held.size else None,
         num_points=len(res), worst_point=data.labels[int(np.argmax(np.abs(res)))])
 
 
 def fit_response(data: ModelData, *, form: str | None = None, held_out: bool = True) -> ResponseModel:
-    """Fit the response model; ``form=None`` picks linear unless held-out points call for curvature."""
+    """Fit the response model; ``form=None`` picks linear unless it misfits and a richer form
+    predicts the held-out points better."""
     if form is not None and form not in FORMS:
         raise InputError(f"{form!r} is not a model form", field="form", allowed=", ".join(FORMS))
     groups, lumped = _columns(data.scales)
     y, sig = data.inv_lambda, data.inv_sigma
-    results = {}
+    results, quality = {}, {}
     for f in [form] if form else list(FORMS):
         x = _design(data.scales, groups, f)
         coef = _solve(x, y, sig)
         results[f] = (x, coef, (y - x @ coef) / sig, _loo(x, y, sig) if held_out else np.array([]))
-    chosen = form or _pick_form(results)
+        quality[f] = _quality(data, *results[f][1:])
+    chosen = form or _pick_form(results, quality)
     _, coef, res, loo = results[chosen]
     weights, curvature = _split_columns(coef, groups, chosen)
     # prefactor: weighted least squares, min-norm where under-determined
@@ -368,7 +374,8 @@ def fit_response(data: ModelData, *, form: str | None = None, held_out: bool = T
         ln_a_const=float(acoef[0]),
         sampled_min={c: float(data.scales[:, j].min()) for j, c in enumerate(COMPONENTS)},
         sampled_max={c: float(data.scales[:, j].max()) for j, c in enumerate(COMPONENTS)},
-        unsampled=lumped, quality=_quality(data, coef, res, loo))
+        unsampled=lumped, quality=quality[chosen],
+        interaction=float(coef[-2] - coef[-1]) if chosen == "interaction" else 0.0)
 
 
 def fit_model(report: FitReport, *, form: str | None = None) -> ResponseModel:

@@ -65,13 +65,26 @@ class Uncertainty:
     intervals: dict[str, Interval]
     reachable_fraction: dict[str, float]
     models: tuple[ResponseModel, ...]
+    #: the bootstrap alone, where :attr:`intervals` also holds the model-form part
+    #: (:func:`planner.planning.modelerror.with_model_error`; empty before it runs)
+    sampling_intervals: dict[str, Interval] = dataclasses.field(default_factory=dict)
+    #: the model-form part alone (best +- its half-width)
+    model_intervals: dict[str, Interval] = dataclasses.field(default_factory=dict)
+    #: which part is wider per key: "sampling" or "model"
+    dominant: dict[str, str] = dataclasses.field(default_factory=dict)
+    #: :class:`planner.planning.modelerror.ModelError` behind the model part (None: not added)
+    model_error: Any = None
 
     def to_json(self) -> dict[str, Any]:
-        intervals = {k: v.to_json() for k, v in self.intervals.items()}
-        if "required_lambda" in intervals:  # the JSON word is suppression_factor; the old key stays
-            intervals["required_suppression_factor"] = intervals["required_lambda"]
-        return {"replicas": self.replicas, "confidence": CONFIDENCE, "intervals": intervals,
-                "reachable_fraction": dict(self.reachable_fraction)}
+        def keyed(ivs: Mapping[str, Interval]) -> dict[str, Any]:
+            out = {k: v.to_json() for k, v in ivs.items()}
+            if "required_lambda" in out:  # the JSON word is suppression_factor; the old key stays
+                out["required_suppression_factor"] = out["required_lambda"]
+            return out
+        return {"replicas": self.replicas, "confidence": CONFIDENCE, "intervals": keyed(self.intervals),
+                "sampling_intervals": keyed(self.sampling_intervals), "model_intervals": keyed(self.model_intervals),
+                "dominant": dict(self.dominant), "reachable_fraction": dict(self.reachable_fraction),
+                "model_error": self.model_error.to_json() if self.model_error is not None else None}
 
 
 def replica_models(stats: Sequence[sinter.TaskStats], report: FitReport, model: ResponseModel, *,
@@ -125,7 +138,7 @@ def replica_interval(best: float | None, values: Sequence[float | None]) -> Inte
     return Interval(low=float(min(lo, best)), best=float(best), high=float(max(hi, best)))
 
 
-class _Draws:
+class Draws:
     """The replica values of every quantity (``values[key]``) and how many replicas reached it."""
 
     def __init__(self) -> None:
@@ -138,7 +151,7 @@ class _Draws:
             self.reached[key] += 1
 
 
-def _draw_levers(draws: _Draws, m: ResponseModel, answer: Requirements) -> None:
+def _draw_levers(draws: Draws, m: ResponseModel, answer: Requirements) -> None:
     """Each lever's factor, and the Lambda meaning the same as the best answer's, on replica ``m``."""
     d, eps = answer.distance, answer.eps_target
     for best_answer in (answer.joint, *answer.components):
@@ -160,7 +173,7 @@ def _draw_levers(draws: _Draws, m: ResponseModel, answer: Requirements) -> None:
             draws.add(f"lambda.{lever}", m.suppression(_scaled(lever, 0.0)))
 
 
-def _draw_today(draws: _Draws, m: ResponseModel, answer: Requirements) -> None:
+def _draw_today(draws: Draws, m: ResponseModel, answer: Requirements) -> None:
     d, eps = answer.distance, answer.eps_target
     draws.add("lambda_today", m.suppression(None))
     draws.add("today_eps", m.logical_error_per_cycle(None, d))
@@ -170,7 +183,7 @@ def _draw_today(draws: _Draws, m: ResponseModel, answer: Requirements) -> None:
         draws.add("today_distance", td, counts=True)
 
 
-def _draw_mix(draws: _Draws, m: ResponseModel, answer: Requirements, costs: Mapping[str, float]) -> None:
+def _draw_mix(draws: Draws, m: ResponseModel, answer: Requirements, costs: Mapping[str, float]) -> None:
     mm = cheapest_mix(m, distance=answer.distance, eps_target=answer.eps_target, costs=costs,
                       starts=(answer.mix.scales,), default_starts=False)
     if not mm.reachable:
@@ -184,7 +197,19 @@ def _draw_mix(draws: _Draws, m: ResponseModel, answer: Requirements, costs: Mapp
         draws.add(f"mix.share.{c}", shares.get(c, 0.0))
 
 
-def _best_values(answer: Requirements) -> dict[str, float | None]:
+def draw_answers(models: Sequence[ResponseModel], answer: Requirements, costs: Mapping[str, float]) -> Draws:
+    """Every quantity of ``answer`` re-solved on each of ``models`` (replicas, or the model-form
+    alternatives of :mod:`planner.planning.modelerror`)."""
+    draws = Draws()
+    for m in models:
+        _draw_levers(draws, m, answer)
+        _draw_today(draws, m, answer)
+        if answer.mix.reachable:
+            _draw_mix(draws, m, answer, costs)
+    return draws
+
+
+def best_values(answer: Requirements) -> dict[str, float | None]:
     """The original answer's value of every quantity the replicas draw."""
     mix = answer.mix
     best: dict[str, float | None] = {
@@ -208,14 +233,8 @@ def bootstrap(stats: Sequence[sinter.TaskStats], report: FitReport, model: Respo
     """Intervals on the requirement answers: factors and the Lambda they reach, today's Lambda,
     eps and distance, the required Lambda, and the cheapest mix (re-solved on every replica)."""
     models = replica_models(stats, report, model, replicas=replicas, seed=seed)
-    costs = costs if costs is not None else {}
-    draws = _Draws()
-    for m in models:
-        _draw_levers(draws, m, answer)
-        _draw_today(draws, m, answer)
-        if answer.mix.reachable:
-            _draw_mix(draws, m, answer, costs)
-    best = _best_values(answer)
+    draws = draw_answers(models, answer, costs if costs is not None else {})
+    best = best_values(answer)
     intervals = {}
     for k, b in best.items():
         iv = replica_interval(b, draws.values.get(k, []))

@@ -35,11 +35,40 @@ def lumped_components(answers: Answers) -> tuple[str, ...]:
 # requirements
 
 
+#: the mark on an answer built on a response model that misfits its points
+MISFIT_MARK = "!"
+#: what the mark means (under every table that shows it)
+MISFIT_NOTE = (f"{MISFIT_MARK} the response model misfits its points beyond the limits: the answer is "
+               "unreliable (its interval includes the misfit, scaled by chi2/dof)")
+#: what "marginal" means (under every table that shows it)
+MARGINAL_NOTE = ("marginal: the verdict flips with sampling noise or the model form (reached on 10-90% of "
+                 "the replicas, on some distance-window models only, or the Lambda reached sits within its "
+                 "interval of the one needed): no verdict either way")
+#: what the interval-source column means
+SOURCE_NOTE = ("interval from: the part that dominates the interval, 'sampling' (bootstrap) or 'model' "
+               "(spread between distance windows and the response model's misfit), combined in quadrature")
+
+
+def source_cell(source: str, misfit: bool) -> str:
+    """Which part dominates an answer's interval, with the misfit mark.
+
+    >>> source_cell("model", True), source_cell("", False)
+    ('model !', '—')
+    """
+    return (source or "—") + (f" {MISFIT_MARK}" if misfit else "")
+
+
 def lever_cells(a: FactorAnswer) -> tuple[str, str]:
     """The factor one lever needs alone (marked when extrapolated) and the Lambda it reaches
-    ('max': not reachable alone, with the component perfect; "not sampled": no own sweep axis)."""
+    ('max': not reachable alone, with the component perfect; "not sampled": no own sweep axis;
+    "marginal": the verdict flips with noise or the model form)."""
     if not a.sampled:
         return NOT_SAMPLED, "—"
+    if a.marginal:
+        lam = estimate(a.suppression, a.suppression_interval)
+        if a.reachable and a.factor is not None:
+            return "marginal: " + estimate(a.factor, a.factor_interval), lam
+        return "marginal", ("max " if a.lever != "joint" else "") + lam
     if a.reachable:
         return (estimate(a.factor, a.factor_interval) + (f" {EXTRAPOLATED}" if a.extrapolation else ""),
                 estimate(a.suppression, a.suppression_interval))
@@ -56,6 +85,9 @@ def lever_note(a: FactorAnswer) -> str:
     >>> lever_note(FactorAnswer(lever="idle", reachable=False, factor=None, suppression=1.9, note="not reachable alone: with idle perfect, Lambda = 1.9"))
     'not reachable alone: even with idle perfect, Lambda stays below the Lambda needed'
     """
+    if a.sampled and a.marginal:
+        return (f"marginal: reached on some replicas or distance-window models and not on others"
+                + ("" if a.reachable else f"; with {a.lever} perfect, Lambda is within its interval of the one needed"))
     if a.sampled and not a.reachable and a.lever != "joint":
         return f"not reachable alone: even with {a.lever} perfect, Lambda stays below the Lambda needed"
     return a.note

@@ -17,7 +17,7 @@ from planner.reports.formats import POINT_VALUE, halvings
 from planner.reports.table import INTEGER_COLUMNS, Table
 
 if TYPE_CHECKING:
-    from planner.planning import MixAnswer, Requirements, Roadmap, Sensitivity
+    from planner.planning import FactorAnswer, MixAnswer, Requirements, Roadmap, Sensitivity
     from planner.planning.verify import Verification
 
 REQUIREMENTS_COLUMNS = ("quantity", "lever", "unit", "best", "low", "high", "reachable",
@@ -75,12 +75,19 @@ def _goal_rows(req: Requirements, lambda_today_model: Interval | None) -> list[R
     ]
 
 
+def _flags(a: FactorAnswer) -> tuple[str, ...]:
+    """Marginal verdict, misfit and the dominant interval part, for the note column."""
+    return (*(["marginal: no verdict either way"] if a.marginal else []),
+            *(["model misfit: unreliable"] if a.model_misfit else []),
+            *([f"interval mostly from {a.interval_source}"] if a.interval_source else []))
+
+
 def _lever_rows(req: Requirements) -> list[Row]:
     rows: list[Row] = []
     for a in (req.joint, *req.components):
         rows.append(("factor_needed", a.lever, "x today's error", *ends(a.factor_interval, a.factor),
                      a.reachable, bool(a.extrapolation),
-                     "; ".join(x for x in (lever_note(a), *a.extrapolation) if x)))
+                     "; ".join(x for x in (lever_note(a), *a.extrapolation, *_flags(a)) if x)))
         rows.append(("suppression_factor_reached", a.lever, "ratio", *ends(a.suppression_interval, a.suppression),
                      a.reachable, bool(a.extrapolation),
                      lever_note(a) if not a.sampled

@@ -37,6 +37,30 @@ CAVEATS = (
     "No substitute for the team's own validation.",
 )
 
+
+def answer_caveats(answers: Answers) -> list[str]:
+    """The caveats of these answers: a response model that misfits, marginal verdicts, Lambda
+    drifting with distance, and where the model-form part dominates the intervals."""
+    req, model = answers.requirements, answers.model
+    if req is None or model is None:
+        return []
+    out = []
+    if req.model_misfit:
+        out.append("The response model misfits its points (" + "; ".join(model.quality.misfit_reasons)
+                   + "): every answer built on it is unreliable (marked !); its intervals include the misfit.")
+    marginal = [a.lever for a in (req.joint, *req.components) if a.marginal]
+    if marginal:
+        out.append(f"Marginal, no verdict either way (flips with sampling noise or the model form): {', '.join(marginal)}.")
+    drift = [f"{lf.axis}@{lf.factor:g}" for lf in answers.fits.lambdas if lf.drift is not None and lf.drift.significant]
+    if drift:
+        out.append(f"Lambda drifts with distance at {len(drift)} scale point(s) ({', '.join(drift[:6])}): "
+                   "the spread between distance windows is in every interval; sample larger distances to pin it.")
+    model_led = sorted(k for k, v in (answers.uncertainty.dominant if answers.uncertainty else {}).items() if v == "model")
+    if model_led:
+        out.append(f"The model-form part dominates {len(model_led)} interval(s) (e.g. {', '.join(model_led[:4])}): "
+                   "more samples at the same distances would not shrink them.")
+    return out
+
 PLOT_CAPTIONS = {
     "logical_error_vs_distance": "Logical error per cycle against code distance for each scale point; "
                                  "dashed parts of the fitted lines are extrapolated towards the goal.",
@@ -223,7 +247,7 @@ def report_html(answers: Answers, *, target: Target, pngs: Mapping[str, bytes],
             f"<p>Target <code>{esc(target.name)}</code>, sha256 <code>{esc(target.sha256[:16])}</code>. "
             f"{esc(INTERVAL_NOTE)}</p>",
             '<div class="caveats"><strong>Caveats</strong><ul>'
-            + "".join(f"<li>{esc(c)}</li>" for c in CAVEATS) + "</ul></div>",
+            + "".join(f"<li>{esc(c)}</li>" for c in (*CAVEATS, *answer_caveats(answers))) + "</ul></div>",
             "<h2>Device and goal</h2>", _pairs(device_rows(target)),
             _pairs([("goal: logical error per cycle", num(goal.logical_error_per_cycle)),
                     ("goal: largest code (physical qubits)", goal.max_qubits)]),

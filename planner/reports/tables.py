@@ -17,8 +17,11 @@ from planner.reports.cells import (
     event_rows,
     goal_distance,
     group_row,
+    MARGINAL_NOTE,
+    MISFIT_NOTE,
     lever_cells,
     mix_cells,
+    source_cell,
     sensitivity_cells,
     step_cells,
 )
@@ -103,15 +106,26 @@ def _extra_notes(label: str, notes: tuple[str, ...]) -> list[str]:
 
 def _lever_table(r: Requirements) -> tuple[Table, list[str]]:
     rows, notes = [], []
-    for a in (r.joint, *r.components):
-        rows.append([a.lever, *lever_cells(a)])
+    levers = (r.joint, *r.components)
+    sources = any(a.interval_source or a.model_misfit for a in levers)
+    for a in levers:
+        rows.append([a.lever, *lever_cells(a), *([source_cell(a.interval_source, a.model_misfit)] if sources else [])])
         if a.reachable and a.note:
             notes.append(f"{a.lever}: {a.note}")
         notes += _extra_notes(a.lever, a.extrapolation)
-    table = Table(title=f"What each lever needs alone ({CL}, bootstrap)", headers=("lever", "factor", "Lambda reached"),
-                  rows=rows, notes=("factor: scale on today's error (1 = today, 0.5 = half) meeting the goal with the "
-                                    "other components as today; Lambda reached at that factor ('max': with the "
-                                    "component perfect, the most it gives alone)",))
+    caption = ["factor: scale on today's error (1 = today, 0.5 = half) meeting the goal with the other components "
+               "as today; Lambda reached at that factor ('max': with the component perfect, the most it gives "
+               "alone)"]
+    if sources:
+        caption.append("from: the part dominating the interval, sampling (bootstrap) or model (distance windows, "
+                       "misfit), combined in quadrature")
+    if any(a.marginal for a in levers):
+        caption.append(MARGINAL_NOTE)
+    if any(a.model_misfit for a in levers):
+        caption.append(MISFIT_NOTE)
+    table = Table(title=f"What each lever needs alone ({CL}, sampling + model)",
+                  headers=("lever", "factor", "Lambda reached", *(["from"] if sources else [])),
+                  rows=rows, notes=tuple(caption))
     return table, notes
 
 
@@ -152,6 +166,9 @@ def render_requirements(answer: Requirements, console: Console) -> None:
     say(console, "eps per cycle today at", f"d = {r.distance}:",
         rate(td.logical_error_per_cycle, td.logical_error_per_cycle_interval) + ".")
     say(console, "Model:", f"{r.model_form} form;", "fit quality:", *words(r.model_quality))
+    if r.model_misfit:
+        say(console, "WARNING:", *words("the response model misfits its points: every answer above is unreliable "
+                                        "(marked !); intervals include the misfit"))
     for n in r.notes:
         say(console, "note:", *words(n))
 
@@ -164,11 +181,14 @@ def _render_mix(r: Requirements, console: Console) -> None:
                                                          else "nothing needs to change")))
         return
     rows = [[c, *mix_cells(m, c)] for c in changed]
+    flags = [*(["marginal: reached on only part of the replicas"] if m.marginal else []),
+             *([MISFIT_NOTE] if m.model_misfit else [])]
     print_table(console, Table(
-        title=f"Cheapest mix: the components it changes ({CL})", rows=rows,
+        title=f"Cheapest mix: the components it changes ({CL}{', ' + m.interval_source + ' dominates' if m.interval_source else ''})"
+              + (" !" if m.model_misfit else ""), rows=rows,
         headers=("component", "factor", "halvings", "cost share %"),
         notes=("minimises the sum over components of cost x halvings (log2 of 1/factor) while meeting the "
-               "goal; the others stay as today",)))
+               "goal; the others stay as today", *flags)))
     say(console, "Mix total:", estimate(m.cost, m.cost_interval), "cost-weighted halvings;", "reaches",
         "Lambda", estimate(m.suppression, m.suppression_interval), "(eps per cycle", rate(m.logical_error_per_cycle),
         "at", f"d = {r.distance}).")

@@ -15,8 +15,11 @@ from __future__ import annotations
 from collections.abc import Sequence
 from typing import TYPE_CHECKING
 
-from planner.fits import CONFIDENCE, FitReport, Interval
+from planner.fits import CONFIDENCE, FitReport, Interval, LambdaFit
 from planner.reports.cells import (
+    MARGINAL_NOTE,
+    MISFIT_NOTE,
+    SOURCE_NOTE,
     event_rows,
     goal_distance,
     group_row,
@@ -24,6 +27,7 @@ from planner.reports.cells import (
     lever_cells,
     lever_note,
     lumped_components,
+    source_cell,
     mix_cells,
     moving_components,
     sensitivity_cells,
@@ -109,7 +113,9 @@ def _replica_note(uncertainty: Uncertainty | None) -> str:
         return ""
     partial = [f"{_ANSWER_NAMES.get(k, k.removeprefix('factor.') + ' alone')} {v:.0%}"
                for k, v in uncertainty.reachable_fraction.items() if 0 < v < 1]
-    return (f"Bootstrap intervals over {uncertainty.replicas} replica models of the fit."
+    return (f"Bootstrap intervals over {uncertainty.replicas} replica models of the fit"
+            + (", combined with the model-form part (distance windows, misfit)" if uncertainty.model_error else "")
+            + "."
             + (" Replicas on which an answer exists, where not all (its interval is over those): "
                + ", ".join(partial) + "." if partial else ""))
 
@@ -140,8 +146,10 @@ def requirements_tables(req: Requirements, *, lambda_today_model: Interval | Non
     )
     mix = req.mix
     rows = []
-    for a in (req.joint, *req.components):
-        rows.append((a.lever, *lever_cells(a), *mix_cells(mix, a.lever), join_notes(lever_note(a), *a.extrapolation)))
+    levers = (req.joint, *req.components)
+    for a in levers:
+        rows.append((a.lever, *lever_cells(a), *mix_cells(mix, a.lever),
+                     source_cell(a.interval_source, a.model_misfit), join_notes(lever_note(a), *a.extrapolation)))
     total = estimate(mix.cost, mix.cost_interval)
     mix_lam = estimate(mix.suppression, mix.suppression_interval)
     notes = [f"Cheapest mix ({'reachable' if mix.reachable else 'not reachable'}): cost {total} "
@@ -151,12 +159,17 @@ def requirements_tables(req: Requirements, *, lambda_today_model: Interval | Non
              "Lambda reached: at the factor needed; 'max': with the component perfect, the most it "
              "gives alone. Cost share: the component's part of the mix's cost.",
              f"Model: {req.model_form} form; fit quality: {req.model_quality}.",
-             _replica_note(uncertainty), EXTRAPOLATED_NOTE, *req.notes]
+             _replica_note(uncertainty), SOURCE_NOTE,
+             *([MARGINAL_NOTE] if any(a.marginal for a in levers) else []),
+             *([MISFIT_NOTE] if req.model_misfit else []),
+             *([f"Cheapest mix: {'marginal (reached on only part of the replicas); ' if mix.marginal else ''}"
+                f"its intervals are mostly from {mix.interval_source}."] if mix.interval_source else []),
+             EXTRAPOLATED_NOTE, *req.notes]
     return [Table(
         key="requirements", title="What each lever needs to reach the goal",
         headers=("lever", "scale factor needed, alone (x today's error)", "Lambda reached (ratio)",
                  "cheapest mix factor (x today's error)", "cheapest mix halvings (log2 of 1/factor)",
-                 "cheapest mix cost share (%)", "note"),
+                 "cheapest mix cost share (%)", "interval from (dominant part)", "note"),
         rows=tuple(rows), lead=lead, notes=tuple(n for n in notes if n))]
 
 
@@ -246,17 +259,35 @@ def sensitivity_tables(sens: Sensitivity, *, lumped: Sequence[str] = ()) -> list
 # fits
 
 
+def _windows_cell(lf: LambdaFit) -> str:
+    """Lambda over each run of consecutive distances, e.g. ``3-5: 1.92; 5-7: 1.70``."""
+    return "; ".join(f"{w.distances[0]}-{w.distances[-1]}: {num(w.suppression.best)}" for w in lf.windows) or "—"
+
+
+def _drift_cell(lf: LambdaFit) -> str:
+    """Lambda's factor per step d -> d+2 with its interval, marked when the interval excludes 1."""
+    if lf.drift is None:
+        return "—"
+    return interval(lf.drift.ratio_per_step) + (" drifts" if lf.drift.significant else "")
+
+
 def fits_tables(report: FitReport) -> list[Table]:
-    """Lambda per scale point and the threshold estimate."""
+    """Lambda per scale point (over the distances used for projection), its windows and drift
+    with distance, and the threshold estimate."""
     rows = tuple((lf.axis, num(lf.factor), ",".join(map(str, lf.distances)), interval(lf.suppression),
-                  interval(lf.ln_prefactor), num(lf.chi2_per_dof), lf.note) for lf in report.lambdas)
+                  interval(lf.ln_prefactor), num(lf.chi2_per_dof), _windows_cell(lf), _drift_cell(lf), lf.note)
+                 for lf in report.lambdas)
     th = report.threshold
     lead = (f"Threshold (joint factor where Lambda = 1): {interval(th.factor)}; {th.note}.",)
+    notes = ("distances: those the projection Lambda is fitted over (the three largest when more are sampled).",
+             "windows: Lambda over each run of two and three consecutive sampled distances (best values).",
+             "Lambda per d+2: how Lambda changes from d to d+2 (weighted quadratic of ln eps in (d+1)/2, "
+             "1 = no drift); 'drifts': the interval excludes 1.", *report.notes)
     return [Table(
         key="fits", title="Suppression factor Lambda per scale point",
         headers=("axis", "factor (x today's error)", "distances", "Lambda (eps_d / eps_d+2)",
-                 "ln A (ln per cycle)", "chi2/dof", "note"),
-        rows=rows, lead=lead, notes=tuple(report.notes))]
+                 "ln A (ln per cycle)", "chi2/dof", "windows (Lambda)", "Lambda per d+2 (ratio)", "note"),
+        rows=rows, lead=lead, notes=notes)]
 
 
 # ---------------------------------------------------------------------------------------------
