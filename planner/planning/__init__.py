@@ -34,6 +34,7 @@ from planner.planning.model import (
     largest_distance_within,
     physical_qubits,
 )
+from planner.planning.physical import physical_answers
 from planner.planning.roadmap import Roadmap, build_roadmap
 from planner.planning.sensitivity import Sensitivity, sensitivity
 from planner.planning.modelerror import ModelError, flag_answers, model_error, with_model_error
@@ -98,6 +99,7 @@ def answer_all(target: Target, stats: Sequence[sinter.TaskStats], *, seed: int =
     rm = build_roadmap(target, model, seed=seed, models=models, eps_target=eps_target)
     if rm is not None and (far := distance_extrapolation_note(rm.goal_distance, report.sampled_distances)):
         rm = dataclasses.replace(rm, note="; ".join(n for n in (rm.note, far) if n))
+    req = dataclasses.replace(req, physical=physical_answers(target, req, rm))
     sens = sensitivity(model, target, models=models)
     if unc is not None and "lambda_today" in unc.intervals:  # the same Lambda today as the requirements
         sens = dataclasses.replace(sens, suppression_today_interval=unc.intervals["lambda_today"])

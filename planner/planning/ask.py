@@ -142,6 +142,8 @@ class Requirements:
     model_misfit: bool = False
     #: per interval key: combined best/low/high, ``sampling_interval``, ``model_interval``, ``dominant``
     interval_parts: dict[str, dict[str, Any]] = dataclasses.field(default_factory=dict)
+    #: the answers in physical units and in time (:class:`planner.planning.physical.PhysicalAnswers`)
+    physical: Any = None
 
     @property
     def qubit_rule(self) -> str:
@@ -158,6 +160,7 @@ class Requirements:
                 "cheapest_mix": self.mix.to_json(), "today": self.today.to_json(),
                 "model": {"form": self.model_form, "quality": self.model_quality, "misfit": self.model_misfit},
                 "model_misfit": self.model_misfit, "intervals": dict(self.interval_parts),
+                "physical": self.physical.to_json() if self.physical is not None else None,
                 "notes": list(self.notes)}
 
 

@@ -44,7 +44,8 @@ from scipy.optimize import brentq
 
 from planner.noise import NoiseModel, twirl_idle
 
-__all__ = ["LogicalPace", "PhysicalValue", "logical_pace", "physical_value", "physical_values"]
+__all__ = ["LogicalPace", "PhysicalAnswers", "PhysicalValue", "logical_pace", "physical_answers", "physical_value",
+           "physical_values"]
 
 _GATE_QUBITS = {"gate_1q": 1, "gate_2q": 2}
 
@@ -92,7 +93,7 @@ def _layer(model: NoiseModel, component: str) -> tuple[float, float]:
 def _gate_value(model: NoiseModel, component: str, f: float) -> PhysicalValue:
     p = model.probability(component) * f
     n = _GATE_QUBITS[component]
-    name = "single-qubit gate" if n == 1 else model.native_2q.upper()
+    name = "1q gate" if n == 1 else model.native_2q.upper()
     r = _rb_infidelity(p, n)
     return PhysicalValue(component=component, factor=f, values={"pauli_error": p, "rb_infidelity": r},
                          text=f"{name} Pauli error <= {p:.3g} (RB infidelity <= {r:.3g})")
@@ -103,13 +104,14 @@ def _idle_value(model: NoiseModel, component: str, f: float) -> PhysicalValue:
     today = twirl_idle(duration_ns=t, t1_us=model.t1_us, t2_us=model.t2_us)
     t1, t2 = _scaled_time(t, model.t1_us, f), _scaled_time(t, model.t2_us, f)
     values: dict[str, float] = {"twirled_error": today.total * f, "excess": excess * f}
-    where = "a two-qubit-gate layer" if component == "idle" else "the measure+reset layer"
+    where = "2q layer" if component == "idle" else "measure+reset"
     if t1 is None or t2 is None or today.total <= 0:
-        text = f"no T1/T2 gives it at today's {t:g} ns ({where})"
+        text = f"no T1/T2 gives it over today's {t:g} ns {where}"
     else:
         values.update(t1_us=t1, t2_us=t2)
-        text = (f"T1 >= {_us(t1)}, T2 >= {_us(t2)} at today's {t:g} ns ({where}), "
-                f"excess <= {excess * f:.3g}")
+        text = f"T1 >= {_us(t1)}, T2 >= {_us(t2)} over today's {t:g} ns {where}"
+    if excess > 0:
+        text += f", excess <= {excess * f:.3g}"
     if component == "idle_measure" and today.total > 0 and 0 < f < 1:
         target = today.total * f
 
@@ -118,7 +120,7 @@ def _idle_value(model: NoiseModel, component: str, f: float) -> PhysicalValue:
 
         shorter = brentq(gap, 0.0, t, xtol=1e-9)
         values["layer_ns"] = shorter
-        text += f"; or measure+reset <= {shorter:.4g} ns at today's T1/T2"
+        text += f"; or measure+reset <= {shorter:.4g} ns"
     return PhysicalValue(component=component, factor=f, values=values, text=text)
 
 
@@ -177,3 +179,85 @@ def logical_pace(eps: float, cycle_ns: float) -> LogicalPace:
     rate = -math.log1p(-2 * min(eps, 0.5 - 1e-300)) / 2 / (cycle_ns * 1e-9)
     return LogicalPace(cycle_ns=cycle_ns, per_cycle=eps, per_second=rate,
                        mean_seconds_between=1 / rate if rate > 0 else math.inf)
+
+
+# ---------------------------------------------------------------------------------------------
+# the answers in physical units and in time
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class PhysicalAnswers:
+    """The requirement answers for a device in physical units and in time.
+
+    ``rows``: (lever, component, factor, value): the joint factor applied to every component,
+    each component alone, the cheapest mix. ``cycle_ns``: one cycle's duration (None when the
+    target gives no durations, e.g. a preset). ``today``/``goal``: the logical error rate in time
+    at the answer's distance today and at the goal; ``today_seconds_interval``: the mean time
+    between logical errors today, from the eps interval; ``roadmap``: (date, eps at the goal
+    distance, mean seconds between logical errors) per roadmap step.
+    """
+
+    rows: tuple[tuple[str, str, float | None, PhysicalValue], ...]
+    cycle_ns: float | None
+    distance: int
+    today: LogicalPace | None = None
+    today_seconds_interval: tuple[float, float] | None = None
+    goal: LogicalPace | None = None
+    roadmap: tuple[tuple[str, float, float], ...] = ()
+
+    def to_json(self) -> dict[str, Any]:
+        fin = lambda x: x if x is not None and math.isfinite(x) else None  # noqa: E731
+        return {"values": [{"lever": lv, **v.to_json()} for lv, _, _, v in self.rows],
+                "cycle_ns": self.cycle_ns, "distance": self.distance,
+                "today": self.today.to_json() if self.today else None,
+                "today_mean_seconds_between_interval": None if self.today_seconds_interval is None else
+                {"low": fin(self.today_seconds_interval[0]), "high": fin(self.today_seconds_interval[1])},
+                "goal": self.goal.to_json() if self.goal else None,
+                "roadmap": [{"date": d, "logical_error_per_cycle": e, "mean_seconds_between_logical_errors": fin(s)}
+                            for d, e, s in self.roadmap]}
+
+
+def _lever_rows(model: NoiseModel, req: Any) -> list[tuple[str, str, float | None, PhysicalValue]]:
+    from planner.config import COMPONENTS
+
+    present = [c for c in COMPONENTS if c in model.summary()]
+    rows = []
+    if req.joint.reachable and req.joint.factor is not None:
+        rows += [("joint", c, req.joint.factor, physical_value(model, c, req.joint.factor)) for c in present]
+    for a in req.components:
+        if a.lever in present and a.sampled and a.reachable and a.factor is not None:
+            rows.append((f"{a.lever} alone", a.lever, a.factor, physical_value(model, a.lever, a.factor)))
+    return rows + _mix_rows(model, req.mix, present)
+
+
+def _mix_rows(model: NoiseModel, mix: Any, present: list[str]) -> list[tuple[str, str, float | None, PhysicalValue]]:
+    """The components the cheapest mix changes, in physical units."""
+    if not mix.reachable:
+        return []
+    changed = [c for c in present if c in mix.scales and c not in mix.not_sampled and mix.scales[c] < 1]
+    return [("cheapest mix", c, mix.scales[c], physical_value(model, c, mix.scales[c])) for c in changed]
+
+
+def physical_answers(target: Any, req: Any, roadmap: Any = None) -> PhysicalAnswers | None:
+    """The answers ``req`` (and the ``roadmap``) for ``target`` in physical units and in time;
+    None for a target planner cannot build a noise model of."""
+    from planner.circuits.timing import cycle_duration_ns
+
+    model = NoiseModel.from_target(target)
+    rows = tuple(_lever_rows(model, req))
+    cycle = cycle_duration_ns(model, code=target.sweep.code) if model.measure_ns + model.gate_2q_ns > 0 else 0.0
+    if cycle <= 0:
+        return PhysicalAnswers(rows=rows, cycle_ns=None, distance=req.distance)
+    eps = req.today.logical_error_per_cycle
+    iv = req.today.logical_error_per_cycle_interval
+    today = logical_pace(eps, cycle) if eps else None
+    span = None
+    if today is not None and iv is not None and iv.low > 0:
+        span = (logical_pace(iv.high, cycle).mean_seconds_between, logical_pace(iv.low, cycle).mean_seconds_between)
+    steps: list[tuple[str, float, float]] = []
+    if roadmap is not None:
+        d = roadmap.goal_distance
+        steps = [(str(s.date), s.eps[d], logical_pace(s.eps[d], cycle).mean_seconds_between)
+                 for s in roadmap.steps if d in s.eps and s.eps[d] > 0]
+    return PhysicalAnswers(rows=rows, cycle_ns=cycle, distance=req.distance, today=today, today_seconds_interval=span,
+                           goal=logical_pace(req.eps_target, cycle), roadmap=tuple(steps))

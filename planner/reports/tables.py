@@ -27,6 +27,7 @@ from planner.reports.cells import (
 )
 from planner.reports.formats import CL, EXTRAPOLATED, ZERO_ERRORS, estimate, interval, num, rate
 from planner.reports.jsondoc import json_text
+from planner.reports.physical import render_physical
 from planner.reports.table import Table
 from planner.reports.terminal import footnotes, print_table, say, words
 from planner.reports.text import verify_tables
@@ -165,6 +166,7 @@ def render_requirements(answer: Requirements, console: Console) -> None:
     td = r.today
     say(console, "eps per cycle today at", f"d = {r.distance}:",
         rate(td.logical_error_per_cycle, td.logical_error_per_cycle_interval) + ".")
+    render_physical(r.physical, console)
     say(console, "Model:", f"{r.model_form} form;", "fit quality:", *words(r.model_quality))
     if r.model_misfit:
         say(console, "WARNING:", *words("the response model misfits its points: every answer above is unreliable "

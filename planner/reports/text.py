@@ -54,6 +54,7 @@ from planner.reports.formats import (
     span,
 )
 from planner.reports.jsondoc import json_safe
+from planner.reports.physical import physical_tables
 from planner.reports.table import Table, TextTable, to_markdown
 
 if TYPE_CHECKING:
@@ -170,7 +171,7 @@ def requirements_tables(req: Requirements, *, lambda_today_model: Interval | Non
         headers=("lever", "scale factor needed, alone (x today's error)", "Lambda reached (ratio)",
                  "cheapest mix factor (x today's error)", "cheapest mix halvings (log2 of 1/factor)",
                  "cheapest mix cost share (%)", "interval from (dominant part)", "note"),
-        rows=tuple(rows), lead=lead, notes=tuple(n for n in notes if n))]
+        rows=tuple(rows), lead=lead, notes=tuple(n for n in notes if n)), *physical_tables(req.physical)]
 
 
 # ---------------------------------------------------------------------------------------------
