@@ -23,7 +23,9 @@ except ImportError:  # pragma: no cover - older typer on top of click
 from planner.cli._common import printable
 from planner.cli import (
     ask,
+    calibrate,
     circuit,
+    events,
     fit,
     merge,
     roadmap,
@@ -101,6 +103,8 @@ def _root() -> None:
 
 for _module in (run, sweep, fit, ask, roadmap, sensitivity, verify, circuit, merge, status):
     _module.register(app)
+events.register(app)
+calibrate.register(app)
 
 
 def main() -> None:
