@@ -154,9 +154,16 @@ def _check_size(path: Path, *, fmt: str, width: int, size: int, what: str) -> No
                          allowed=f"b8 records of {width} bits", source=str(path))
     if fmt in ("01", "dets"):
         with path.open("rb") as f:
+            head = f.read(65536)
             f.seek(size - 1)
-            if f.read(1) != b"\n":
-                raise InputError("truncated: the last line does not end", source=str(path))
+            last = f.read(1)
+        text = head.translate(None, b"01\n\r") == b"" if fmt == "01" else head.startswith(b"shot")
+        if not text:
+            raise InputError(f"not {fmt} data: {'only 0, 1 and newlines' if fmt == '01' else 'lines'} "
+                             f"{'are' if fmt == '01' else 'starting with shot are'} expected (another format?)",
+                             allowed="--format 01, b8, r8, ptb64 or dets as written", source=str(path))
+        if last != b"\n":
+            raise InputError("truncated: the last line does not end", source=str(path))
 
 
 def _check_r8_length(data: np.ndarray, *, width: int, size: int, src: str, what: str) -> None:

@@ -15,7 +15,8 @@ Bad qubits: each qubit's column is the pattern of a depolarizing error on that q
 every layer; the residual (data minus fitted model) is matched against every column, the qubit
 whose excess stands out most in sigma (bootstrap) is taken, its pattern removed, and so on
 while one stands out beyond ``threshold`` sigma; the components are then fitted again together
-with the qubits found, so a bad qubit does not inflate a component's excess.
+with the qubits found (each with three columns: depolarizing in every layer, readout flip,
+single-qubit gate error), so a bad qubit does not inflate a component's excess.
 """
 
 from __future__ import annotations
@@ -107,6 +108,9 @@ class QubitOutlier:
     low: float
     high: float
     sigma: float
+    #: the extra readout flip and the extra single-qubit gate error fitted beside it (best, low, high)
+    readout: tuple[float, float, float] = (0.0, 0.0, 0.0)
+    gate_1q: tuple[float, float, float] = (0.0, 0.0, 0.0)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -155,7 +159,12 @@ def fit_excess(measured: Measured, base: NoiseModel, build: Callable[[NoiseModel
     qcols = np.zeros((len(y_cal), 0))
     if find_qubits:
         found, qcols = _find_qubits(measured, noisy, y_cal, layout, threshold=threshold)
-    design = np.hstack([cols, qcols])
+    # a bad qubit gets a readout column beside its depolarizing one: a qubit whose readout is bad
+    # (not its gates) leaves another pattern, which the components must not absorb
+    picked = [q for q, _ in found]
+    rcols = qubit_columns(measured, noisy, picked, kind="readout")
+    gcols = qubit_columns(measured, noisy, picked, kind="gate_1q")
+    design = np.hstack([cols, qcols, rcols, gcols])
     offset = y0 - cols @ x_lin
     best = _solve(design, measured.value - offset, measured.sigma)
     boots = np.array([_solve(design, d - offset, measured.sigma) for d in measured.draws])
@@ -166,8 +175,14 @@ def fit_excess(measured: Measured, base: NoiseModel, build: Callable[[NoiseModel
     k = len(comps)
     fits = tuple(ComponentFit(name=c, best=float(best[n]), low=float(low[n]), high=float(high[n]))
                  for n, c in enumerate(comps))
+    nq = len(found)
+
+    def triple(at: int) -> tuple[float, float, float]:
+        return float(best[at]), float(low[at]), float(high[at])
+
     qubits = tuple(QubitOutlier(qubit=layout.qubits[q], role=_role(layout, q), best=float(best[k + n]),
-                                low=float(low[k + n]), high=float(high[k + n]), sigma=float(z))
+                                low=float(low[k + n]), high=float(high[k + n]), sigma=float(z),
+                                readout=triple(k + nq + n), gate_1q=triple(k + 2 * nq + n))
                    for n, (q, z) in enumerate(found))
     final = with_excess(base, {c.name: c.best for c in fits})
     return ExcessFit(components=fits, qubits=qubits, reduced_chi2=float(resid @ resid / dof),
@@ -179,11 +194,16 @@ def _role(layout: DetectorLayout, q: int) -> str:
     return "measure" if layout.qubits[q] in layout.measure else "data"
 
 
-def qubit_columns(measured: Measured, circuit: stim.Circuit, qubits: Sequence[int]) -> np.ndarray:
-    """[M, Q]: the change of every measured quantity per unit of depolarizing on each qubit."""
+def qubit_columns(measured: Measured, circuit: stim.Circuit, qubits: Sequence[int], *,
+                  kind: str = "depolarize") -> np.ndarray:
+    """[M, Q]: the change of every measured quantity per unit of extra noise (``kind``, see
+    :func:`~planner.devicedata.model.with_qubit_noise`) on each qubit."""
+    if not qubits:
+        return np.zeros((len(measured.value), 0))
     return np.column_stack([
-        measured.model_vector(expectation(dem_of(with_qubit_noise(circuit, qubit=q, p=QUBIT_STEP, only=True))))
-        / QUBIT_STEP for q in qubits])
+        measured.model_vector(expectation(dem_of(with_qubit_noise(circuit, qubit=q, p=QUBIT_STEP, only=True,
+                                                                  kind=kind)))) / QUBIT_STEP
+        for q in qubits])
 
 
 def _find_qubits(measured: Measured, circuit: stim.Circuit, y_cal: np.ndarray, layout: DetectorLayout, *,

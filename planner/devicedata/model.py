@@ -127,9 +127,18 @@ def classify_pairs(layout: DetectorLayout, connected: np.ndarray) -> np.ndarray:
     return out
 
 
-def with_qubit_noise(circuit: stim.Circuit, *, qubit: int, p: float, only: bool = False) -> stim.Circuit:
-    """``circuit`` with DEPOLARIZE1(p) on ``qubit`` after every TICK and before every
-    measurement of it (a bad qubit); ``only``: drop the circuit's own noise first.
+_GATES_1Q = frozenset({"H", "S", "S_DAG", "SQRT_X", "SQRT_X_DAG", "SQRT_Y", "SQRT_Y_DAG", "X", "Y", "Z",
+                       "C_XYZ", "C_ZYX", "H_XY", "H_YZ"})
+_MEASURES = {"M": "X_ERROR", "MR": "X_ERROR", "MX": "Z_ERROR", "MRX": "Z_ERROR", "MY": "X_ERROR",
+             "MRY": "X_ERROR"}
+
+
+def with_qubit_noise(circuit: stim.Circuit, *, qubit: int, p: float, only: bool = False,
+                     kind: str = "depolarize") -> stim.Circuit:
+    """``circuit`` with extra noise on one ``qubit`` (a bad qubit); ``only``: drop the circuit's
+    own noise first. ``kind`` "depolarize": DEPOLARIZE1(p) after every TICK and before every
+    measurement of it; "readout": a flip of probability p before every measurement of it;
+    "gate_1q": DEPOLARIZE1(p) after every single-qubit gate on it.
 
     >>> c = with_qubit_noise(stim.Circuit("R 0\\nTICK\\nM 0"), qubit=0, p=0.01)
     >>> print(c)
@@ -137,16 +146,25 @@ def with_qubit_noise(circuit: stim.Circuit, *, qubit: int, p: float, only: bool 
     TICK
     DEPOLARIZE1(0.01) 0 0
     M 0
+    >>> print(with_qubit_noise(stim.Circuit("R 0\\nTICK\\nM 0"), qubit=0, p=0.01, kind="readout"))
+    R 0
+    TICK
+    X_ERROR(0.01) 0
+    M 0
     """
+    if kind not in ("depolarize", "readout", "gate_1q"):
+        raise ValueError(f"unknown kind {kind!r}")
     out = stim.Circuit()
     for inst in circuit.flattened():
         if only and isinstance(inst, stim.CircuitInstruction) and _is_noise(inst):
             continue
-        if inst.name in ("M", "MR", "MX", "MRX", "MY", "MRY") and any(
-                t.value == qubit for t in inst.targets_copy()):
-            out.append("DEPOLARIZE1", [qubit], p)
+        if inst.name in _MEASURES and any(t.value == qubit for t in inst.targets_copy()):
+            if kind != "gate_1q":
+                out.append("DEPOLARIZE1" if kind == "depolarize" else _MEASURES[inst.name], [qubit], p)
         out.append(inst)
-        if inst.name == "TICK":
+        if inst.name == "TICK" and kind == "depolarize":
+            out.append("DEPOLARIZE1", [qubit], p)
+        elif kind == "gate_1q" and inst.name in _GATES_1Q and any(t.value == qubit for t in inst.targets_copy()):
             out.append("DEPOLARIZE1", [qubit], p)
     return out
 

@@ -169,7 +169,9 @@ class Calibration:
         """Qubits (from the per-qubit fit) and stabilizers (detection rate) beyond the threshold."""
         out: list[dict[str, Any]] = [
             {"qubit": list(q.qubit), "kind": "qubit", "role": q.role, "sigma": q.sigma,
-             "excess_depolarizing_per_layer": {"best": q.best, "low": q.low, "high": q.high}}
+             "excess_depolarizing_per_layer": {"best": q.best, "low": q.low, "high": q.high},
+             "excess_readout": dict(zip(("best", "low", "high"), q.readout)),
+             "excess_gate_1q": dict(zip(("best", "low", "high"), q.gate_1q))}
             for q in self.fit.qubits]
         for s in sorted(self.stabilizers, key=lambda s: -abs(s.sigma)):
             if abs(s.sigma) >= self.threshold:
@@ -257,6 +259,9 @@ def _with_qubits(circuit: stim.Circuit, fit: ExcessFit, layout: DetectorLayout) 
     index = {xy: q for q, xy in layout.qubits.items()}
     for q in fit.qubits:
         circuit = with_qubit_noise(circuit, qubit=index[q.qubit], p=q.best)
+        for kind, value in (("readout", q.readout[0]), ("gate_1q", q.gate_1q[0])):
+            if value > 0:
+                circuit = with_qubit_noise(circuit, qubit=index[q.qubit], p=value, kind=kind)
     return circuit
 
 

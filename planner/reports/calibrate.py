@@ -61,7 +61,9 @@ def outlier_table(cal: Calibration) -> Table:
 def _detail(o: dict) -> str:
     if o["kind"] == "qubit":
         e = o["excess_depolarizing_per_layer"]
-        return f"extra depolarizing per layer {span(e['best'], e['low'], e['high'])}"
+        r, g = o["excess_readout"], o["excess_gate_1q"]
+        return (f"extra depolarizing per layer {span(e['best'], e['low'], e['high'])}, readout "
+                f"{span(r['best'], r['low'], r['high'])}, gate_1q {span(g['best'], g['low'], g['high'])}")
     if o["kind"] == "stabilizer":
         return f"{o['type']} stabilizer: detection {num(o['detection_data'])} vs model {num(o['detection_model'])}"
     return f"logical error per cycle {span(**o['measured'])} vs model"
