@@ -158,15 +158,24 @@ def with_qubit_noise(circuit: stim.Circuit, *, qubit: int, p: float, only: bool 
     for inst in circuit.flattened():
         if only and isinstance(inst, stim.CircuitInstruction) and _is_noise(inst):
             continue
-        if inst.name in _MEASURES and any(t.value == qubit for t in inst.targets_copy()):
-            if kind != "gate_1q":
-                out.append("DEPOLARIZE1" if kind == "depolarize" else _MEASURES[inst.name], [qubit], p)
+        on_qubit = inst.name != "TICK" and any(t.value == qubit for t in inst.targets_copy())
+        before, after = _extra(inst.name, kind=kind, on_qubit=on_qubit)
+        if before:
+            out.append(before, [qubit], p)
         out.append(inst)
-        if inst.name == "TICK" and kind == "depolarize":
-            out.append("DEPOLARIZE1", [qubit], p)
-        elif kind == "gate_1q" and inst.name in _GATES_1Q and any(t.value == qubit for t in inst.targets_copy()):
-            out.append("DEPOLARIZE1", [qubit], p)
+        if after:
+            out.append(after, [qubit], p)
     return out
+
+
+def _extra(name: str, *, kind: str, on_qubit: bool) -> tuple[str | None, str | None]:
+    """(channel before, channel after) an instruction for :func:`with_qubit_noise`."""
+    if kind == "depolarize":
+        return ("DEPOLARIZE1" if on_qubit and name in _MEASURES else None,
+                "DEPOLARIZE1" if name == "TICK" else None)
+    if kind == "readout":
+        return (_MEASURES[name] if on_qubit and name in _MEASURES else None), None
+    return None, ("DEPOLARIZE1" if on_qubit and name in _GATES_1Q else None)
 
 
 def _is_noise(inst: stim.CircuitInstruction) -> bool:
