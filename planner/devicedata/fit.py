@@ -34,7 +34,7 @@ from planner.errors import InputError
 from planner.noise import NoiseModel
 
 __all__ = ["DEFAULT_COMPONENTS", "EXCESS_FIELD", "ComponentFit", "ExcessFit", "Measured", "QubitOutlier",
-           "dem_of", "fit_excess", "measure", "with_excess"]
+           "check_components", "dem_of", "fit_excess", "measure", "with_excess"]
 
 #: component -> the NoiseModel field (and target key under [device.errors]) its excess adds to
 EXCESS_FIELD: dict[str, str] = {"gate_1q": "gate_1q", "gate_2q": "gate_2q", "readout": "readout",
@@ -132,15 +132,26 @@ def _solve(a: np.ndarray, b: np.ndarray, sigma: np.ndarray) -> np.ndarray:
     return x
 
 
-def fit_excess(measured: Measured, base: NoiseModel, build: Callable[[NoiseModel], stim.Circuit], *,
-               layout: DetectorLayout, components: Sequence[str] = DEFAULT_COMPONENTS,
-               threshold: float = 5.0, find_qubits: bool = True) -> ExcessFit:
-    """Fit each of ``components``' excess over ``base`` (see the module doc)."""
+def check_components(components: Sequence[str]) -> list[str]:
+    """The components to fit, checked (known names, at least one), each once.
+
+    >>> check_components(["gate_2q", "gate2q"])
+    Traceback (most recent call last):
+    ...
+    planner.errors.InputError: fit: cannot fit gate2q; allowed: gate_1q, gate_2q, readout, reset, idle, idle_measure
+    """
     unknown = [c for c in components if c not in EXCESS_FIELD]
     if unknown or not components:
         raise InputError(f"cannot fit {', '.join(unknown) or 'nothing'}", field="fit",
                          allowed=", ".join(EXCESS_FIELD))
-    comps = list(dict.fromkeys(components))
+    return list(dict.fromkeys(components))
+
+
+def fit_excess(measured: Measured, base: NoiseModel, build: Callable[[NoiseModel], stim.Circuit], *,
+               layout: DetectorLayout, components: Sequence[str] = DEFAULT_COMPONENTS,
+               threshold: float = 5.0, find_qubits: bool = True) -> ExcessFit:
+    """Fit each of ``components``' excess over ``base`` (see the module doc)."""
+    comps = check_components(components)
 
     def vector(model: NoiseModel) -> np.ndarray:
         return measured.model_vector(expectation(dem_of(build(model))))

@@ -210,6 +210,9 @@ def run_calibration(target: Target, *, events: Path, distance: int, rounds: int,
                     logical_csv: Path | None = None, workers: int | None = None, console: Any = None) -> Calibration:
     """The whole loop on one file of measured events (see the module doc). ``stage_rule``
     None: no sampling (no stages, no logical predictions)."""
+    from planner.devicedata.fit import check_components
+
+    components = check_components(components)
     circuit = build_circuit(target, distance=distance, basis=basis, rounds=rounds)
     keys = {c: target_key(target, c) for c in components}
     base = NoiseModel.from_target(target)
@@ -235,7 +238,7 @@ def run_calibration(target: Target, *, events: Path, distance: int, rounds: int,
     # bad qubit's neighbours are not named again
     with_bad = _with_qubits(build(fit.model), fit, layout)
     explained = expectation(dem_of(with_bad)).detection_probability()
-    measured, mcounts = _measured_eps(ev, fit.model, build, rounds=rounds)
+    measured, mcounts = _measured_eps(ev, with_bad, rounds=rounds)
     stages, logical = [], []
     if stage_rule is not None and out_dir is not None:
         points = read_logical_csv(logical_csv, default_rounds=None) if logical_csv else []
@@ -265,13 +268,14 @@ def _with_qubits(circuit: stim.Circuit, fit: ExcessFit, layout: DetectorLayout) 
     return circuit
 
 
-def _measured_eps(ev: Any, model: NoiseModel, build: Any, *, rounds: int) -> tuple[Interval | None, tuple[int, int] | None]:
-    """Decode the measured events with the calibrated model (pymatching) and count failures."""
+def _measured_eps(ev: Any, circuit: stim.Circuit, *, rounds: int) -> tuple[Interval | None, tuple[int, int] | None]:
+    """Decode the measured events with the best model (``circuit``: the calibrated model with
+    the outlier qubits in it; pymatching) and count failures."""
     if ev.observables is None:
         return None, None
     import pymatching
 
-    matcher = pymatching.Matching.from_detector_error_model(detector_error_model_for(build(model)))
+    matcher = pymatching.Matching.from_detector_error_model(detector_error_model_for(circuit))
     predicted = matcher.decode_batch(ev.packed, bit_packed_shots=True)
     errors = int(np.any(predicted.astype(bool) != ev.observables, axis=1).sum())
     _, cyc = per_cycle_interval(shots=ev.num_shots, errors=errors, rounds=rounds)
@@ -305,8 +309,8 @@ def _sample(target: Target, base: NoiseModel, fit: ExcessFit, points: Sequence[L
         return sinter.Task(circuit=circuit, decoder=target.sweep.decoder, json_metadata=meta)
 
     tasks = [task(with_excess(base, ex), distance, rounds, f"stage {k}: {name}") for k, (name, ex) in enumerate(steps)]
-    tasks += [task(fit.model, p.distance, p.rounds, f"calibrated d={p.distance} r={p.rounds}")
-              for p in dict.fromkeys(points)]
+    tasks += [task(fit.model, d, r, f"calibrated d={d} r={r}")
+              for d, r in dict.fromkeys((p.distance, p.rounds) for p in points)]
     _, ids = resolved_tasks(tasks)
     store = SampleStore(out_dir / "stages")
     run_sweep(tasks, store=store, rule=rule, workers=workers, console=console)

@@ -120,7 +120,8 @@ def stage_table(cal: Calibration) -> Table:
     m = cal.measured
     rows = [(s.name, num(s.shots), interval(s.eps, is_rate=True),
              num(s.eps.best / m.best) if (s.eps and m and m.best > 0) else "—") for s in cal.stages]
-    lead = [f"Measured (decoded with the calibrated model, pymatching): {interval(m, is_rate=True)} per cycle "
+    lead = [f"Measured (decoded by pymatching with the calibrated model and its outlier qubits): "
+            f"{interval(m, is_rate=True)} per cycle "
             f"({cal.measured_counts[1]} failures in {cal.measured_counts[0]} shots)." if m else
             "No observable flips were given: the measured logical error per cycle is unknown."]
     if not cal.stages:
