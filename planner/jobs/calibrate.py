@@ -19,7 +19,6 @@ from planner.circuits import build_memory_circuit
 from planner.config import Target
 from planner.devicedata import (
     DEFAULT_COMPONENTS,
-    CLASSES,
     DetectorLayout,
     ExcessFit,
     LogicalPoint,
@@ -290,13 +289,7 @@ def _sample(target: Target, base: NoiseModel, fit: ExcessFit, points: Sequence[L
     from planner.sampling import run_sweep
     from planner.store import SampleStore
 
-    order = sorted((c for c in fit.components if c.best > 0), key=lambda c: -c.best)
-    steps: list[tuple[str, dict[str, float]]] = [("first principles", {})]
-    for c in order:
-        steps.append((f"+ {c.name} excess", {**steps[-1][1], c.name: c.best}))
-    if fit.qubits:
-        steps.append(("+ outlier qubits " + " ".join(f"{q.qubit[0]:g},{q.qubit[1]:g}" for q in fit.qubits),
-                      dict(steps[-1][1])))
+    steps = _stage_steps(fit)
     code = target.sweep.code
     layout = layout_of(build(base), basis=basis)
 
@@ -320,16 +313,31 @@ def _sample(target: Target, base: NoiseModel, fit: ExcessFit, points: Sequence[L
               for (name, ex), e in zip(steps, eps)]
     by_point = {f"calibrated d={t.json_metadata['d']} r={t.json_metadata['rounds']}": e
                 for t, e in zip(tasks[len(steps):], eps[len(steps):])}
-    checks = []
-    for p in points:
-        _, measured = per_cycle_interval(shots=p.shots, errors=p.errors, rounds=p.rounds)
-        model, _, model_errors = by_point[f"calibrated d={p.distance} r={p.rounds}"]
-        sigma = None
-        if model is not None and measured.best > 0 and model.best > 0:
-            spread = np.hypot(log_sigma(errors=p.errors), log_sigma(errors=model_errors))
-            sigma = float(np.log(measured.best / model.best) / spread)
-        checks.append(LogicalCheck(point=p, measured=measured, model=model, sigma=sigma))
-    return stages, checks
+    return stages, [_check(p, by_point[f"calibrated d={p.distance} r={p.rounds}"]) for p in points]
+
+
+def _stage_steps(fit: ExcessFit) -> list[tuple[str, dict[str, float]]]:
+    """(name, excess switched on): first principles, then each fitted excess (largest first),
+    then the outlier qubits (when any)."""
+    order = sorted((c for c in fit.components if c.best > 0), key=lambda c: -c.best)
+    steps: list[tuple[str, dict[str, float]]] = [("first principles", {})]
+    for c in order:
+        steps.append((f"+ {c.name} excess", {**steps[-1][1], c.name: c.best}))
+    if fit.qubits:
+        steps.append(("+ outlier qubits " + " ".join(f"{q.qubit[0]:g},{q.qubit[1]:g}" for q in fit.qubits),
+                      dict(steps[-1][1])))
+    return steps
+
+
+def _check(p: LogicalPoint, model_eps: tuple[Interval | None, int, int]) -> LogicalCheck:
+    """A measured point against the calibrated model's sampled rate, sigma in log space."""
+    _, measured = per_cycle_interval(shots=p.shots, errors=p.errors, rounds=p.rounds)
+    model, _, model_errors = model_eps
+    sigma = None
+    if model is not None and measured.best > 0 and model.best > 0:
+        spread = np.hypot(log_sigma(errors=p.errors), log_sigma(errors=model_errors))
+        sigma = float(np.log(measured.best / model.best) / spread)
+    return LogicalCheck(point=p, measured=measured, model=model, sigma=sigma)
 
 
 def _eps(stats: sinter.TaskStats | None, rounds: int) -> tuple[Interval | None, int, int]:
