@@ -16,6 +16,10 @@ The public Python API: everything a notebook or a script needs, in the order of 
   intervals), or one at a time: :func:`requirements`, :func:`cheapest_mix`, :func:`calculate`
   (from measured numbers, no samples), :func:`build_roadmap`, :func:`sensitivity`;
 - checks: :func:`run_verification` samples the proposed operating points;
+- device data: :func:`read_events` (stim's result formats), :func:`count_events`,
+  :func:`expectation` (exact, from a detector error model), :func:`fit_excess`, or the whole
+  loop :func:`run_calibration` -> :class:`Calibration` (:func:`write_calibration` writes it);
+  :func:`sample_events` invents measured data from a target;
 - reports: :func:`write_all` (and :func:`write_fits`, :func:`write_requirements`,
   :func:`write_roadmap`, :func:`write_sensitivity`, :func:`write_verification`);
 - errors: :class:`InputError` (bad input, in domain terms: ``field`` and ``allowed``).
@@ -68,6 +72,12 @@ _HOME: dict[str, str] = {
     # checks
     "Verification": "planner.planning.verify", "run_verification": "planner.jobs.verify",
     "Review": "planner.jobs.review", "review": "planner.jobs.review",
+    # device data
+    "Events": "planner.devicedata", "read_events": "planner.devicedata", "write_events": "planner.devicedata",
+    "count_events": "planner.devicedata", "expectation": "planner.devicedata", "fit_excess": "planner.devicedata",
+    "ExcessFit": "planner.devicedata", "Calibration": "planner.jobs.calibrate",
+    "run_calibration": "planner.jobs.calibrate", "sample_events": "planner.jobs.calibrate",
+    "write_calibration": "planner.reports.calibrate",
     # reports
     "write_all": "planner.reports.files", "write_fits": "planner.reports.files",
     "write_requirements": "planner.reports.files", "write_roadmap": "planner.reports.files",
@@ -90,6 +100,9 @@ __all__ = [
     "sensitivity",
     # checks
     "Review", "Verification", "review", "run_verification",
+    # device data
+    "Calibration", "Events", "ExcessFit", "count_events", "expectation", "fit_excess", "read_events",
+    "run_calibration", "sample_events", "write_calibration", "write_events",
     # reports
     "write_all", "write_fits", "write_requirements", "write_roadmap", "write_sensitivity",
     "write_verification",

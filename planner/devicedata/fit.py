@@ -115,6 +115,10 @@ class QubitOutlier:
 
 @dataclasses.dataclass(frozen=True)
 class ExcessFit:
+    """The fit: each component's excess, the bad qubits found, the fit's reduced chi-square over
+    ``num_quantities`` detection and pair probabilities, the calibrated model and its exact
+    statistics."""
+
     components: tuple[ComponentFit, ...]
     qubits: tuple[QubitOutlier, ...]
     reduced_chi2: float

@@ -129,6 +129,12 @@ class LogicalCheck:
 
 @dataclasses.dataclass(frozen=True)
 class Calibration:
+    """Everything ``planner calibrate`` found: the per-detector arrays [D] and pair matrices
+    [D, D] for the data, the first-principles model and the calibrated one (probabilities;
+    models exact), the pair ``classes`` (index into ``planner.devicedata.CLASSES``), the fit, the
+    stabilizer rows, unexpected pairs, the measured and staged logical error per cycle, the
+    logical checks and the calibrated target's text. ``to_json()`` is ``calibrate --json``."""
+
     target: Target
     distance: int
     rounds: int

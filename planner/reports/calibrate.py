@@ -43,7 +43,7 @@ def component_table(cal: Calibration) -> Table:
                        f"(reduced chi-square {num(cal.fit.reduced_chi2)})."],
                  notes=["Excess in the target file's units (a probability; an infidelity where the target "
                         "gives one); intervals: bootstrap over batches of shots (sampling only)",
-                        "A reduced chi-square well above 1 means no excess of these components makes the "
+                        "a reduced chi-square well above 1 means no excess of these components makes the "
                         "model match: look at the outliers and the unexpected pairs"])
 
 
@@ -52,21 +52,25 @@ def outlier_table(cal: Calibration) -> Table:
              num(o["sigma"]), _detail(o)) for o in cal.outliers()]
     return Table(title="Outliers (beyond the calibrated model)", key="outliers",
                  headers=("qubit", "kind", "role", "sigma", "detail"), rows=rows, left=(0, 1, 2, 4),
-                 lead=[f"Threshold {num(cal.threshold)} sigma (bootstrap). A qubit: extra depolarizing on "
-                       "that qubit alone explains the residual; a stabilizer: its mean detection "
-                       "probability differs from the calibrated model."] if rows else
+                 lead=[f"Threshold {num(cal.threshold)} sigma (bootstrap). A qubit: extra error on that "
+                       "qubit alone explains the residual (fitted as depolarizing in every layer, readout "
+                       "and single-qubit gate error); a stabilizer: its mean detection probability differs "
+                       "from the calibrated model; a logical point: a measured logical error rate differs "
+                       "from the calibrated model's (3 sigma)."] if rows else
                  [f"No qubit or stabilizer beyond {num(cal.threshold)} sigma."])
 
 
 def _detail(o: dict) -> str:
     if o["kind"] == "qubit":
         e = o["excess_depolarizing_per_layer"]
-        r, g = o["excess_readout"], o["excess_gate_1q"]
-        return (f"extra depolarizing per layer {span(e['best'], e['low'], e['high'])}, readout "
-                f"{span(r['best'], r['low'], r['high'])}, gate_1q {span(g['best'], g['low'], g['high'])}")
+        kinds = (("depolarizing/layer", e), ("readout", o["excess_readout"]), ("gate_1q", o["excess_gate_1q"]))
+        # the excess whose interval excludes zero (else the largest): the rest is in calibrate.json
+        shown = [(n, v) for n, v in kinds if v["low"] > 0] or [max(kinds, key=lambda k: k[1]["best"])]
+        return "; ".join(f"+{n} {span(v['best'], v['low'], v['high'])}" for n, v in shown)
     if o["kind"] == "stabilizer":
         return f"{o['type']} stabilizer: detection {num(o['detection_data'])} vs model {num(o['detection_model'])}"
-    return f"logical error per cycle {span(**o['measured'])} vs model"
+    model = span(**o["model"]) if o.get("model") else "—"
+    return f"per cycle {span(**o['measured'])} vs model {model}"
 
 
 def round_rows(cal: Calibration) -> list[tuple[int, str, float, float, float]]:
