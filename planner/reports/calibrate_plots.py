@@ -49,7 +49,7 @@ def map_plot(cal: Calibration) -> bytes:
     ratio = data / np.maximum([s.model for s in st], 1e-12)
     fig, axes = figure(9.0, 4.2, ncols=2)
     for ax, values, label, cmap in ((axes[0][0], data, "mean detection probability (data)", "viridis"),
-                                    (axes[0][1], ratio, "data / calibrated model", "coolwarm")):
+                                    (axes[0][1], ratio, "data / calibrated model with its outlier qubits", "coolwarm")):
         sc = ax.scatter(xy[:, 0], xy[:, 1], c=values, cmap=cmap, s=160, marker="s")
         for q in cal.fit.qubits:
             ax.scatter([q.qubit[0]], [q.qubit[1]], marker="x", color="k", s=80)
