@@ -225,6 +225,8 @@ def _find_qubits(measured: Measured, circuit: stim.Circuit, y_cal: np.ndarray, l
                  threshold: float) -> tuple[list[tuple[int, float]], np.ndarray]:
     """Greedy: the qubit whose pattern best explains the residual, while beyond ``threshold``."""
     qs = sorted(layout.qubits)
+    if not qs:
+        return [], np.zeros((len(y_cal), 0))
     cols = qubit_columns(measured, circuit, qs)
     w = 1.0 / measured.sigma**2
     norm = np.einsum("mq,m,mq->q", cols, w, cols)

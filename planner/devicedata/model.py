@@ -57,14 +57,26 @@ def layout_of(circuit: stim.Circuit, *, basis: str) -> DetectorLayout:
     are stim's generated ones: detectors carry (x, y, t) of their measure qubit)."""
     coords = circuit.get_detector_coordinates()
     d = circuit.num_detectors
-    arr = np.array([coords.get(k, [np.nan, np.nan, np.nan])[:3] for k in range(d)], dtype=float)
+    # surface code: (x, y, t); repetition code: (x, t), placed on the line y = 0
+    arr = np.array([_xyt(coords.get(k, [])) for k in range(d)], dtype=float).reshape(d, 3)
     xy, t = arr[:, :2], arr[:, 2].astype(int)
     first = {tuple(p) for p, r in zip(xy.tolist(), t) if r == t.min()}
     other = "X" if basis.lower() == "z" else "Z"
     kind = np.array([basis.upper() if tuple(p) in first else other for p in xy.tolist()])
-    qubits = {q: (float(c[0]), float(c[1])) for q, c in circuit.get_final_qubit_coordinates().items()}
+    # a circuit without QUBIT_COORDS (stim's repetition code) places qubit q at (q, 0)
+    given = circuit.get_final_qubit_coordinates()
+    qubits = {q: (float(given[q][0]), float(given[q][1])) if len(given.get(q, [])) >= 2 else (float(q), 0.0)
+              for q in range(circuit.num_qubits)}
     measure = frozenset(tuple(p) for p in xy.tolist())
     return DetectorLayout(xy=xy, round=t, kind=kind, qubits=qubits, measure=measure)
+
+
+def _xyt(c: list[float]) -> list[float]:
+    if len(c) >= 3:
+        return list(c[:3])
+    if len(c) == 2:
+        return [c[0], 0.0, c[1]]
+    return [float("nan"), float("nan"), 0.0]
 
 
 @dataclasses.dataclass(frozen=True)

@@ -72,8 +72,8 @@ def parse_qubit(text: str) -> tuple[float, float]:
 
 
 def _qubit_index(circuit: stim.Circuit, xy: tuple[float, float]) -> int:
-    for q, c in circuit.get_final_qubit_coordinates().items():
-        if (float(c[0]), float(c[1])) == xy:
+    for q, c in layout_of(circuit, basis="z").qubits.items():
+        if c == xy:
             return q
     raise InputError(f"no qubit at {xy[0]:g},{xy[1]:g} in this circuit (see `planner circuit` "
                      "for the QUBIT_COORDS)", field="inject")

@@ -79,3 +79,25 @@ def test_staged_comparison_and_logical_check(tmp_path: Path) -> None:
     assert last["low"] <= measured["high"] and measured["low"] <= last["high"], (last, measured)
     flagged = {o["label"] for o in doc["outliers"] if o["kind"] == "logical"}
     assert "surprise" in flagged
+
+
+@pytest.mark.parametrize(("code", "basis", "inject", "bad"), [("repetition", "z", None, None),
+                                                                ("surface", "x", "2,2=0.01", [2.0, 2.0])])
+def test_other_codes_and_bases(tmp_path: Path, code: str, basis: str, inject: str | None,
+                               bad: list[float] | None) -> None:
+    """The repetition code (no QUBIT_COORDS: qubit q sits at q,0) and the X basis (a bad measure
+    qubit): a device that is exactly the model has every fitted excess's interval at zero."""
+    from tests.devicedata.hidden import TARGET_TOML
+
+    target = tmp_path / "t.toml"
+    target.write_text(TARGET_TOML.replace("[sweep]\n", f'[sweep]\ncode = "{code}"\n'))
+    events = tmp_path / "ev.01"
+    args = ["events", str(target), "-d", "3", "-r", "3", "--basis", basis, "--shots", "50000", "--out", str(events),
+            "--format", "01", "--seed", "3"]
+    assert runner.invoke(app, args + (["--inject", inject] if inject else [])).exit_code == 0
+    result = runner.invoke(app, ["calibrate", str(target), "--events", str(events), "--format", "01", "-d", "3",
+                                 "-r", "3", "--basis", basis, "--out", str(tmp_path / "c"), "--no-stages", "--json"])
+    assert result.exit_code == 0, result.stderr
+    doc = json.loads(result.stdout)
+    assert all(c["low"] == 0 for c in doc["components"].values()), doc["components"]
+    assert [o["qubit"] for o in doc["outliers"] if o["kind"] == "qubit"] == ([bad] if bad else [])
