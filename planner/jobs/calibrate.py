@@ -54,6 +54,8 @@ from planner.target_circuit import build_circuit
 __all__ = ["STAGE_RULE", "Calibration", "LogicalCheck", "Stage", "parse_qubit", "run_calibration",
            "sample_events"]
 
+#: a measured logical point this many sigma from the calibrated model is flagged
+LOGICAL_SIGMA = 3.0
 #: stopping rule of each stage's logical error sample (small: a comparison, not a projection)
 STAGE_RULE = StoppingRule(max_errors=300, max_shots=300_000)
 
@@ -171,7 +173,8 @@ class Calibration:
         return out
 
     def outliers(self) -> list[dict[str, Any]]:
-        """Qubits (from the per-qubit fit) and stabilizers (detection rate) beyond the threshold."""
+        """Qubits (from the per-qubit fit) and stabilizers (detection rate) beyond the threshold
+        (``calibrate --json`` ``outliers``; measured logical points are in ``logical_checks``)."""
         out: list[dict[str, Any]] = [
             {"qubit": list(q.qubit), "kind": "qubit", "role": q.role, "sigma": q.sigma,
              "excess_depolarizing_per_layer": {"best": q.best, "low": q.low, "high": q.high},
@@ -182,11 +185,11 @@ class Calibration:
             if abs(s.sigma) >= self.threshold:
                 out.append({"qubit": list(s.xy), "kind": "stabilizer", "role": "measure", "type": s.kind,
                             "sigma": s.sigma, "detection_data": s.data, "detection_model": s.model})
-        for c in self.logical:
-            if c.sigma is not None and abs(c.sigma) >= 3.0:
-                out.append({"qubit": None, "kind": "logical", "label": c.point.label, "sigma": c.sigma,
-                            "measured": c.measured.to_json(), "model": c.model.to_json() if c.model else None})
         return out
+
+    def logical_outliers(self) -> list[LogicalCheck]:
+        """Measured logical points :data:`LOGICAL_SIGMA` or more from the calibrated model."""
+        return [c for c in self.logical if c.sigma is not None and abs(c.sigma) >= LOGICAL_SIGMA]
 
     def to_json(self) -> dict[str, Any]:
         return {
@@ -204,7 +207,8 @@ class Calibration:
                         "logical_error_per_cycle": s.eps.to_json() if s.eps else None} for s in self.stages],
             "logical_checks": [{"label": c.point.label, "distance": c.point.distance, "rounds": c.point.rounds,
                                 "measured": c.measured.to_json(),
-                                "model": c.model.to_json() if c.model else None, "sigma": c.sigma}
+                                "model": c.model.to_json() if c.model else None, "sigma": c.sigma,
+                                "flagged": c in self.logical_outliers()}
                                for c in self.logical],
         }
 

@@ -48,8 +48,10 @@ def component_table(cal: Calibration) -> Table:
 
 
 def outlier_table(cal: Calibration) -> Table:
-    rows = [(_xy(o["qubit"]) if o.get("qubit") else o.get("label", "—"), o["kind"], o.get("role", "—"),
-             num(o["sigma"]), _detail(o)) for o in cal.outliers()]
+    rows = [(_xy(o["qubit"]), o["kind"], o.get("role", "—"), num(o["sigma"]), _detail(o)) for o in cal.outliers()]
+    rows += [(c.point.label, "logical", "—", num(c.sigma),
+              f"per cycle {interval(c.measured, is_rate=True)} vs model {interval(c.model, is_rate=True)}")
+             for c in cal.logical_outliers()]
     return Table(title="Outliers (beyond the calibrated model)", key="outliers",
                  headers=("qubit", "kind", "role", "sigma", "detail"), rows=rows, left=(0, 1, 2, 4),
                  lead=[f"Threshold {num(cal.threshold)} sigma (bootstrap). A qubit: extra error on that "
@@ -67,10 +69,7 @@ def _detail(o: dict) -> str:
         # the excess whose interval excludes zero (else the largest): the rest is in calibrate.json
         shown = [(n, v) for n, v in kinds if v["low"] > 0] or [max(kinds, key=lambda k: k[1]["best"])]
         return "; ".join(f"+{n} {span(v['best'], v['low'], v['high'])}" for n, v in shown)
-    if o["kind"] == "stabilizer":
-        return f"{o['type']} stabilizer: detection {num(o['detection_data'])} vs model {num(o['detection_model'])}"
-    model = span(**o["model"]) if o.get("model") else "—"
-    return f"per cycle {span(**o['measured'])} vs model {model}"
+    return f"{o['type']} stabilizer: detection {num(o['detection_data'])} vs model {num(o['detection_model'])}"
 
 
 def round_rows(cal: Calibration) -> list[tuple[int, str, float, float, float]]:

@@ -77,8 +77,9 @@ def test_staged_comparison_and_logical_check(tmp_path: Path) -> None:
     # the first-principles model under-predicts; the last stage agrees with the data within intervals
     assert first["high"] < measured["low"]
     assert last["low"] <= measured["high"] and measured["low"] <= last["high"], (last, measured)
-    flagged = {o["label"] for o in doc["outliers"] if o["kind"] == "logical"}
+    flagged = {c["label"] for c in doc["logical_checks"] if c["flagged"]}
     assert "surprise" in flagged
+    assert all(o["qubit"] is not None and "sigma" in o for o in doc["outliers"])
 
 
 @pytest.mark.parametrize(("code", "basis", "inject", "bad"), [("repetition", "z", None, None),
