@@ -222,6 +222,8 @@ def run_calibration(target: Target, *, events: Path, distance: int, rounds: int,
     from planner.devicedata.fit import check_components
 
     components = check_components(components)
+    if not threshold > 0:
+        raise InputError(f"{threshold:g} is not allowed", field="threshold", allowed="a number of sigma > 0, e.g. 5")
     circuit = build_circuit(target, distance=distance, basis=basis, rounds=rounds)
     keys = {c: target_key(target, c) for c in components}
     base = NoiseModel.from_target(target)

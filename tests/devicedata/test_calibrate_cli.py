@@ -51,6 +51,7 @@ def test_bad_fit_component_and_logical_csv_are_one_line(tmp_path: Path) -> None:
     bad_csv = tmp_path / "logical.csv"
     bad_csv.write_text("distance,shots\n3,100\n")
     for extra, needle in ((["--fit", "gate_3q"], "gate_3q"), (["--logical", str(bad_csv)], "errors"),
+                          (["--threshold", "0"], "threshold"),
                           (["-d", "5"], "not r8 data")):
         result = runner.invoke(app, base + extra)
         assert result.exit_code == 2, (extra, result.stderr)
