@@ -20,6 +20,10 @@ The public Python API: everything a notebook or a script needs, in the order of 
   keyed by, and each qubit's values in force); :func:`draw_instances` and :func:`run_spread`
   (device instances of a spread of qubits -> :class:`SpreadSummary`);
 - two devices: :func:`compare_directories` (or :func:`compare_answers`) puts two out directories side by side;
+- device data: :func:`read_events` (stim's result formats), :func:`count_events`,
+  :func:`expectation` (exact, from a detector error model), :func:`fit_excess`, or the whole
+  loop :func:`run_calibration` -> :class:`Calibration` (:func:`write_calibration` writes it);
+  :func:`sample_events` invents measured data from a target;
 - reports: :func:`write_all` (and :func:`write_fits`, :func:`write_requirements`,
   :func:`write_roadmap`, :func:`write_sensitivity`, :func:`write_verification`);
 - leakage: :class:`Leakage` (the ``[device.leakage]`` section), :class:`LeakageSampler` (sinter's
@@ -82,6 +86,12 @@ _HOME: dict[str, str] = {
     # spread of qubits
     "SpreadSummary": "planner.planning.spread", "draw_instances": "planner.planning.spread",
     "run_spread": "planner.jobs.spread",
+    # device data
+    "Events": "planner.devicedata", "read_events": "planner.devicedata", "write_events": "planner.devicedata",
+    "count_events": "planner.devicedata", "expectation": "planner.devicedata", "fit_excess": "planner.devicedata",
+    "ExcessFit": "planner.devicedata", "Calibration": "planner.jobs.calibrate",
+    "run_calibration": "planner.jobs.calibrate", "sample_events": "planner.jobs.calibrate",
+    "write_calibration": "planner.reports.calibrate",
     # reports
     "write_all": "planner.reports.files", "write_fits": "planner.reports.files",
     "write_requirements": "planner.reports.files", "write_roadmap": "planner.reports.files",
@@ -112,6 +122,9 @@ __all__ = [
     # spread of qubits
     "SpreadSummary", "draw_instances", "run_spread",
     "Comparison", "compare_answers", "compare_directories",
+    # device data
+    "Calibration", "Events", "ExcessFit", "count_events", "expectation", "fit_excess", "read_events",
+    "run_calibration", "sample_events", "write_calibration", "write_events",
     # reports
     "write_all", "write_fits", "write_requirements", "write_roadmap", "write_sensitivity",
     "write_verification",

@@ -183,7 +183,7 @@ def test_no_function_over_max_complexity() -> None:
 #: The stages of ../shared/design.md in the order data flows; a module may import only its own
 #: stage and those to its left. ``target_circuit`` (a target's circuit at one grid point) reads
 #: the sweep's defaults, so it stands after ``sweep``; ``errors`` is shared by every stage.
-STAGES = ("errors", "config", "noise", "circuits", "sweep", "target_circuit", "sampling", "store",
+STAGES = ("errors", "config", "noise", "circuits", "sweep", "target_circuit", "devicedata", "sampling", "store",
           "fits", "planning", "jobs", "reports", "cli")
 
 

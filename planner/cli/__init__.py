@@ -23,8 +23,10 @@ except ImportError:  # pragma: no cover - older typer on top of click
 from planner.cli._common import printable
 from planner.cli import (
     ask,
+    calibrate,
     circuit,
     compare,
+    events,
     fit,
     layout,
     leakage,
@@ -104,7 +106,7 @@ def _root() -> None:
 
 
 for _module in (run, sweep, fit, ask, roadmap, sensitivity, verify, circuit, merge, status, compare,
-                leakage, layout, spread):
+                leakage, layout, spread, events, calibrate):
     _module.register(app)
 
 

@@ -176,6 +176,13 @@ MATRIX = [
     case("leakage", BAD, "--distance", "3", needle="device.errors.gate_2q"),
     case("leakage", T, "--distance", "3", needle="device.leakage: missing section"),
     case("leakage", T, "--distance", "4", needle="--distance"),
+    # events, calibrate (bad data files: tests/devicedata/test_events.py)
+    case("events", _p("missing", "x.toml"), "-d", "3", "-r", "3", "--shots", "10", "--out", _p("missing", "e.b8"),
+         needle="x.toml: no such target file"),
+    case("events", T, "-d", "4", "-r", "3", "--shots", "10", "--out", _p("missing", "e.b8"), needle="--distance"),
+    case("calibrate", _p("missing", "x.toml"), "--events", FILE, "-d", "3", "-r", "3", "--out", OUT,
+         needle="x.toml: no such target file"),
+    case("calibrate", T, "--events", MISS, "-d", "3", "-r", "3", "--out", OUT, needle="no such file"),
 ]
 
 
