@@ -3,7 +3,7 @@
 #
 # 1. `planner events` plays the experiment: 200,000 shots of a d=5, 5-round Z memory sampled
 #    from targets/hidden_device.toml (the demo chip with hidden excess errors; invented numbers)
-#    and one bad qubit at 3,3 (--inject, until target files hold per-qubit values).
+#    and one bad qubit at 3,3 (its [device.qubits] entry).
 # 2. `planner calibrate targets/demo.toml` (the first-principles budget) fits the excess back,
 #    names the bad qubit, samples the staged comparison and writes calibrated.toml.
 # 3. `planner run` answers the planning questions on the calibrated target, with the demo's
@@ -21,7 +21,7 @@ say() { printf '\n== %s\n' "$*" >&2; }
 
 say "1/3 the hidden device plays the experiment (invented data)"
 "$PLANNER" events targets/hidden_device.toml --distance 5 --rounds 5 --basis z --shots 200000 \
-    --out "$OUT/events.b8" --format b8 --seed 2026 --inject 3,3=0.004
+    --out "$OUT/events.b8" --format b8 --seed 2026
 
 say "2/3 calibrate the first-principles model (targets/demo.toml) against it"
 "$PLANNER" calibrate targets/demo.toml --events "$OUT/events.b8" --distance 5 --rounds 5 --basis z \
