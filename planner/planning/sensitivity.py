@@ -31,7 +31,8 @@ from planner.planning.uncertainty import replica_interval
 FASTER_POINTS = 0.10
 MONTHS_PER_YEAR = 12.0
 #: the figures of a row that get an interval (attribute names of ComponentSensitivity)
-FIGURES = ("share", "elasticity", "suppression_halved", "suppression_perfect", "months_earlier")
+FIGURES = ("share", "elasticity", "suppression_halved", "suppression_perfect", "months_earlier",
+           "eps_halved", "eps_perfect")
 
 
 def _ivj(iv: Interval | None) -> dict[str, Any] | None:
@@ -51,6 +52,9 @@ class ComponentSensitivity:
     sampled: bool = True
     #: bootstrap intervals of the figures above, keyed by :data:`FIGURES` (empty without replicas)
     intervals: dict[str, Interval] = dataclasses.field(default_factory=dict)
+    #: logical error per cycle at the goal distance with that component halved / perfect (model)
+    eps_halved: float | None = None
+    eps_perfect: float | None = None
 
     def to_json(self) -> dict[str, Any]:
         f = lambda x: None if x is None or not math.isfinite(x) else float(x)  # noqa: E731
@@ -62,7 +66,11 @@ class ComponentSensitivity:
                 "share_interval": iv("share"), "elasticity_interval": iv("elasticity"),
                 "suppression_factor_halved_interval": iv("suppression_halved"),
                 "suppression_factor_perfect_interval": iv("suppression_perfect"),
-                "months_earlier_interval": iv("months_earlier")}
+                "months_earlier_interval": iv("months_earlier"),
+                "logical_error_per_cycle_halved": f(self.eps_halved),
+                "logical_error_per_cycle_halved_interval": iv("eps_halved"),
+                "logical_error_per_cycle_perfect": f(self.eps_perfect),
+                "logical_error_per_cycle_perfect_interval": iv("eps_perfect")}
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -84,9 +92,15 @@ class Sensitivity:
     unsampled: tuple[str, ...] = ()
     unsampled_share: float | None = None
     unsampled_share_interval: Interval | None = None
+    #: the goal distance the eps figures are taken at, and eps per cycle there today (model)
+    distance: int | None = None
+    eps_today: float | None = None
+    eps_today_interval: Interval | None = None
 
     def to_json(self) -> dict[str, Any]:
-        return {"suppression_factor_today": self.suppression_today, "faster_points": self.faster_points,
+        return {"distance": self.distance, "logical_error_per_cycle_today": self.eps_today,
+                "logical_error_per_cycle_today_interval": _ivj(self.eps_today_interval),
+                "suppression_factor_today": self.suppression_today, "faster_points": self.faster_points,
                 "components": [r.to_json() for r in self.rows], "model_form": self.model_form,
                 "model_quality": self.model_quality, "note": self.note,
                 "suppression_factor_today_interval": _ivj(self.suppression_today_interval),
@@ -142,7 +156,8 @@ def _rows(model: ResponseModel, target: Target) -> dict[str, ComponentSensitivit
         rows[c] = ComponentSensitivity(component=c, share=share, elasticity=elasticity,
                                        suppression_halved=model.suppression({c: 0.5}),
                                        suppression_perfect=model.suppression({c: 0.0}), months_earlier=months,
-                                       note=note)
+                                       note=note, eps_halved=model.logical_error_per_cycle({c: 0.5}, dmax),
+                                       eps_perfect=model.logical_error_per_cycle({c: 0.0}, dmax))
     return rows
 
 
@@ -162,7 +177,11 @@ def sensitivity(model: ResponseModel, target: Target, *, models: Sequence[Respon
     rows.sort(key=lambda r: (not r.sampled, -(r.share or 0.0), -(r.months_earlier or 0.0)))
     lam = model.suppression(None)
     group = group_share(model)
-    return Sensitivity(suppression_today=lam, rows=tuple(rows), faster_points=FASTER_POINTS, model_form=model.form,
+    d = goal_distance(target)
+    eps = model.logical_error_per_cycle(None, d)
+    return Sensitivity(distance=d, eps_today=eps,
+                       eps_today_interval=replica_interval(eps, [m.logical_error_per_cycle(None, d) for m in models]),
+                       suppression_today=lam, rows=tuple(rows), faster_points=FASTER_POINTS, model_form=model.form,
                        model_quality=model.quality.summary(),
                        note=not_sampled_note(model.unsampled) if model.unsampled else "",
                        suppression_today_interval=replica_interval(lam, [m.suppression(None) for m in models]),

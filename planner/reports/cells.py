@@ -162,10 +162,13 @@ def sensitivity_cells(r: ComponentSensitivity) -> dict[str, str]:
     ``perfect`` (Lambda) and ``earlier`` (months); "not sampled" in each for a component without
     its own sweep axis."""
     if not r.sampled:
-        return dict.fromkeys(("share", "elasticity", "halved", "perfect", "earlier"), NOT_SAMPLED)
+        return dict.fromkeys(("share", "elasticity", "halved", "perfect", "earlier", "eps_halved", "eps_perfect"),
+                             NOT_SAMPLED)
     iv = r.intervals
     return {"share": percent(r.share, iv.get("share")),
             "elasticity": estimate(r.elasticity, iv.get("elasticity")),
             "halved": estimate(r.suppression_halved, iv.get("suppression_halved")),
             "perfect": estimate(r.suppression_perfect, iv.get("suppression_perfect")),
-            "earlier": estimate(r.months_earlier, iv.get("months_earlier"))}
+            "earlier": estimate(r.months_earlier, iv.get("months_earlier")),
+            "eps_halved": rate(r.eps_halved, iv.get("eps_halved")),
+            "eps_perfect": rate(r.eps_perfect, iv.get("eps_perfect"))}

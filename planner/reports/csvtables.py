@@ -26,7 +26,9 @@ REQUIREMENTS_COLUMNS = ("quantity", "lever", "unit", "best", "low", "high", "rea
 SENSITIVITY_FIGURES = (("share_of_inverse_lambda", "share"), ("elasticity", "elasticity"),
                        ("suppression_factor_halved", "suppression_halved"),
                        ("suppression_factor_perfect", "suppression_perfect"),
-                       ("months_earlier", "months_earlier"))
+                       ("months_earlier", "months_earlier"),
+                       ("logical_error_per_cycle_halved", "eps_halved"),
+                       ("logical_error_per_cycle_perfect", "eps_perfect"))
 SENSITIVITY_COLUMNS = ("component", *(f"{name}{end}" for name, _ in SENSITIVITY_FIGURES
                                       for end in ("", "_low", "_high")), "lumped", "note", "sampled")
 DATES_COLUMNS = ("event", "date", "low", "high", "fraction_of_scenarios_reached")

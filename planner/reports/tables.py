@@ -289,9 +289,22 @@ def render_sensitivity(sens: Sensitivity, console: Console) -> None:
                f"goal comes sooner if its error fell {sens.faster_points:.0%} more per year",),
         fold_titles=(f"Months earlier to the goal, per component ({cl})",)))
     footnotes(console, [f"{r.component}: {r.note}" for r in sens.rows if r.note and r.sampled])
+    _render_goal_eps(sens, console, cl)
     say(console, "Model:", f"{sens.model_form} form;", "fit quality:", *words(sens.model_quality))
     if sens.note:
         say(console, "note:", *words(sens.note))
+
+
+def _render_goal_eps(sens: Sensitivity, console: Console, cl: str) -> None:
+    """eps per cycle at the goal distance with each component halved or perfect."""
+    if sens.distance is not None:
+        print_table(console, Table(
+            title=f"At the goal distance d = {sens.distance}: eps per cycle with one component improved ({cl})",
+            headers=("component", "halved", "perfect"),
+            rows=[[r.component, c["eps_halved"], c["eps_perfect"]] for r in sens.rows if r.sampled
+                  for c in [sensitivity_cells(r)]],
+            notes=(f"today: {rate(sens.eps_today, sens.eps_today_interval)} at d = {sens.distance} (model; "
+                   "an extrapolation beyond the sampled distances)",)))
 
 
 # ---------------------------------------------------------------------------------------------

@@ -235,9 +235,10 @@ def sensitivity_tables(sens: Sensitivity, *, lumped: Sequence[str] = ()) -> list
     rows = []
     for r in sens.rows:
         c = sensitivity_cells(r)
-        rows.append((r.component, c["share"], c["elasticity"], c["halved"], c["perfect"], c["earlier"], r.note))
+        rows.append((r.component, c["share"], c["elasticity"], c["halved"], c["perfect"], c["earlier"],
+                     c["eps_halved"], c["eps_perfect"], r.note))
     if (group := group_row(sens)) is not None:
-        rows.append((group[0], group[1], "—", "—", "—", "—",
+        rows.append((group[0], group[1], "—", "—", "—", "—", "—", "—",
                      "their weight is fitted together (they move only with the joint factor)"))
     source = (f"Intervals: best [low, high] over {sens.num_replicas} bootstrap models of the fit, at the "
               "central rates (the spreads of the rates are not in them)." if sens.num_replicas
@@ -249,10 +250,15 @@ def sensitivity_tables(sens: Sensitivity, *, lumped: Sequence[str] = ()) -> list
         key="sensitivity", title="Which component holds Lambda back (today's point)",
         headers=("component", "share of 1/Lambda (%)", "d ln Lambda / d ln p (elasticity)",
                  "Lambda if halved (ratio)", "Lambda if perfect (ratio)",
-                 f"months earlier at +{100 * sens.faster_points:g} points of error removed per year (months)", "note"),
+                 f"months earlier at +{100 * sens.faster_points:g} points of error removed per year (months)",
+                 f"eps per cycle at d = {sens.distance} if halved", f"eps per cycle at d = {sens.distance} if perfect",
+                 "note"),
         rows=tuple(rows),
         lead=("Lambda today from the response model: "
-              f"{_with_point_note(sens.suppression_today, sens.suppression_today_interval)}. {source}",),
+              f"{_with_point_note(sens.suppression_today, sens.suppression_today_interval)}; eps per cycle at "
+              f"the goal distance d = {sens.distance}: "
+              f"{_with_point_note(sens.eps_today, sens.eps_today_interval, is_rate=True)} (model, extrapolated "
+              f"beyond the sampled distances). {source}",),
         notes=tuple(notes))]
 
 

@@ -419,6 +419,12 @@ def test_sensitivity_intervals_agree_across_json_csv_markdown(built: Built) -> N
             assert iv["low"] <= iv["best"] <= iv["high"], (comp["component"], key)
             assert _csv_iv(csv_rows[comp["component"]], col) == _json_iv(iv), (comp["component"], col)
             assert md_rows[comp["component"]][cell] == _shown(iv, scale), (comp["component"], col)
+    for comp in sens["components"]:  # eps at the goal distance, halved or perfect: JSON and CSV agree
+        for col in ("logical_error_per_cycle_halved", "logical_error_per_cycle_perfect"):
+            iv = comp[f"{col}_interval"]
+            if iv is not None:
+                assert iv["low"] <= iv["best"] <= iv["high"]
+                assert _csv_iv(csv_rows[comp["component"]], col) == _json_iv(iv), (comp["component"], col)
     lead = _shown(sens["suppression_factor_today_interval"])
     assert lead in (built.out / "sensitivity.md").read_text()
     assert lead in " ".join(_page(built.out / "report.html").text)
