@@ -50,6 +50,7 @@ _HOME: dict[str, str] = {
     "BUDGETS": "planner.sweep", "StoppingRule": "planner.sweep", "SweepPlan": "planner.sweep",
     "plan_sweep": "planner.sweep",
     "reach_tasks": "planner.sweep", "plan_with_reach": "planner.jobs.sweep",
+    "tasks_at_rounds": "planner.sweep",
     "SweepSummary": "planner.sampling", "run_sweep": "planner.sampling",
     "TargetedSummary": "planner.sampling", "run_targeted": "planner.jobs.sweep",
     "SampleStore": "planner.store",
@@ -69,6 +70,7 @@ _HOME: dict[str, str] = {
     # checks
     "Verification": "planner.planning.verify", "run_verification": "planner.jobs.verify",
     "OperatingPoint": "planner.planning.verify", "operating_points": "planner.planning.verify",
+    "compare_predictions": "planner.planning.verify",
     "Review": "planner.jobs.review", "review": "planner.jobs.review",
     # reports
     "write_all": "planner.reports.files", "write_fits": "planner.reports.files",
@@ -84,7 +86,7 @@ __all__ = [
     # sweep
     "BUDGETS", "OutDirSamples", "SampleStore", "StoppingRule", "SweepPlan", "SweepSummary",
     "TargetedSummary", "load_out_dir", "plan_sweep", "run_sweep", "run_targeted",
-    "plan_with_reach", "reach_tasks",
+    "plan_with_reach", "reach_tasks", "tasks_at_rounds",
     # fits
     "CONFIDENCE", "FitReport", "Interval", "ResponseModel", "fit_model", "fit_stats",
     # answers
@@ -93,7 +95,7 @@ __all__ = [
     "sensitivity",
     # checks
     "Review", "Verification", "review", "run_verification",
-    "OperatingPoint", "operating_points",
+    "OperatingPoint", "compare_predictions", "operating_points",
     # reports
     "write_all", "write_fits", "write_requirements", "write_roadmap", "write_sensitivity",
     "write_verification",

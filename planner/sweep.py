@@ -251,7 +251,7 @@ def reach_distances(target: Target, *, goal_distance: int) -> tuple[int, ...]:
     (the grid's own left out). ``[]``: none.
 
     >>> from planner.config import EXAMPLE_TOML, parse_target
-    >>> example = parse_target(EXAMPLE_TOML)  # distances 3, 5
+    >>> example = parse_target(EXAMPLE_TOML.replace("[sweep]", "[sweep]\\nreach_distances = 'auto'"))
     >>> reach_distances(example, goal_distance=21), reach_distances(example, goal_distance=7)
     ((7, 9), ())
     >>> reach_distances(example, goal_distance=9)

@@ -170,10 +170,11 @@ class Sweep(_Frozen):
                              f"({', '.join(COMPONENTS)}), or leave the key out for all of them")
         return v
 
-    #: distances sampled beyond ``distances`` on the joint axis when the goal distance is far
-    #: beyond them (see :func:`planner.sweep.reach_tasks`): "auto" (d_max + 2 and d_max + 4
-    #: when the goal distance exceeds d_max + 4), a list of odd distances, or [] (none)
-    reach_distances: Literal["auto"] | tuple[Integer, ...] = "auto"
+    #: distances sampled beyond ``distances`` on the joint axis (see
+    #: :func:`planner.sweep.reach_tasks`): "auto" (d_max + 2 and d_max + 4, up to the goal
+    #: distance, when that lies beyond d_max + 2), a list of odd distances, or [] (none: the
+    #: default, so a grid's tasks and their cost stay what the file lists)
+    reach_distances: Literal["auto"] | tuple[Integer, ...] = ()
 
     @field_validator("reach_distances")
     @classmethod

@@ -146,13 +146,13 @@ def run_verification(target: Target, answers: Answers, *, out_dir: Path, budget:
     rule = budget_rule(budget)
     plan = _plan(target, answers, rule)
     goal_est = plan.goal_estimate
-    _say(console, f"verify: CPU estimate before sampling (--max-cpu {max_cpu_seconds:g} s):")
-    for c in [*plan.estimates, *([goal_est] if goal_est else [])]:
-        _say(console, "  " + cpu_text(c))
-    if plan.beyond_seconds > max_cpu_seconds:
+    if plan.beyond_seconds > max_cpu_seconds:  # refused in one line, before anything is sampled
         raise InputError(f"d={', '.join(map(str, plan.beyond))} are estimated at {plan.beyond_seconds:.3g} s "
                          f"of CPU, over {max_cpu_seconds:g} s: give --max-cpu {plan.beyond_seconds * 1.5:.0f} "
                          "or more, or a smaller --budget", field="--max-cpu")
+    _say(console, f"verify: CPU estimate before sampling (--max-cpu {max_cpu_seconds:g} s):")
+    for c in [*plan.estimates, *([goal_est] if goal_est else [])]:
+        _say(console, "  " + cpu_text(c))
     store = SampleStore(Path(out_dir) / "verify")
     if plan.tasks:
         run_sweep(plan.tasks, store=store, rule=rule, workers=workers, console=console)

@@ -352,3 +352,7 @@ def compare(answers: Any, points: Sequence[OperatingPoint], distances: Sequence[
     goal = answers.requirements.distance if answers.requirements is not None else None
     return Verification(points=tuple(points), distances=distances, rows=tuple(rows), note="; ".join(notes),
                         fitted_max=max(fitted) if fitted else None, goal_distance=goal, cpu=tuple(cpu))
+
+
+#: the public name of :func:`compare` (``planner.compare_predictions``)
+compare_predictions = compare
