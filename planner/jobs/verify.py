@@ -45,6 +45,8 @@ GOAL_ERRORS = 100
 #: shots per task at the goal distance at most
 GOAL_MAX_SHOTS = 10**9
 GOAL_RULE = StoppingRule(max_errors=GOAL_ERRORS, max_shots=GOAL_MAX_SHOTS)
+#: what the first estimate of the goal distance says (it is decided after the others are sampled)
+PENDING = "to be decided against --max-cpu"
 
 
 def _tasks(target: Target, points: Sequence[OperatingPoint], distance: int) -> list[sinter.Task]:
@@ -55,17 +57,31 @@ def _tasks(target: Target, points: Sequence[OperatingPoint], distance: int) -> l
                                                        factor=p.factor)]
 
 
-def _estimate(answers: Answers, tasks: Sequence[sinter.Task], *, distance: int, rule: StoppingRule,
-              seconds_per_detector: float) -> CpuEstimate:
+def _work(tasks: Sequence[sinter.Task]) -> list[tuple[dict[str, float], int, int]]:
+    """(scales, rounds, detectors) of each task."""
+    return [(t.json_metadata["scales"], int(t.json_metadata["rounds"]), t.circuit.num_detectors) for t in tasks]
+
+
+def _goal_work(target: Target, points: Sequence[OperatingPoint], distance: int) -> list[tuple[dict[str, float], int, int]]:
+    """(scales, rounds, detectors) of the goal distance's tasks, counted without building them."""
+    from planner.config.limits import memory_circuit_size
+    from planner.sweep import bases_for
+
+    code = target.sweep.code
+    return [(p.scales, r, memory_circuit_size(code=code, distance=distance, rounds=r)[1])
+            for p in points for r in verify_rounds(distance) for _ in bases_for(target)]
+
+
+def _estimate(answers: Answers, work: Sequence[tuple[dict[str, float], int, int]], *, distance: int,
+              rule: StoppingRule, seconds_per_detector: float) -> CpuEstimate:
     """Shots each task takes to ``rule`` at its predicted rate, and their CPU time."""
     shots, seconds = 0, 0.0
-    for t in tasks:
-        m = t.json_metadata
-        eps = answers.model.logical_error_per_cycle(m["scales"], distance) if answers.model else 0.0
-        n = task_shots(eps=eps, rounds=int(m["rounds"]), max_errors=rule.max_errors, max_shots=rule.max_shots)
+    for scales, rounds, detectors in work:
+        eps = answers.model.logical_error_per_cycle(scales, distance) if answers.model else 0.0
+        n = task_shots(eps=eps, rounds=rounds, max_errors=rule.max_errors, max_shots=rule.max_shots)
         shots += n
-        seconds += n * t.circuit.num_detectors * seconds_per_detector
-    return CpuEstimate(distance=distance, tasks=len(tasks), shots=shots, seconds=seconds,
+        seconds += n * detectors * seconds_per_detector
+    return CpuEstimate(distance=distance, tasks=len(work), shots=shots, seconds=seconds,
                        seconds_per_detector=seconds_per_detector, sampled=True)
 
 
@@ -78,7 +94,8 @@ def cpu_text(c: CpuEstimate) -> str:
     """
     hours = c.seconds / 3600
     when = f"{hours:.3g} h" if hours >= 1 else f"{c.seconds / 60:.3g} min" if c.seconds >= 60 else f"{c.seconds:.3g} s"
-    said = f": {'sampling' if c.sampled else 'not sampled'}" + (f": {c.why}" if c.why else "")
+    state = "" if c.why.startswith(PENDING) else "sampling" if c.sampled else "not sampled"
+    said = ": " + ": ".join(x for x in (state, c.why) if x)
     return (f"d={c.distance}: {c.tasks} tasks, {c.shots:.2g} shots, about {when} of CPU "
             f"(at {c.seconds_per_detector:.2g} s per detector per shot){said}")
 
@@ -102,8 +119,9 @@ class _Plan:
     beyond: tuple[int, ...]
     tasks: list[sinter.Task]
     estimates: list[CpuEstimate]
-    goal_tasks: list[sinter.Task]
     goal_estimate: CpuEstimate | None
+    #: the goal distance can be built and sampled (its CPU time is decided after the others)
+    goal_buildable: bool = False
 
     @property
     def beyond_seconds(self) -> float:
@@ -111,7 +129,9 @@ class _Plan:
 
 
 def _plan(target: Target, answers: Answers, rule: StoppingRule) -> _Plan:
-    """The tasks at d_max + 2, d_max + 4 and the goal distance, with their first estimates."""
+    """The tasks at d_max + 2 and d_max + 4, their estimates and the goal distance's (whose tasks
+    are built only when it is sampled: it may be far too large to build)."""
+    from planner.config.limits import size_problem
     from planner.sampling.targeted import PRIOR_SECONDS_PER_DETECTOR
     from planner.sweep import resolved_tasks
 
@@ -120,13 +140,19 @@ def _plan(target: Target, answers: Answers, rule: StoppingRule) -> _Plan:
     beyond = verify_distances(fitted)
     goal = goal_to_verify(fitted, answers.requirements.distance if answers.requirements else None)
     by_d = {d: resolved_tasks(_tasks(target, points, d))[0] for d in beyond}
-    est = [_estimate(answers, by_d[d], distance=d, rule=rule, seconds_per_detector=PRIOR_SECONDS_PER_DETECTOR)
+    est = [_estimate(answers, _work(by_d[d]), distance=d, rule=rule, seconds_per_detector=PRIOR_SECONDS_PER_DETECTOR)
            for d in beyond]
-    goal_tasks = resolved_tasks(_tasks(target, points, goal))[0] if goal is not None and points else []
-    goal_est = (_estimate(answers, goal_tasks, distance=goal, rule=GOAL_RULE,
-                          seconds_per_detector=PRIOR_SECONDS_PER_DETECTOR) if goal_tasks else None)
+    goal_est, buildable = None, False
+    if goal is not None and points:
+        goal_est = _estimate(answers, _goal_work(target, points, goal), distance=goal, rule=GOAL_RULE,
+                             seconds_per_detector=PRIOR_SECONDS_PER_DETECTOR)
+        too_big = size_problem(code=target.sweep.code, distance=goal, rounds=max(verify_rounds(goal)))
+        why = (f"too large to sample: {too_big}" if too_big else
+               f"{PENDING} once the distances above the fit have measured the cost per shot")
+        goal_est = dataclasses.replace(goal_est, sampled=False, why=why)
+        buildable = too_big is None
     return _Plan(points=points, beyond=beyond, tasks=[t for d in beyond for t in by_d[d]], estimates=est,
-                 goal_tasks=goal_tasks, goal_estimate=goal_est)
+                 goal_estimate=goal_est, goal_buildable=goal_est is not None and buildable)
 
 
 def run_verification(target: Target, answers: Answers, *, out_dir: Path, budget: str = "quick",
@@ -156,23 +182,26 @@ def run_verification(target: Target, answers: Answers, *, out_dir: Path, budget:
     store = SampleStore(Path(out_dir) / "verify")
     if plan.tasks:
         run_sweep(plan.tasks, store=store, rule=rule, workers=workers, console=console)
-    if goal_est is not None:
-        goal_est = _goal_decision(answers, store.stats(), plan.tasks, plan.goal_tasks, goal_est,
+    if goal_est is not None and plan.goal_buildable:
+        goal_est = _goal_decision(answers, store.stats(), plan.tasks, goal_est,
                                   max_cpu_seconds=max_cpu_seconds, beyond_seconds=plan.beyond_seconds)
+    if goal_est is not None:
         _say(console, "verify: goal distance " + cpu_text(goal_est))
-        if goal_est.sampled:
-            run_sweep(plan.goal_tasks, store=store, rule=GOAL_RULE, workers=workers, console=console)
+    if goal_est is not None and goal_est.sampled:
+        goal_tasks = _tasks(target, plan.points, goal_est.distance)
+        run_sweep(goal_tasks, store=store, rule=GOAL_RULE, workers=workers, console=console)
     distances = (*plan.beyond, *([goal_est.distance] if goal_est is not None else []))
     return compare(answers, plan.points, distances, store.stats(),
                    cpu=[*plan.estimates, *([goal_est] if goal_est else [])])
 
 
 def _goal_decision(answers: Answers, stats: Sequence[sinter.TaskStats], beyond_tasks: Sequence[sinter.Task],
-                   goal_tasks: Sequence[sinter.Task], first: CpuEstimate, *, max_cpu_seconds: float, beyond_seconds: float) -> CpuEstimate:
+                   first: CpuEstimate, *, max_cpu_seconds: float, beyond_seconds: float) -> CpuEstimate:
     """The goal distance's estimate again, at the cost measured on d_max + 2 and d_max + 4, and
     whether it fits what ``--max-cpu`` leaves after them."""
     cost = _measured_cost(stats, beyond_tasks, first.seconds_per_detector)
-    est = _estimate(answers, goal_tasks, distance=first.distance, rule=GOAL_RULE, seconds_per_detector=cost)
+    scale = cost / first.seconds_per_detector
+    est = dataclasses.replace(first, seconds=first.seconds * scale, seconds_per_detector=cost)
     left = max_cpu_seconds - beyond_seconds
     fits = est.seconds <= left
     why = (f"fits the {left:.3g} s --max-cpu leaves after the distances above the fit" if fits else
