@@ -1,7 +1,8 @@
 """How well the answer holds beyond the fit: the demo's joint-factor answer sampled independently.
 
-On the demo target (invented device): sweep it as ``planner run`` does (grid plus the joint axis
-at the reach distances, ``sweep.reach_distances``; ``--no-reach`` for the grid alone), take the
+On the demo target (invented device): sweep it as ``planner run`` does, with the joint axis also
+at the reach distances (``sweep.reach_distances = "auto"``: d = 9, 11; ``--no-reach`` for the
+demo file as it is, the grid alone), take the
 joint-factor answer for the goal, then sample that operating point afresh, into its own store,
 at d = 9, 11, 13 (and the goal distance with ``--full``), each at r = d and 3d rounds in both
 bases, and compare the per-cycle rate planner's fits give for those samples with the model's
@@ -70,8 +71,14 @@ def main() -> None:
     a = args_of()
     t0 = time.monotonic()
     console = Console(stderr=True)
-    target = planner.load_target(a.target)
     out = Path(a.out)
+    path = Path(a.target)
+    text = path.read_text(encoding="utf-8")
+    if not a.no_reach and "reach_distances" not in text:  # the demo file with the reach distances on
+        out.mkdir(parents=True, exist_ok=True)
+        path = out / "demo_with_reach.toml"
+        path.write_text(text.replace("[sweep]", '[sweep]\nreach_distances = "auto"', 1), encoding="utf-8")
+    target = planner.load_target(path)
     answers = sweep(target, out / ("sweep-grid" if a.no_reach else "sweep"), a, console)
     req = answers.requirements
     if req is None or not req.joint.reachable:
