@@ -41,10 +41,14 @@ def args_of() -> argparse.Namespace:
     ap.add_argument("--distances", default="9,11,13")
     ap.add_argument("--full", action="store_true", help="also sample the goal distance (hours of CPU)")
     ap.add_argument("--no-reach", action="store_true", help="sweep the grid only (no reach distances)")
+    ap.add_argument("--reuse", action="store_true",
+                    help="answer from the sweep already in OUT (as it was sampled), sampling no more there")
     return ap.parse_args()
 
 
 def sweep(target: planner.Target, out: Path, a: argparse.Namespace, console: Console) -> planner.Answers:
+    if a.reuse:
+        return planner.review(out).answers
     plan = (planner.plan_sweep(target, a.budget) if a.no_reach else planner.plan_with_reach(target, a.budget))
     planner.run_sweep(plan.tasks, store=planner.SampleStore(out), rule=plan.rule, workers=a.workers,
                       console=console, target=target, budget=a.budget)
@@ -98,7 +102,7 @@ def main() -> None:
     print(f"joint-factor answer for eps {req.eps_target:g} at d = {req.distance}: {req.joint.factor:.4f}"
           + (f" [{iv.low:.4f}, {iv.high:.4f}] (95%)" if iv is not None else ""))
     print("per-cycle rates from planner.fit_stats over r = d and 3d, both bases; intervals 95%; "
-          "predictions beyond d = %d are extrapolations" % max(fitted))
+          f"predictions beyond d = {max(fitted)} are extrapolations")
     lines, worst, inside, judged = rows_text(v)
     print("\n".join(lines))
     lam = next((r for r in v.rows if r.quantity == "suppression_factor" and r.sampled is not None), None)
