@@ -105,6 +105,11 @@ def main() -> None:
           f"predictions beyond d = {max(fitted)} are extrapolations")
     lines, worst, inside, judged = rows_text(v)
     print("\n".join(lines))
+    at_d = [s for s in store.stats() if s.json_metadata["rounds"] == s.json_metadata["d"]]
+    for f in planner.fit_stats(at_d).distances if at_d else ():
+        pred = next(r.predicted for r in v.rows if r.distance == f.distance and r.quantity != "suppression_factor")
+        print(f"  d={f.distance:>2}  at r = d only (as the sweep samples): {f.per_cycle.best:.3e} "
+              f"[{f.per_cycle.low:.3e}, {f.per_cycle.high:.3e}]  ln(/predicted) = {math.log(f.per_cycle.best / pred.best):+.3f}")
     lam = next((r for r in v.rows if r.quantity == "suppression_factor" and r.sampled is not None), None)
     if lam is not None:
         print(f"  Lambda over d = {', '.join(map(str, v.distances))}: predicted {lam.predicted.best:.3f} "
