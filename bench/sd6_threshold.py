@@ -16,7 +16,7 @@ Published (circuit-level depolarizing, CX circuits, matching decoders): 0.5% - 0
 Newman, Fowler, Broughton, "A fault-tolerant honeycomb memory", Quantum 5, 605 (2021), abstract;
 0.502% - 1.140% across circuits and decoders, Stephens, PRA 89, 022321 (2014), abstract.
 
-Run:  .venv/bin/python bench/sd6_threshold.py [--workers 2] [--errors 300]   (a few minutes)
+Run:  .venv/bin/python bench/sd6_threshold.py [--workers 2] [--errors 4000]   (a few minutes)
 Last line: ``sd6_crossing_percent=X [LOW, HIGH] published=0.5-0.7,0.502-1.140``.
 """
 
@@ -50,14 +50,14 @@ bases = ["z"]
 reach_distances = []
 """
 #: p in percent (the preset's p = 1% times the joint scale)
-GRID = (0.5, 0.6, 0.7, 0.8, 0.9, 1.0)
+GRID = (0.5, 0.6, 0.7, 0.8, 0.9, 1.0, 1.1)
 DISTANCES = (7, 9, 11)
 
 
 def args_of() -> argparse.Namespace:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--workers", type=int, default=2)
-    ap.add_argument("--errors", type=int, default=1000, help="errors per task")
+    ap.add_argument("--errors", type=int, default=4000, help="errors per task")
     ap.add_argument("--max-shots", type=int, default=2_000_000)
     ap.add_argument("--out", default=None, help="samples go here (default: a temporary directory)")
     return ap.parse_args()
