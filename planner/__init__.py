@@ -61,6 +61,8 @@ _HOME: dict[str, str] = {
     # sweep
     "BUDGETS": "planner.sweep", "StoppingRule": "planner.sweep", "SweepPlan": "planner.sweep",
     "plan_sweep": "planner.sweep",
+    "reach_tasks": "planner.sweep", "plan_with_reach": "planner.jobs.sweep",
+    "tasks_at_rounds": "planner.sweep",
     "SweepSummary": "planner.sampling", "run_sweep": "planner.sampling",
     "TargetedSummary": "planner.sampling", "run_targeted": "planner.jobs.sweep",
     "SampleStore": "planner.store",
@@ -82,6 +84,8 @@ _HOME: dict[str, str] = {
     "Verification": "planner.planning.verify", "run_verification": "planner.jobs.verify",
     "Comparison": "planner.planning.compare", "compare_answers": "planner.planning.compare",
     "compare_directories": "planner.jobs.compare",
+    "OperatingPoint": "planner.planning.verify", "operating_points": "planner.planning.verify",
+    "compare_predictions": "planner.planning.verify",
     "Review": "planner.jobs.review", "review": "planner.jobs.review",
     # spread of qubits
     "SpreadSummary": "planner.planning.spread", "draw_instances": "planner.planning.spread",
@@ -110,6 +114,7 @@ __all__ = [
     # sweep
     "BUDGETS", "OutDirSamples", "SampleStore", "StoppingRule", "SweepPlan", "SweepSummary",
     "TargetedSummary", "load_out_dir", "plan_sweep", "run_sweep", "run_targeted",
+    "plan_with_reach", "reach_tasks", "tasks_at_rounds",
     # fits
     "CONFIDENCE", "FitReport", "Interval", "ResponseModel", "fit_model", "fit_stats",
     "ModelError", "model_error",
@@ -125,6 +130,7 @@ __all__ = [
     # device data
     "Calibration", "Events", "ExcessFit", "count_events", "expectation", "fit_excess", "read_events",
     "run_calibration", "sample_events", "write_calibration", "write_events",
+    "OperatingPoint", "compare_predictions", "operating_points",
     # reports
     "write_all", "write_fits", "write_requirements", "write_roadmap", "write_sensitivity",
     "write_verification",

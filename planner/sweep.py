@@ -249,3 +249,71 @@ def resolved_tasks(tasks: Sequence[sinter.Task]) -> tuple[list[sinter.Task], lis
     if len(set(ids)) != len(ids):
         raise ValueError("two tasks have the same strong id (identical circuit, decoder and metadata)")
     return resolved, ids
+
+
+# ---------------------------------------------------------------------------------------------
+# reach: the joint axis sampled beyond the grid's distances when the goal lies far beyond them
+
+
+def reach_distances(target: Target, *, goal_distance: int) -> tuple[int, ...]:
+    """Distances sampled beyond ``sweep.distances`` on the joint axis (``sweep.reach_distances``).
+
+    "auto": d_max + 2 and d_max + 4, none beyond the goal distance, and only when the goal lies
+    more than one step (d_max + 2) beyond the grid: there the answers extrapolate Lambda over
+    several steps, and the largest distances say best how it drifts. A list: those distances
+    (the grid's own left out). ``[]``: none.
+
+    >>> from planner.config import EXAMPLE_TOML, parse_target
+    >>> example = parse_target(EXAMPLE_TOML.replace("[sweep]", "[sweep]\\nreach_distances = 'auto'"))
+    >>> reach_distances(example, goal_distance=21), reach_distances(example, goal_distance=7)
+    ((7, 9), ())
+    >>> reach_distances(example, goal_distance=9)
+    (7, 9)
+    """
+    grid = target.sweep.distances
+    spec = target.sweep.reach_distances
+    if spec != "auto":
+        return tuple(d for d in spec if d not in grid)
+    d_max = max(grid)
+    if goal_distance <= d_max + 2:
+        return ()
+    return tuple(d for d in (d_max + 2, d_max + 4) if d <= goal_distance)
+
+
+def reach_tasks(target: Target, *, goal_distance: int) -> list[sinter.Task]:
+    """Tasks at :func:`reach_distances` on every joint scale point (today's device included).
+
+    They carry the joint axis's own labels, so the fits put them on the same Lambda lines as the
+    grid's distances and the precision-targeted driver weighs their shots like any other task's.
+    Every joint point gets them: the joint-factor answer is read off the joint axis between its
+    points, and which points it falls between is known only after sampling (a plan must be the
+    same on every resume). Largest circuits first, as :func:`plan_sweep`.
+    """
+    distances = reach_distances(target, goal_distance=goal_distance)
+    tasks: list[sinter.Task] = []
+    if not distances:
+        return tasks
+    for point in scale_points(target):
+        if point.axis == JOINT:
+            tasks += tasks_for_scales(target, point.scales(), distances=distances, label=JOINT,
+                                      factor=point.factor)
+    tasks.sort(key=lambda t: -t.json_metadata["d"] * t.json_metadata["rounds"])
+    return tasks
+
+
+def tasks_at_rounds(target: Target, scales: Mapping[str, float], *, distance: int, rounds: Sequence[int],
+                    label: str, factor: float = 1.0) -> list[sinter.Task]:
+    """Tasks at one scale vector and distance, at each of ``rounds`` (every basis): the samples a
+    per-cycle rate free of the time boundaries is fitted from (``planner verify`` takes r = d, 3d)."""
+    try:
+        model = NoiseModel.from_target(target).with_scales(scales)
+    except ValueError as exc:
+        raise InputError(f"{target.source}: scales {dict(scales)} give an invalid noise model: {exc}") from None
+    tasks = []
+    for r in rounds:
+        for basis in bases_for(target):
+            circuit = build_memory_circuit(model, code=target.sweep.code, distance=distance, rounds=r, basis=basis)
+            meta = task_metadata(code=target.sweep.code, distance=distance, basis=basis, rounds=r,
+                                 axis=label, factor=factor, scales=scales)
+            tasks.append(sinter.Task(circuit=circuit, decoder=target.sweep.decoder, json_metadata=meta))
+    return tasks

@@ -16,23 +16,32 @@ if TYPE_CHECKING:
     from planner.planning.verify import Verification
 
 DirArg = Annotated[Path, typer.Argument(help="Out directory of a sweep; samples go to DIR/verify/.")]
+MaxCpuOpt = Annotated[float, typer.Option(
+    "--max-cpu", metavar="SECONDS", help="CPU seconds verify may spend (estimated and printed before "
+    "sampling): the distances above the fit are refused beyond it, the goal distance is sampled only "
+    "when it fits too. Default: 28800 (8 h, an overnight run on one machine).", rich_help_panel="Sampling")]
 
 
 def register(app: typer.Typer) -> None:
     app.command("verify", no_args_is_help=True,
-                help="Sample the joint-factor answer and the cheapest mix at the largest samplable "
-                "distances; print predicted vs sampled eps and Lambda (95% intervals) and write them to "
-                "DIR/verify.md, .csv and .json (and into report.html when DIR has one).")(verify_command)
+                help="Sample the joint-factor answer and the cheapest mix beyond the fit (d_max + 2, "
+                "d_max + 4, and the goal distance when its estimated CPU time fits --max-cpu; r = d and 3d "
+                "rounds each); print predicted vs sampled eps and Lambda (95% intervals), flag a prediction "
+                "that misses, and write them to DIR/verify.md, .csv and .json (and into report.html when "
+                "DIR has one).")(verify_command)
 
 
 @one_line_errors
 def verify_command(directory: DirArg, json: JsonOpt = False, workers: WorkersOpt = None,
-                   budget: BudgetOpt = "quick", quiet: QuietOpt = False) -> None:
+                   budget: BudgetOpt = "quick", quiet: QuietOpt = False,
+                   max_cpu: MaxCpuOpt = 8 * 3600.0) -> None:
     from planner.jobs.review import review
     from planner.jobs.verify import run_verification
     from planner.store import writable_dir
     from planner.planning import no_model_reason
-    from planner.reports.tables import json_text, render_verify
+    from planner.reports.tables import json_text
+    from planner.reports.terminal import print_table
+    from planner.reports.verifyreport import verify_tables
 
     reviewed = review(directory)
     target, answers = reviewed.target, reviewed.answers
@@ -42,8 +51,8 @@ def verify_command(directory: DirArg, json: JsonOpt = False, workers: WorkersOpt
         typer.echo(json_text({"verification": None, "note": note})) if json else stdout_console().print(note)
         return
     err = stderr_console(quiet=quiet or json)
-    result = run_verification(target, answers, out_dir=directory, budget=budget, workers=workers,
-                              console=err)
+    result = run_verification(target, answers, out_dir=directory, budget=budget or "quick", workers=workers,
+                              console=err, max_cpu_seconds=max_cpu)
     written = [p.name for p in _write_files(result, answers, target, directory)]
     own = [n for n in written if n.startswith("verify.")]
     err.print(f"wrote {', '.join(own)} under {directory}" + (
@@ -53,7 +62,9 @@ def verify_command(directory: DirArg, json: JsonOpt = False, workers: WorkersOpt
     if json:
         typer.echo(json_text(result.to_json()))
         return
-    render_verify(result, stdout_console())
+    out = stdout_console()
+    for table in verify_tables(result):
+        print_table(out, table)
 
 
 def _write_files(result: Verification, answers: Answers, target: Target, directory: Path) -> list[Path]:

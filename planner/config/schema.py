@@ -223,6 +223,24 @@ class Sweep(_Frozen):
                              f"({', '.join(COMPONENTS)}), or leave the key out for all of them")
         return v
 
+    #: distances sampled beyond ``distances`` on the joint axis (see
+    #: :func:`planner.sweep.reach_tasks`): "auto" (d_max + 2 and d_max + 4, up to the goal
+    #: distance, when that lies beyond d_max + 2), a list of odd distances, or [] (none: the
+    #: default, so a grid's tasks and their cost stay what the file lists)
+    reach_distances: Literal["auto"] | tuple[Integer, ...] = ()
+
+    @field_validator("reach_distances")
+    @classmethod
+    def _reach_distances(cls, v: str | tuple[int, ...]) -> str | tuple[int, ...]:
+        if isinstance(v, str):
+            return v
+        for d in v:
+            if (problem := distance_problem(d)) is not None:
+                raise ValueError(f"distance {problem}")
+        if len(set(v)) > MAX_DISTANCES:
+            raise ValueError(f"{len(set(v))} distances: at most {MAX_DISTANCES} are allowed")
+        return tuple(sorted(set(v)))
+
 
 class Rate(_Frozen):
     """Expected improvement of one component: the fraction of its error removed per year, or

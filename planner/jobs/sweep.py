@@ -30,7 +30,7 @@ from planner.sampling import (
 from planner.sampling import run_targeted as run_targeted_with
 from planner.sampling.targeted import MAX_CPU_SECONDS_PER_TASK, MAX_ROUNDS
 from planner.store import SampleStore, out_dir_lock, writable_dir
-from planner.sweep import StoppingRule, SweepPlan, plan_sweep
+from planner.sweep import StoppingRule, SweepPlan, plan_sweep, reach_tasks
 
 #: what a command says when Ctrl-C stopped a sweep
 INTERRUPTED = "interrupted: finished chunks are saved; run the same command again to resume"
@@ -112,12 +112,26 @@ def sample(plan: SweepPlan, *, target: Target, out_dir: Path, choice: SamplingCh
                      budget=plan.budget)
 
 
+def plan_with_reach(target: Target, budget: str = "quick") -> SweepPlan:
+    """The target's grid (:func:`planner.sweep.plan_sweep`) and, when its goal distance lies far
+    beyond the grid's distances, the joint axis at the distances between them
+    (:func:`planner.sweep.reach_tasks`, ``sweep.reach_distances``); largest circuits first."""
+    from planner.planning.ask import goal_distance
+
+    plan = plan_sweep(target, budget=budget)
+    extra = reach_tasks(target, goal_distance=goal_distance(target))
+    if not extra:
+        return plan
+    tasks = sorted([*plan.tasks, *extra], key=lambda t: -t.json_metadata["d"] * t.json_metadata["rounds"])
+    return dataclasses.replace(plan, tasks=tuple(tasks))
+
+
 def sweep_job(target: Target, *, out_dir: Path, choice: SamplingChoice,
               console: Console) -> SweepSummary | TargetedSummary:
     """The ``planner sweep`` job: plan the target's grid and sample it into ``out_dir``."""
     if out_dir.exists() and not out_dir.is_dir():
         raise InputError("exists and is not a directory", field="out_dir", source=str(out_dir))
-    plan = plan_sweep(target, budget=choice.budget or "quick")
+    plan = plan_with_reach(target, budget=choice.budget or "quick")
     # the samplers say what they sample once the out directory has been checked
     return sample(plan, target=target, out_dir=out_dir, choice=choice, console=console)
 
@@ -126,7 +140,7 @@ def prepare_main(target: Target, *, out_dir: Path, choice: SamplingChoice) -> tu
     """The sampling half of ``planner run``, before it samples: the plan and the out directory,
     checked and its lock tried before any chatter (a sweep sampling there is refused in one
     line). Then :func:`sample`."""
-    plan = plan_sweep(target, budget=choice.budget or "quick")
+    plan = plan_with_reach(target, budget=choice.budget or "quick")
     out_dir = writable_dir(out_dir)
     with out_dir_lock(out_dir):
         pass

@@ -152,8 +152,10 @@ def write_fits(answers_or_report: Answers | FitReport, out_dir: Path, *, target:
 
 def write_verification(v: Verification, out_dir: Path) -> list[Path]:
     """``verify.md``, ``verify.csv`` and ``verify.json``."""
-    md = to_markdown(text.verify_tables(v), heading="Verification on the simulator")
-    written = write_tables(out_dir, ("verify.md", md), [("verify.csv", verify_csv(v))])
+    from planner.reports import verifyreport
+
+    md = to_markdown(verifyreport.verify_tables(v), heading="Verification on the simulator")
+    written = write_tables(out_dir, ("verify.md", md), [("verify.csv", verifyreport.verify_csv(v))])
     doc = {"confidence": CONFIDENCE, **v.to_json()}
     return [*written, write_atomic(Path(out_dir) / "verify.json", json_file_text(doc))]
 

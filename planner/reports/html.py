@@ -18,7 +18,7 @@ from planner.config import Target
 from planner.fits import CONFIDENCE
 from planner.planning.model import not_sampled_note
 from planner.planning.uncertainty import replica_interval
-from planner.reports import text
+from planner.reports import text, verifyreport
 from planner.reports.formats import INTERVAL_NOTE, POINT_VALUE, estimate, num
 from planner.reports.table import Table
 
@@ -222,7 +222,7 @@ def _stage_sections(tables: Mapping[str, Sequence[Table]], plots_of: Callable[[s
     if verification is not None or verification_note:
         body.append("<h2>Verification on the simulator</h2>")
         body += [f"<p>{esc(verification_note)}</p>"] if verification_note else []
-        body += [table_html(t) for t in text.verify_tables(verification)] if verification is not None else []
+        body += [table_html(t) for t in verifyreport.verify_tables(verification)] if verification is not None else []
     for key, heading in (("roadmap", "Roadmap"), ("sensitivity", "Sensitivity")):
         if key in tables:
             body += [f"<h2>{heading}</h2>", *(table_html(t) for t in tables[key]), *plots_of(key)]

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import math
 import shutil
 from pathlib import Path
 
@@ -127,13 +128,17 @@ def test_bad_inputs_one_line_exit_2(tmp_path, out_dir):
         assert res.stdout == "" and len(res.stderr.strip().splitlines()) == 1, (args, res.stderr)
 
 
-def test_verify_prediction_overlaps_samples(out_dir):
+def test_verify_samples_beyond_the_fit_and_flags_misses(out_dir):
     doc = one_json(runner.invoke(app, ["verify", str(out_dir), "--json", "--workers", "2"]))
-    assert doc["distances"] == [3, 5]
+    assert doc["distances"] == [7, 9]  # above the fitted 3, 5 (the goal, d = 9, is the second)
     lam_rows = [r for r in doc["rows"] if r["quantity"] == "suppression_factor"]
     assert lam_rows and all(r["sampled"] is not None for r in lam_rows)
-    # predicted and sampled Lambda intervals (95% each) overlap at the proposed operating points
-    assert all(r["holds"] for r in lam_rows), lam_rows
+    # beyond the fit the model may miss (that is what verify is for): the verdict must say so
+    # consistently; the tiny chip sits near threshold, where sampled Lambda over d = 7, 9 came out
+    # about 10% below the model's (measured here, not published): allow 35%
+    assert doc["flagged"] == any(r["covered"] is False for r in doc["rows"])
+    assert doc["widen_factor"] >= 1 and (doc["widen_factor"] > 1) == doc["flagged"]
+    assert all(abs(math.log(r["sampled"]["best"] / r["predicted"]["best"])) < math.log(1.35) for r in lam_rows)
     assert (out_dir / "verify" / "samples").is_dir()
 
 

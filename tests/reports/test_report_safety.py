@@ -412,7 +412,7 @@ def fake_verify(monkeypatch):
     """`planner verify` without sampling: the comparison runs on counts drawn from the model."""
     import planner.jobs.verify as pv
 
-    def run(target, answers, *, out_dir, budget="quick", workers=None, console=None):
+    def run(target, answers, *, out_dir, budget="quick", workers=None, console=None, max_cpu_seconds=None):
         points = pv.operating_points(answers)
         distances = pv.verify_distances(answers.fits.sampled_distances)
         return pv.compare(answers, points, distances, verify_stats(answers, points, distances))
