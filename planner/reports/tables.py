@@ -62,6 +62,38 @@ def _task_table(report: FitReport) -> Table:
                           "errors", "eps/cycle"))
 
 
+def _basis_words(report: FitReport) -> str:
+    return ("the worse of the bases (goal.basis = \"worse\")" if report.goal_basis == "worse"
+            else "the mean of the bases (goal.basis = \"mean\")")
+
+
+def _distance_table(report: FitReport, *, joint_only: bool) -> Table:
+    """Per (point, distance): eps per cycle as the goal combines the bases (from the decay over
+    the round counts), each basis's own, and the single-round (r = d) estimate."""
+    dists = [p for p in report.distances if p.axis == "joint" or not joint_only]
+    bases = sorted({b for p in dists for b in p.bases})
+    goal = "worse" if report.goal_basis == "worse" else "mean"
+    rows = []
+    for p in dists:
+        cells = [interval(f.per_cycle) + (ZERO_ERRORS if f.zero_errors else "") if (f := p.basis_fit(b)) else "-"
+                 for b in bases]
+        rows.append([p.axis, num(p.factor), str(p.distance), ",".join(map(str, p.rounds)),
+                     interval(p.per_cycle) + (ZERO_ERRORS if p.zero_errors else ""), *cells,
+                     interval(p.per_cycle_single_round), p.method.replace("_", "-")])
+    smallest = min((min(p.rounds) // p.distance for p in dists if p.rounds), default=1)
+    single = "r=d only" if smallest == 1 else "fewest rounds"
+    notes = [f"eps/cycle ({goal}): what the goal and Lambda use, {_basis_words(report)}; each basis from "
+             "the fidelity decay 1 - 2 P_L(r) = C (1 - 2 eps)^r over the round counts (method 'decay'; "
+             "'single-round' where fewer than two round counts were usable: see fits.json per_basis notes)",
+             f"{single}: the same from the smallest round count alone, as a sweep at one round count measures it"]
+    if any(p.zero_errors for p in dists):
+        notes.append(f"{ZERO_ERRORS} no errors seen: the best value is the interval's upper end")
+    title = "Logical error per cycle per distance" + (" (joint axis)" if joint_only else "")
+    return Table(title=f"{title} ({CL})", left=(0, 3, 5 + len(bases) + 1), rows=rows, notes=tuple(notes),
+                 headers=("axis", "factor", "d", "rounds", f"eps/cycle ({goal})",
+                          *(f"{b.upper()} basis" for b in bases), single, "method"), fold_key=3)
+
+
 def _lambda_table(report: FitReport, *, tasks: bool) -> Table:
     any_note = any(lf.note for lf in report.lambdas)
     headers = ("axis", "factor", "distances", "Lambda", *(["ln A"] if tasks else []), *(["note"] if any_note else []))
@@ -76,11 +108,14 @@ def _lambda_table(report: FitReport, *, tasks: bool) -> Table:
 
 def render_fits(report: FitReport, console: Console, model: ResponseModel | None = None, *,
                 tasks: bool = True) -> None:
-    """The fits. ``tasks=True`` (``planner fit``): every task's eps per cycle, then Lambda per scale
-    point with ln A; ``tasks=False`` (``planner run``): Lambda per scale point only. Both end with
+    """The fits. ``tasks=True`` (``planner fit``): every task's eps per cycle, every (point,
+    distance)'s rate per basis, then Lambda per scale point with ln A; ``tasks=False``
+    (``planner run``): the joint axis's rates per basis and Lambda per scale point. Both end with
     the threshold and the model's fit quality."""
     if tasks:
         print_table(console, _task_table(report))
+    if report.distances:
+        print_table(console, _distance_table(report, joint_only=not tasks))
     print_table(console, _lambda_table(report, tasks=tasks))
     th = report.threshold
     say(console, "Threshold", "(joint factor where Lambda = 1):", interval(th.factor) + (";" if th.note else ""),
