@@ -56,6 +56,7 @@ _HOME: dict[str, str] = {
     # fits
     "CONFIDENCE": "planner.fits", "FitReport": "planner.fits", "Interval": "planner.fits",
     "fit_stats": "planner.fits",
+    "DecayFit": "planner.fits", "fit_decay": "planner.fits",
     "ResponseModel": "planner.planning", "fit_model": "planner.planning",
     # answers
     "Answers": "planner.planning", "answer_all": "planner.planning",
@@ -84,6 +85,7 @@ __all__ = [
     "TargetedSummary", "load_out_dir", "plan_sweep", "run_sweep", "run_targeted",
     # fits
     "CONFIDENCE", "FitReport", "Interval", "ResponseModel", "fit_model", "fit_stats",
+    "DecayFit", "fit_decay",
     # answers
     "Answers", "CalculatorAnswer", "MixAnswer", "Requirements", "Roadmap", "Sensitivity",
     "answer_all", "build_roadmap", "calculate", "cheapest_mix", "physical_qubits", "requirements",
