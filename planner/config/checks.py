@@ -82,7 +82,8 @@ def _size_problem(t: Target) -> Problem:
                 return "sweep.rounds", problem
             if "round_multiples" in sw.model_fields_set:
                 return "sweep.round_multiples", problem + f" (r = {r // d} x d)"
-            return "sweep.distances", problem + f" (round counts default to {r // d} x the distance)"
+            return "sweep.distances", problem + (f" (round counts default to d and 3d: {r} rounds here; "
+                                                 "round_multiples = [1] samples r = d only)")
     num_points = len(set(sw.joint_scales) | {1.0}) + len(t.components) * sum(
         1 for s in sw.component_scales if s != 1.0)
     num_rounds = len(sw.round_counts(sw.distances[0]))

@@ -128,16 +128,7 @@ def _method_text(distances: Sequence[DistanceFit]) -> str:
     return "single_round" if methods <= {"single_round"} else "mixed"
 
 
-def fit_stats(stats: Sequence[sinter.TaskStats], *, goal_basis: str = "mean") -> FitReport:
-    """All fits from one set of samples (summed per task, e.g. ``SampleStore(dir).stats()``);
-    ``goal_basis``: how the X and Z rates combine per distance, ``"mean"`` or ``"worse"``."""
-    tasks = fit_tasks(stats)
-    dists = fit_distances(tasks, combine=goal_basis)
-    groups: dict[tuple[str, float], list[DistanceFit]] = defaultdict(list)
-    for p in dists:
-        groups[(p.axis, p.factor)].append(p)
-    lambdas = tuple(fit_lambda(g) for g in groups.values())
-    lambdas = tuple(sorted(lambdas, key=lambda lf: (lf.axis != "joint", lf.axis, lf.factor)))
+def _notes(tasks: Sequence[TaskFit], dists: Sequence[DistanceFit], goal_basis: str) -> list[str]:
     notes = []
     if len({t.distance for t in tasks}) < 2:
         notes.append("a single distance was sampled: no Lambda can be fitted")
@@ -151,6 +142,20 @@ def fit_stats(stats: Sequence[sinter.TaskStats], *, goal_basis: str = "mean") ->
     if len({t.basis for t in tasks}) > 1:
         notes.append("per-distance rates and Lambda refer to "
                      + ("the worse of the X and Z bases" if goal_basis == "worse" else "the mean of the X and Z bases"))
+    return notes
+
+
+def fit_stats(stats: Sequence[sinter.TaskStats], *, goal_basis: str = "mean") -> FitReport:
+    """All fits from one set of samples (summed per task, e.g. ``SampleStore(dir).stats()``);
+    ``goal_basis``: how the X and Z rates combine per distance, ``"mean"`` or ``"worse"``."""
+    tasks = fit_tasks(stats)
+    dists = fit_distances(tasks, combine=goal_basis)
+    groups: dict[tuple[str, float], list[DistanceFit]] = defaultdict(list)
+    for p in dists:
+        groups[(p.axis, p.factor)].append(p)
+    lambdas = tuple(fit_lambda(g) for g in groups.values())
+    lambdas = tuple(sorted(lambdas, key=lambda lf: (lf.axis != "joint", lf.axis, lf.factor)))
+    notes = _notes(tasks, dists, goal_basis)
     return FitReport(goal_basis=goal_basis, tasks=tasks,
                      distances=tuple(sorted(dists, key=lambda p: (p.axis != "joint", p.axis, p.factor, p.distance))),
                      lambdas=lambdas, threshold=fit_threshold(lambdas), notes=tuple(notes))
