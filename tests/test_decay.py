@@ -14,6 +14,9 @@ project's choice.
 from __future__ import annotations
 
 
+import dataclasses
+import math
+
 import numpy as np
 import pytest
 import sinter
@@ -23,7 +26,9 @@ from planner.errors import InputError
 from planner.fits import (
     decay_rate,
     fit_decay,
+    fit_lambda,
     fit_stats,
+    log_sigma,
     per_cycle_interval,
     shot_errors,
 )
@@ -205,3 +210,69 @@ def test_bad_round_keys_exit_2_with_one_line(tmp_path, extra, key, words):
     assert len(lines) == 1 and lines[0].startswith("planner: error:"), result.stderr
     assert key in lines[0] and words in lines[0], lines[0]
     assert "Traceback" not in result.stderr
+
+
+# ---------------------------------------------------------------------------------------------
+# the precision allocator's delta method goes through the same decay fit
+
+
+def _grid_stats(seed: int = 1, shots: int = 300_000) -> list[sinter.TaskStats]:
+    """Joint points x d = 3, 5, 7 x r = d, 3d, Z basis, C = 0.99, eps_d = 0.1 (0.4 s)^((d+1)/2)."""
+    import hashlib
+    import json
+
+    from planner.config import COMPONENTS
+
+    rng = np.random.default_rng(seed)
+    out = []
+    for f in (0.5, 0.7, 1.0):
+        for d in (3, 5, 7):
+            eps = 0.1 * (0.4 * f) ** ((d + 1) / 2)
+            for r in (d, 3 * d):
+                meta = {"code": "surface", "d": d, "basis": "z", "rounds": r, "axis": "joint", "factor": f,
+                        "scales": {c: f for c in COMPONENTS}}
+                sid = hashlib.sha256(json.dumps(meta, sort_keys=True).encode()).hexdigest()
+                out.append(sinter.TaskStats(strong_id=sid, decoder="pymatching", json_metadata=meta, shots=shots,
+                                            errors=int(rng.binomial(shots, fidelity_shot_rate(eps, 0.99, r)))))
+    return out
+
+
+def test_precision_sensitivities_cover_both_round_counts_and_match_the_fit():
+    from planner.planning.precision import assess
+
+    stats = _grid_stats()
+    target = parse_target(EXAMPLE_TOML, source="example.toml")
+    a = assess(stats, target, precision=0.05, focus=("lambda_today",))
+    (answer,) = a.answers
+    report = a.report
+    assert all(p.method == "decay" for p in report.distances)
+    today = [i for i, s in enumerate(stats) if s.json_metadata["factor"] == 1.0]
+    assert all(a.sensitivity[0, i] > 0 for i in today)  # r = d and r = 3d tasks both matter
+    others = [i for i, s in enumerate(stats) if s.json_metadata["factor"] != 1.0]
+    assert all(a.sensitivity[0, i] == 0 for i in others)
+    # the delta method through the decay fit agrees with the fit's own interval (unwidened)
+    lf = report.today()
+    fit_rel = lf.suppression.relative_half_width / math.sqrt(max(lf.chi2_per_dof or 1.0, 1.0))
+    assert 0.75 < answer.relative_half_width / fit_rel < 1.33
+    # the true Lambda (1 / (0.4 s)) is inside the fit's interval at today's point
+    assert lf.suppression.low <= 1 / 0.4 <= lf.suppression.high
+
+
+def test_bootstrap_replicas_refit_through_the_decay():
+    """The replicas' Lambda today centres on the decay fit's, not on the single-round one (which
+    C = 0.99 biases): the bootstrap calls the same decay fit."""
+    from planner.planning.model import fit_model
+    from planner.planning.uncertainty import replica_models
+
+    stats = _grid_stats()
+    report = fit_stats(stats)
+    model = fit_model(report)
+    models = replica_models(stats, report, model, replicas=40, seed=3)
+    median = float(np.median([m.suppression(None) for m in models]))
+    assert median == pytest.approx(model.suppression(None), rel=0.03)
+    assert report.today().suppression.low <= median <= report.today().suppression.high
+    # the single-round Lambda (about 2.34 here against 2.49) lies outside that interval
+    single = fit_lambda([dataclasses.replace(p, per_cycle=p.per_cycle_single_round,
+                                             log_sigma=log_sigma(p.per_cycle_single_round, zero_errors=False))
+                         for p in report.distances if p.factor == 1.0])
+    assert single.suppression.best < report.today().suppression.low
