@@ -62,36 +62,52 @@ def _task_table(report: FitReport) -> Table:
                           "errors", "eps/cycle"))
 
 
+#: marks a basis rate that is a single round count's estimate, not the decay fit's
+SINGLE_ROUND_MARK = "‡"
+
+
 def _basis_words(report: FitReport) -> str:
     return ("the worse of the bases (goal.basis = \"worse\")" if report.goal_basis == "worse"
             else "the mean of the bases (goal.basis = \"mean\")")
 
 
-def _distance_table(report: FitReport, *, joint_only: bool) -> Table:
-    """Per (point, distance): eps per cycle as the goal combines the bases (from the decay over
-    the round counts), each basis's own, and the single-round (r = d) estimate."""
-    dists = [p for p in report.distances if p.axis == "joint" or not joint_only]
-    bases = sorted({b for p in dists for b in p.bases})
-    goal = "worse" if report.goal_basis == "worse" else "mean"
+def _distance_rows(p: object, *, single: bool) -> list[list[str]]:
+    """One row per basis, then the bases combined as the goal says (``"mean"`` or ``"worse"``)."""
+    def cells(iv: object, zero: bool, single_iv: object, method: str) -> list[str]:
+        mark = (ZERO_ERRORS if zero else "") + ("" if method == "decay" else SINGLE_ROUND_MARK)
+        return [interval(iv) + mark, *([interval(single_iv)] if single else [])]
+
+    rows = [[f.basis, *cells(f.per_cycle, f.zero_errors, f.single_round, f.method)] for f in p.per_basis]
+    rows.append([p.combine, *cells(p.per_cycle, p.zero_errors, p.per_cycle_single_round, p.method)])
+    return rows
+
+
+def _distance_table(report: FitReport, *, today_only: bool) -> Table:
+    """eps per cycle per (point, distance) and basis, from the decay over the round counts, with
+    the bases combined as the goal says; ``today_only`` (the compact view): joint x1 only, with
+    the single-round (r = d) estimate beside it."""
+    dists = [p for p in report.distances if not today_only or (p.axis == "joint" and p.factor == 1.0)]
     rows = []
     for p in dists:
-        cells = [interval(f.per_cycle) + (ZERO_ERRORS if f.zero_errors else "") if (f := p.basis_fit(b)) else "-"
-                 for b in bases]
-        rows.append([p.axis, num(p.factor), str(p.distance), ",".join(map(str, p.rounds)),
-                     interval(p.per_cycle) + (ZERO_ERRORS if p.zero_errors else ""), *cells,
-                     interval(p.per_cycle_single_round), p.method.replace("_", "-")])
+        lead = [str(p.distance), ",".join(map(str, p.rounds))] if today_only else [p.axis, num(p.factor), str(p.distance)]
+        rows += [[*lead, *r] for r in _distance_rows(p, single=today_only)]
     smallest = min((min(p.rounds) // p.distance for p in dists if p.rounds), default=1)
     single = "r=d only" if smallest == 1 else "fewest rounds"
-    notes = [f"eps/cycle ({goal}): what the goal and Lambda use, {_basis_words(report)}; each basis from "
-             "the fidelity decay 1 - 2 P_L(r) = C (1 - 2 eps)^r over the round counts (method 'decay'; "
-             "'single-round' where fewer than two round counts were usable: see fits.json per_basis notes)",
-             f"{single}: the same from the smallest round count alone, as a sweep at one round count measures it"]
+    notes = [f"eps/cycle from the fidelity decay 1 - 2 P_L(r) = C (1 - 2 eps)^r over the round counts, per "
+             f"basis; the '{report.goal_basis}' row is what the goal and Lambda use: {_basis_words(report)}"]
+    if today_only:
+        notes.append(f"{single}: the same from the smallest round count alone, as a sweep at one round count "
+                     "measures it (boundary effects included)")
+    if any(f.method != "decay" for p in dists for f in p.per_basis):
+        notes.append(f"{SINGLE_ROUND_MARK} a single round count's estimate: fewer than two usable round counts "
+                     "(zero errors, a rate near 1/2, or no decay seen; fits.json per_basis notes say which)")
     if any(p.zero_errors for p in dists):
         notes.append(f"{ZERO_ERRORS} no errors seen: the best value is the interval's upper end")
-    title = "Logical error per cycle per distance" + (" (joint axis)" if joint_only else "")
-    return Table(title=f"{title} ({CL})", left=(0, 3, 5 + len(bases) + 1), rows=rows, notes=tuple(notes),
-                 headers=("axis", "factor", "d", "rounds", f"eps/cycle ({goal})",
-                          *(f"{b.upper()} basis" for b in bases), single, "method"), fold_key=3)
+    if today_only:
+        return Table(title=f"Logical error per cycle today (joint x1) per basis ({CL})", rows=rows, notes=tuple(notes),
+                     headers=("d", "rounds", "basis", "eps/cycle", single), left=(1, 2))
+    return Table(title=f"Logical error per cycle per distance and basis ({CL})", rows=rows, notes=tuple(notes),
+                 headers=("axis", "factor", "d", "basis", "eps/cycle"), left=(0, 3))
 
 
 def _lambda_table(report: FitReport, *, tasks: bool) -> Table:
@@ -115,7 +131,7 @@ def render_fits(report: FitReport, console: Console, model: ResponseModel | None
     if tasks:
         print_table(console, _task_table(report))
     if report.distances:
-        print_table(console, _distance_table(report, joint_only=not tasks))
+        print_table(console, _distance_table(report, today_only=not tasks))
     print_table(console, _lambda_table(report, tasks=tasks))
     th = report.threshold
     say(console, "Threshold", "(joint factor where Lambda = 1):", interval(th.factor) + (";" if th.note else ""),
