@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import re
 
 import numpy as np
 import pytest
@@ -106,8 +107,9 @@ def test_fit_table_shows_each_basis_and_says_what_the_goal_refers_to(stats):
         con = Console(record=True, width=240)
         render_fits(fit_stats(stats, goal_basis=how), con)
         text = con.export_text()
-        assert f"eps/cycle ({how})" in text and "X basis" in text and "Z basis" in text
-        assert f'goal.basis = "{how}"' in text
+        for basis in ("x", "z", how):  # a row per basis and one for the goal's combination
+            assert re.search(rf"^joint\s+1\s+7\s+{basis}\s+\d", text, re.M), basis
+        assert f"the '{how}' row is what the goal and Lambda use" in text and f'goal.basis = "{how}"' in text
     csv = fits_distance_csv(fit_stats(stats, goal_basis="worse"))
     assert {"eps_x", "eps_z_low", "offset_x_high", "goal_basis", "eps_single_round"} <= set(csv.headers)
     assert len(csv.rows) == 9 and all(r[csv.headers.index("goal_basis")] == "worse" for r in csv.rows)

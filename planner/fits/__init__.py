@@ -42,11 +42,13 @@ import sinter
 from planner.fits.decay import (
     BASIS_COMBINATIONS,
     DecayFit,
+    basis_groups,
     combine_bases,
     combine_intervals,
     combine_values,
     decay_rate,
     distance_rate,
+    distance_rates,
     fit_decay,
     fit_distances,
     shot_errors,
@@ -78,11 +80,11 @@ from planner.fits.suppression import (
 
 __all__ = [
     "BASIS_COMBINATIONS", "CONFIDENCE", "LIKELIHOOD_FACTOR", "ZERO_ERROR_LOG_SIGMA", "Z_SCORE",
-    "DecayFit", "DistanceFit", "FitReport", "Interval", "LambdaFit", "LineFit", "TaskFit", "Threshold",
-    "combine_bases", "combine_intervals", "combine_values", "decay_rate", "distance_rate", "fit_decay",
-    "fit_distances", "fit_lambda", "fit_stats", "fit_tasks", "fit_threshold", "log_sigma",
-    "per_cycle_interval", "per_cycle_rate", "shot_errors", "shot_rate", "suppression_line",
-    "weighted_line", "zero_error_upper",
+    "DecayFit", "DistanceFit", "FitReport", "Interval", "LambdaFit", "LineFit", "TaskFit",
+    "Threshold", "basis_groups", "combine_bases", "combine_intervals", "combine_values",
+    "decay_rate", "distance_rate", "distance_rates", "fit_decay", "fit_distances", "fit_lambda",
+    "fit_stats", "fit_tasks", "fit_threshold", "log_sigma", "per_cycle_interval", "per_cycle_rate",
+    "shot_errors", "shot_rate", "suppression_line", "weighted_line", "zero_error_upper"
 ]
 
 

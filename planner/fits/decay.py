@@ -249,6 +249,30 @@ def distance_rate(bases: Sequence[Mapping[str, Any]], how: str = "mean") -> floa
     return combine_values([decay_rate(**b) for b in bases], how)
 
 
+def basis_groups(tasks: Sequence[TaskFit]) -> dict[tuple[str, float, int], list[list[int]]]:
+    """The task indices of each (axis, factor, distance): one list per basis (sorted by basis),
+    the input of :func:`distance_rates`."""
+    members: dict[tuple[str, float, int], dict[str, list[int]]] = defaultdict(lambda: defaultdict(list))
+    for i, t in enumerate(tasks):
+        members[(t.axis, t.factor, t.distance)][t.basis].append(i)
+    return {k: [v for _, v in sorted(by_basis.items())] for k, by_basis in members.items()}
+
+
+def distance_rates(groups: Mapping[Any, Sequence[Any]], *, rounds: Any, shot_error: Any, shots: Any,
+                   zero_errors: Any, how: str = "mean") -> dict[Any, float]:
+    """:func:`distance_rate` of many (point, distance) groups from flat per-task arrays:
+    ``groups[key]`` lists one index array per basis (the tasks of that basis's round counts).
+
+    >>> distance_rates({"a": [[0, 1]]}, rounds=[3, 9], shot_error=[0.02, 0.05], shots=[10**5] * 2,
+    ...                zero_errors=[False, False])["a"] == decay_rate(rounds=[3, 9], shot_error=[0.02, 0.05], shots=[10**5] * 2)
+    True
+    """
+    r, p, n, z = (np.asarray(x) for x in (rounds, shot_error, shots, zero_errors))
+    return {key: distance_rate([dict(rounds=r[ix], shot_error=p[ix], shots=n[ix], zero_errors=z[ix])
+                                for ix in (np.asarray(b, int) for b in bases)], how)
+            for key, bases in groups.items()}
+
+
 def fit_distances(tasks: Sequence[TaskFit], *, combine: str = "mean") -> tuple[DistanceFit, ...]:
     """Per (point, distance): each basis's decay fit over its round counts, combined by
     ``combine`` (``"mean"`` or ``"worse"``, what the goal refers to)."""

@@ -31,7 +31,8 @@ from planner.fits import (
     CONFIDENCE,
     FitReport,
     Interval,
-    distance_rate,
+    basis_groups,
+    distance_rates,
     fit_tasks,
     shot_errors,
     suppression_line,
@@ -77,7 +78,7 @@ class Uncertainty:
 def replica_models(stats: Sequence[sinter.TaskStats], report: FitReport, model: ResponseModel, *,
                    replicas: int = DEFAULT_REPLICAS, seed: int = 0) -> list[ResponseModel]:
     """Response models refitted on ``replicas`` parametric resamples of the counts: per replica,
-    each (point, distance)'s rate by :func:`~planner.fits.distance_rate` (the decay fit over the
+    each (point, distance)'s rate by :func:`~planner.fits.distance_rates` (the decay fit over the
     round counts of each basis, the bases combined as the fit combined them), then the Lambda
     lines and the response model as in the fit."""
     rng = np.random.default_rng(seed)
@@ -85,10 +86,7 @@ def replica_models(stats: Sequence[sinter.TaskStats], report: FitReport, model: 
     shots = np.array([t.shots for t in tasks])
     errors = np.array([t.errors for t in tasks])
     rounds = np.array([t.rounds for t in tasks], float)
-    members: dict[tuple[str, float, int], dict[str, list[int]]] = defaultdict(lambda: defaultdict(list))
-    for i, t in enumerate(tasks):
-        members[(t.axis, t.factor, t.distance)][t.basis].append(i)
-    groups = {k: [np.array(v) for _, v in sorted(by_basis.items())] for k, by_basis in members.items()}
+    groups = basis_groups(tasks)
     sig = {(p.axis, p.factor, p.distance): p.log_sigma for p in report.distances}
     points = [lf for lf in report.lambdas if lf.suppression is not None]
     base = ModelData.from_fits(report)
@@ -96,14 +94,10 @@ def replica_models(stats: Sequence[sinter.TaskStats], report: FitReport, model: 
     for _ in range(replicas):
         p = rng.beta(errors + 0.5, shots - errors + 0.5)
         hits = rng.binomial(shots, p)
-        rate = shot_errors(shots=shots, errors=hits)
-
-        def ln_eps(key: tuple[str, float, int]) -> float:
-            bases = [dict(rounds=rounds[ix], shot_error=rate[ix], shots=shots[ix], zero_errors=hits[ix] == 0)
-                     for ix in groups[key]]
-            return math.log(min(max(distance_rate(bases, report.goal_basis), 1e-300), 0.5))
-
-        lines = [suppression_line(lf.distances, [ln_eps((lf.axis, lf.factor, d)) for d in lf.distances],
+        eps = distance_rates(groups, rounds=rounds, shot_error=shot_errors(shots=shots, errors=hits), shots=shots,
+                             zero_errors=hits == 0, how=report.goal_basis)
+        lines = [suppression_line(lf.distances,
+                                  [math.log(min(max(eps[(lf.axis, lf.factor, d)], 1e-300), 0.5)) for d in lf.distances],
                                   [sig[(lf.axis, lf.factor, d)] for d in lf.distances]) for lf in points]
         data = dataclasses.replace(base, inv_lambda=np.exp([line.slope for line in lines]),
                                    ln_a=np.array([line.intercept for line in lines]))

@@ -82,6 +82,25 @@ def _distance_rows(p: object, *, single: bool) -> list[list[str]]:
     return rows
 
 
+def _single_header(dists: list) -> str:
+    smallest = min((min(p.rounds) // p.distance for p in dists if p.rounds), default=1)
+    return "r=d only" if smallest == 1 else "fewest rounds"
+
+
+def _distance_notes(report: FitReport, dists: list, *, single: str | None) -> list[str]:
+    notes = [f"eps/cycle from the fidelity decay 1 - 2 P_L(r) = C (1 - 2 eps)^r over the round counts, per "
+             f"basis; the '{report.goal_basis}' row is what the goal and Lambda use: {_basis_words(report)}"]
+    if single is not None:
+        notes.append(f"{single}: the same from the smallest round count alone, as a sweep at one round count "
+                     "measures it (boundary effects included)")
+    if any(f.method != "decay" for p in dists for f in p.per_basis):
+        notes.append(f"{SINGLE_ROUND_MARK} a single round count's estimate: fewer than two usable round counts "
+                     "(zero errors, a rate near 1/2, or no decay seen; fits.json per_basis notes say which)")
+    if any(p.zero_errors for p in dists):
+        notes.append(f"{ZERO_ERRORS} no errors seen: the best value is the interval's upper end")
+    return notes
+
+
 def _distance_table(report: FitReport, *, today_only: bool) -> Table:
     """eps per cycle per (point, distance) and basis, from the decay over the round counts, with
     the bases combined as the goal says; ``today_only`` (the compact view): joint x1 only, with
@@ -91,18 +110,8 @@ def _distance_table(report: FitReport, *, today_only: bool) -> Table:
     for p in dists:
         lead = [str(p.distance), ",".join(map(str, p.rounds))] if today_only else [p.axis, num(p.factor), str(p.distance)]
         rows += [[*lead, *r] for r in _distance_rows(p, single=today_only)]
-    smallest = min((min(p.rounds) // p.distance for p in dists if p.rounds), default=1)
-    single = "r=d only" if smallest == 1 else "fewest rounds"
-    notes = [f"eps/cycle from the fidelity decay 1 - 2 P_L(r) = C (1 - 2 eps)^r over the round counts, per "
-             f"basis; the '{report.goal_basis}' row is what the goal and Lambda use: {_basis_words(report)}"]
-    if today_only:
-        notes.append(f"{single}: the same from the smallest round count alone, as a sweep at one round count "
-                     "measures it (boundary effects included)")
-    if any(f.method != "decay" for p in dists for f in p.per_basis):
-        notes.append(f"{SINGLE_ROUND_MARK} a single round count's estimate: fewer than two usable round counts "
-                     "(zero errors, a rate near 1/2, or no decay seen; fits.json per_basis notes say which)")
-    if any(p.zero_errors for p in dists):
-        notes.append(f"{ZERO_ERRORS} no errors seen: the best value is the interval's upper end")
+    single = _single_header(dists)
+    notes = _distance_notes(report, dists, single=single if today_only else None)
     if today_only:
         return Table(title=f"Logical error per cycle today (joint x1) per basis ({CL})", rows=rows, notes=tuple(notes),
                      headers=("d", "rounds", "basis", "eps/cycle", single), left=(1, 2))
