@@ -70,6 +70,7 @@ _HOME: dict[str, str] = {
     # fits
     "CONFIDENCE": "planner.fits", "FitReport": "planner.fits", "Interval": "planner.fits",
     "fit_stats": "planner.fits",
+    "DecayFit": "planner.fits", "fit_decay": "planner.fits",
     "ResponseModel": "planner.planning", "fit_model": "planner.planning",
     "ModelError": "planner.planning", "model_error": "planner.planning",
     # answers
@@ -118,6 +119,7 @@ __all__ = [
     # fits
     "CONFIDENCE", "FitReport", "Interval", "ResponseModel", "fit_model", "fit_stats",
     "ModelError", "model_error",
+    "DecayFit", "fit_decay",
     # answers
     "Answers", "CalculatorAnswer", "MixAnswer", "Requirements", "Roadmap", "Sensitivity",
     "answer_all", "build_roadmap", "calculate", "cheapest_mix", "physical_qubits", "requirements",

@@ -1,4 +1,9 @@
-"""Expanding a target's grid (distances x bases x scale points) into sinter tasks.
+"""Expanding a target's grid (distances x round counts x bases x scale points) into sinter tasks.
+
+Each distance is sampled at every round count of ``sweep.round_counts(d)`` (r = d and r = 3d by
+default): the per-cycle rate comes from the fidelity decay between them
+(:mod:`planner.fits.decay`). The round count is part of the metadata, so tasks differing only in
+it have different strong ids.
 
 Scale points form one joint axis (every component times s) and one axis per component (that
 component times s, the others at 1). The joint point at s = 1 is today's device; component axes
@@ -89,7 +94,14 @@ def scale_points(target: Target) -> tuple[ScalePoint, ...]:
 
 
 def rounds_for(target: Target, distance: int) -> int:
-    return target.sweep.rounds if target.sweep.rounds is not None else distance
+    """The smallest round count sampled at ``distance`` (r = d by default): the one ``planner
+    circuit`` builds when no ``--rounds`` is given."""
+    return round_counts_for(target, distance)[0]
+
+
+def round_counts_for(target: Target, distance: int) -> tuple[int, ...]:
+    """Every round count sampled at ``distance``, smallest first (``sweep.rounds`` alone: that one)."""
+    return target.sweep.round_counts(distance)
 
 
 def bases_for(target: Target) -> tuple[str, ...]:
@@ -105,20 +117,21 @@ def task_metadata(*, code: str, distance: int, basis: str, rounds: int, axis: st
 
 def tasks_for_scales(target: Target, scales: Mapping[str, float], *, distances: Sequence[int],
                      label: str, factor: float = 1.0) -> list[sinter.Task]:
-    """Tasks at one scale vector (all bases, the given distances). ``label`` becomes the axis."""
+    """Tasks at one scale vector (all bases and round counts, the given distances). ``label``
+    becomes the axis."""
     try:
         model = NoiseModel.from_target(target).with_scales(scales)
     except ValueError as exc:
         raise InputError(f"{target.source}: scales {dict(scales)} give an invalid noise model: {exc}") from None
     tasks = []
     for d in distances:
-        for basis in bases_for(target):
-            r = rounds_for(target, d)
-            circuit = build_memory_circuit(model, code=target.sweep.code, distance=d, rounds=r, basis=basis)
-            meta = task_metadata(code=target.sweep.code, distance=d, basis=basis, rounds=r,
-                                 axis=label, factor=factor, scales=scales)
-            tasks.append(sinter.Task(circuit=circuit, json_metadata=meta,
-                                     **_leakage_task(target, meta, scales.get("leakage", 1.0))))
+        for r in round_counts_for(target, d):
+            for basis in bases_for(target):
+                circuit = build_memory_circuit(model, code=target.sweep.code, distance=d, rounds=r, basis=basis)
+                meta = task_metadata(code=target.sweep.code, distance=d, basis=basis, rounds=r,
+                                     axis=label, factor=factor, scales=scales)
+                tasks.append(sinter.Task(circuit=circuit, json_metadata=meta,
+                                         **_leakage_task(target, meta, scales.get("leakage", 1.0))))
     return tasks
 
 
@@ -196,14 +209,15 @@ def plan_sweep(target: Target, budget: str = "quick") -> SweepPlan:
 
 
 def task_label(meta: Any, *, with_code: bool = False) -> str:
-    """Short text naming a task: the scale axis times its factor, the distance, the basis (the
-    one form used by ``planner status``, the precision messages and the reports); ``with_code``
-    puts the code first. Metadata that is not a mapping is shown as it is.
+    """Short text naming a task: the scale axis times its factor, the distance, the basis and,
+    when it is not the distance, the round count (the one form used by ``planner status``, the
+    precision messages and the reports); ``with_code`` puts the code first. Metadata that is not
+    a mapping is shown as it is.
 
-    >>> task_label({"axis": "joint", "factor": 1.0, "d": 5, "basis": "x"})
+    >>> task_label({"axis": "joint", "factor": 1.0, "d": 5, "basis": "x", "rounds": 5})
     'joint ×1 d=5 x'
-    >>> task_label({"code": "surface", "axis": "gate_1q", "factor": 0.3, "d": 7, "basis": "z"}, with_code=True)
-    'surface gate_1q ×0.3 d=7 z'
+    >>> task_label({"code": "surface", "axis": "gate_1q", "factor": 0.3, "d": 7, "basis": "z", "rounds": 21}, with_code=True)
+    'surface gate_1q ×0.3 d=7 z r=21'
     """
     if not isinstance(meta, Mapping):
         return str(meta)
@@ -211,6 +225,8 @@ def task_label(meta: Any, *, with_code: bool = False) -> str:
     if isinstance(factor, int | float) and not isinstance(factor, bool):
         factor = f"{float(factor) + 0.0:g}"
     label = f"{meta.get('axis', '?')} ×{factor} d={meta.get('d', '?')} {meta.get('basis', '?')}"
+    if "rounds" in meta and meta.get("rounds") != meta.get("d"):
+        label += f" r={meta['rounds']}"
     return f"{meta.get('code', '?')} {label}" if with_code else label
 
 

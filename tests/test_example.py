@@ -23,7 +23,8 @@ def test_the_example_prints_the_headline_answers(tmp_path: Path) -> None:
                           capture_output=True, text=True, timeout=600, cwd=tmp_path)
     assert done.returncode == 0, done.stderr
     lines = done.stdout.splitlines()
-    assert lines[0].startswith("Marram-A (invented demo chip): 60 tasks, ")  # d = 3, 5 x 15 points x 2 bases
+    # d = 3, 5 x round counts d, 3d x 15 points x 2 bases
+    assert lines[0].startswith("Marram-A (invented demo chip): 120 tasks, ")
 
     lam = re.fullmatch(rf"Lambda today: {NUM} \[{NUM}, {NUM}\] \(95% interval\)", lines[1])
     assert lam, lines[1]

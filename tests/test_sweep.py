@@ -39,13 +39,14 @@ def test_scale_point_scales():
 
 def test_tasks_have_one_json_native_key_set_and_largest_first(target):
     plan = plan_sweep(target, budget="quick")
-    assert len(plan.tasks) == len(plan.points) * 2 * 2  # distances x bases
+    assert len(plan.tasks) == len(plan.points) * 2 * 2 * 2  # distances x round counts x bases
     sizes = [t.json_metadata["d"] * t.json_metadata["rounds"] for t in plan.tasks]
     assert sizes == sorted(sizes, reverse=True)
     for t in plan.tasks:
         assert tuple(t.json_metadata) == METADATA_KEYS
         assert json.loads(json.dumps(t.json_metadata)) == t.json_metadata
-        assert t.json_metadata["rounds"] == t.json_metadata["d"]
+        # default round counts: r = d and r = 3d
+        assert t.json_metadata["rounds"] in (t.json_metadata["d"], 3 * t.json_metadata["d"])
         # without [device.leakage] a task carries no leakage scale (strong ids as before it existed)
         assert set(t.json_metadata["scales"]) == set(COMPONENTS) - {"leakage"}
         assert t.decoder == "pymatching"

@@ -76,23 +76,32 @@ def _size_problem(t: Target) -> Problem:
     """Every circuit buildable on one machine, and the grid not too many tasks."""
     sw = t.sweep
     for d in sw.distances:
-        problem = size_problem(code=sw.code, distance=d, rounds=sw.rounds if sw.rounds is not None else d)
-        if problem is not None:
+        for r in sw.round_counts(d):
+            problem = size_problem(code=sw.code, distance=d, rounds=r)
+            if problem is None:
+                continue
             if sw.rounds is not None:
                 return "sweep.rounds", problem
-            return "sweep.distances", problem + " (rounds default to the distance)"
+            if "round_multiples" in sw.model_fields_set:
+                return "sweep.round_multiples", problem + f" (r = {r // d} x d)"
+            return "sweep.distances", problem + (f" (round counts default to d and 3d: {r} rounds here; "
+                                                 "round_multiples = [1] samples r = d only)")
     num_points = len(set(sw.joint_scales) | {1.0}) + len(t.components) * sum(
         1 for s in sw.component_scales if s != 1.0)
-    num_tasks = num_points * len(sw.distances) * (1 if sw.code == "repetition" else len(sw.bases))
+    num_rounds = len(sw.round_counts(sw.distances[0]))
+    num_tasks = num_points * len(sw.distances) * num_rounds * (1 if sw.code == "repetition" else len(sw.bases))
     if num_tasks > MAX_TASKS:
         return ("sweep", f"the grid has {num_tasks:,} tasks ({num_points} scale points x "
-                f"{len(sw.distances)} distances x bases): at most {MAX_TASKS:,} are allowed; use "
-                "fewer scale factors, components or distances")
+                f"{len(sw.distances)} distances x {num_rounds} round counts x bases): at most "
+                f"{MAX_TASKS:,} are allowed; use fewer scale factors, components, distances or round counts")
     return None
 
 
 def _sweep_problem(t: Target) -> Problem:
     sw = t.sweep
+    if sw.rounds is not None and sw.round_multiples is not None:
+        return ("sweep.round_multiples", "give either rounds (one fixed round count for every "
+                "distance) or round_multiples (round counts as multiples of d, e.g. [1, 3]), not both")
     if sw.code == "repetition" and "bases" in sw.model_fields_set and sw.bases != ("z",):
         return ("sweep.bases", "the repetition-code memory exists in basis 'z' only: set bases = "
                 "[\"z\"] or leave the key out")

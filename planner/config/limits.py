@@ -46,6 +46,8 @@ MAX_DETECTORS = 2**20
 #: Most distances, and most entries in each scale list, of one sweep.
 MAX_DISTANCES = 25
 MAX_SCALES = 64
+#: Most round counts per distance (``sweep.round_multiples``): a decay fit needs two or three.
+MAX_ROUND_COUNTS = 4
 #: Most tasks (scale points x distances x bases) in one sweep: planning builds every circuit
 #: up front and the manifest lists every task. A thorough grid has a few hundred.
 MAX_TASKS = 4000

@@ -27,6 +27,7 @@ from planner.config.limits import (
     MAX_DISTANCES,
     MAX_NAME_LENGTH,
     MAX_QUBITS,
+    MAX_ROUND_COUNTS,
     MAX_SCALES,
     MAX_START,
     MIN_START,
@@ -58,6 +59,11 @@ Number = Annotated[float, Strict(), Field(allow_inf_nan=False)]
 Integer = Annotated[int, Strict()]
 Probability = Annotated[Number, Field(ge=0.0, le=1.0)]
 Positive = Annotated[Number, Field(gt=0.0)]
+
+
+#: Round counts per distance when the target gives neither ``rounds`` nor ``round_multiples``:
+#: r = d and r = 3d (the per-cycle rate from the fidelity decay between them)
+DEFAULT_ROUND_MULTIPLES: tuple[int, ...] = (1, 3)
 
 
 #: The two-qubit gate each preset is defined with (Gidney, Newman, Fowler, Broughton, Quantum 5,
@@ -173,15 +179,23 @@ class Device(_Frozen):
 
 
 class Goal(_Frozen):
+    """The goal. ``basis`` says what the goal's logical error per cycle refers to at each
+    distance: ``"mean"`` (the mean of the X and Z bases) or ``"worse"`` (the larger of the two)."""
+
     logical_error_per_cycle: Annotated[Number, Field(gt=0.0, lt=0.5)]
     max_qubits: Annotated[Integer, Field(ge=5, le=MAX_QUBITS)] = 10_000
+    basis: Literal["mean", "worse"] = "mean"
 
 
 class Sweep(_Frozen):
     code: Literal["surface", "repetition"] = "surface"
     distances: tuple[Integer, ...]
     bases: tuple[Literal["z", "x"], ...] = ("z", "x")
+    #: one fixed round count for every distance (refused together with ``round_multiples``)
     rounds: Annotated[Integer, Field(ge=1)] | None = None
+    #: round counts as multiples of the distance (r = m d); with two or more the per-cycle rate
+    #: comes from the fidelity decay between them. Default [1, 3] when ``rounds`` is not given.
+    round_multiples: tuple[Annotated[Integer, Field(ge=1)], ...] | None = None
     joint_scales: tuple[Positive, ...] = (1.0,)
     component_scales: tuple[Positive, ...] = ()
     components: tuple[Literal[COMPONENTS], ...] | None = None  # type: ignore[valid-type]
@@ -199,6 +213,34 @@ class Sweep(_Frozen):
         if len(v) > MAX_DISTANCES:
             raise ValueError(f"{len(v)} distances: at most {MAX_DISTANCES} are allowed")
         return v
+
+    @field_validator("round_multiples")
+    @classmethod
+    def _round_multiples(cls, v: tuple[int, ...] | None) -> tuple[int, ...] | None:
+        if v is None:
+            return v
+        if not v:
+            raise ValueError("is empty: give 1 to 4 multiples of the distance, e.g. [1, 3]")
+        v = tuple(sorted(set(v)))
+        if len(v) > MAX_ROUND_COUNTS:
+            raise ValueError(f"{len(v)} round counts: at most {MAX_ROUND_COUNTS} are allowed")
+        return v
+
+    @property
+    def multiples(self) -> tuple[int, ...] | None:
+        """The round counts as multiples of d (None: one fixed ``rounds`` for every distance)."""
+        if self.rounds is not None:
+            return None
+        return self.round_multiples if self.round_multiples is not None else DEFAULT_ROUND_MULTIPLES
+
+    def round_counts(self, distance: int) -> tuple[int, ...]:
+        """The round counts sampled at ``distance``, smallest first.
+
+        >>> Sweep(distances=(3, 5)).round_counts(5), Sweep(distances=(3,), rounds=4).round_counts(3)
+        ((5, 15), (4,))
+        """
+        m = self.multiples
+        return (self.rounds,) if m is None else tuple(k * distance for k in m)
 
     @field_validator("bases")
     @classmethod

@@ -1,5 +1,6 @@
-"""Rates: the interval type, the logical error per cycle of each task and of each (scale point,
-distance) with the bases combined (see :mod:`planner.fits` for how things are combined).
+"""Rates: the interval type, the logical error per cycle of each task, and the type of a
+(scale point, distance) rate (computed by :mod:`planner.fits.decay`; see :mod:`planner.fits`
+for how things are combined).
 
 >>> round(LIKELIHOOD_FACTOR, 3)
 6.826
@@ -9,7 +10,6 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections import defaultdict
 from collections.abc import Sequence
 from typing import Any
 
@@ -103,7 +103,14 @@ class TaskFit:
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class DistanceFit:
-    """Logical error per cycle at one (scale point, distance), bases combined."""
+    """Logical error per cycle at one (scale point, distance), bases combined by ``combine``
+    (``"mean"`` or ``"worse"``: what the goal refers to).
+
+    ``per_cycle`` comes from the fidelity decay over the round counts where two or more were
+    sampled (:mod:`planner.fits.decay`); ``per_basis`` holds each basis's fit (with its
+    boundary offset C); ``per_cycle_single_round`` is the estimate from the smallest round count
+    alone (r = d by default), combined the same way.
+    """
 
     axis: str
     factor: float
@@ -114,11 +121,34 @@ class DistanceFit:
     zero_errors: bool
     #: log-space sigma used as this point's weight in the Lambda fit
     log_sigma: float
+    #: each basis's fit (a :class:`planner.fits.decay.DecayFit`), sorted by basis
+    per_basis: tuple[Any, ...] = ()
+    per_cycle_single_round: Interval | None = None
+    combine: str = "mean"
+
+    @property
+    def rounds(self) -> tuple[int, ...]:
+        """The round counts sampled (the union over the bases)."""
+        return tuple(sorted({r for f in self.per_basis for r in f.rounds}))
+
+    @property
+    def method(self) -> str:
+        """``"decay"`` when every basis's rate comes from the decay fit, else ``"single_round"``."""
+        if self.per_basis and all(f.method == "decay" for f in self.per_basis):
+            return "decay"
+        return "single_round"
+
+    def basis_fit(self, basis: str) -> Any:
+        return next((f for f in self.per_basis if f.basis == basis), None)
 
     def to_json(self) -> dict[str, Any]:
+        single = self.per_cycle_single_round
         return {"axis": self.axis, "factor": self.factor, "d": self.distance,
                 "bases": list(self.bases), "zero_errors": self.zero_errors,
-                "logical_error_per_cycle": self.per_cycle.to_json()}
+                "rounds": list(self.rounds), "method": self.method, "combine": self.combine,
+                "logical_error_per_cycle": self.per_cycle.to_json(),
+                "per_cycle_single_round": single.to_json() if single is not None else None,
+                "per_basis": {f.basis: f.to_json() for f in self.per_basis}}
 
 
 
@@ -191,7 +221,7 @@ def _meta(stat: sinter.TaskStats) -> dict[str, Any]:
 
 
 def fit_tasks(stats: Sequence[sinter.TaskStats]) -> tuple[TaskFit, ...]:
-    """Per-task fits, tasks with no kept shots skipped, sorted by (axis, factor, d, basis)."""
+    """Per-task fits, tasks with no kept shots skipped, sorted by (axis, factor, d, basis, rounds)."""
     out = []
     for s in stats:
         m = _meta(s)
@@ -204,7 +234,7 @@ def fit_tasks(stats: Sequence[sinter.TaskStats]) -> tuple[TaskFit, ...]:
                            code=str(m.get("code", "surface")), distance=int(m["d"]),
                            basis=str(m.get("basis", "z")), rounds=int(m["rounds"]),
                            shots=kept, errors=s.errors, shot_error=shot, per_cycle=cyc))
-    out.sort(key=lambda t: (t.axis != "joint", t.axis, t.factor, t.distance, t.basis))
+    out.sort(key=lambda t: (t.axis != "joint", t.axis, t.factor, t.distance, t.basis, t.rounds))
     return tuple(out)
 
 
@@ -213,32 +243,3 @@ def log_sigma(iv: Interval, *, zero_errors: bool) -> float:
     if zero_errors or iv.low <= 0 or iv.best <= 0:
         return ZERO_ERROR_LOG_SIGMA
     return max((math.log(iv.high) - math.log(iv.low)) / (2 * Z_SCORE), 1e-6)
-
-
-def combine_bases(group: Sequence[TaskFit]) -> tuple[Interval, bool]:
-    """Mean of the bases' per-cycle rates; each side widened by root-sum-square / n.
-
-    A zero-error basis enters at its upper end (so the combined best is an upper-leaning value).
-    """
-    n = len(group)
-    bests = [t.per_cycle.high if t.zero_errors else t.per_cycle.best for t in group]
-    best = sum(bests) / n
-    lo = math.sqrt(sum((b - t.per_cycle.low) ** 2 for b, t in zip(bests, group))) / n
-    hi = math.sqrt(sum((t.per_cycle.high - b) ** 2 for b, t in zip(bests, group))) / n
-    return Interval(low=max(best - lo, 0.0), best=best, high=best + hi), all(t.zero_errors for t in group)
-
-
-def fit_distances(tasks: Sequence[TaskFit]) -> tuple[DistanceFit, ...]:
-    groups: dict[tuple[str, float, int], list[TaskFit]] = defaultdict(list)
-    for t in tasks:
-        groups[(t.axis, t.factor, t.distance)].append(t)
-    out = []
-    for (axis, factor, d), group in groups.items():
-        iv, all_zero = combine_bases(group)
-        any_zero = any(t.zero_errors for t in group)
-        out.append(DistanceFit(axis=axis, factor=factor, scales=group[0].scales, distance=d,
-                               bases=tuple(t.basis for t in group), per_cycle=iv,
-                               zero_errors=any_zero, log_sigma=log_sigma(iv, zero_errors=all_zero)))
-    return tuple(out)
-
-

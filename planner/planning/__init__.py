@@ -81,7 +81,7 @@ def answer_all(target: Target, stats: Sequence[sinter.TaskStats], *, seed: int =
                qubits: int | None = None) -> Answers:
     """Fits, model, requirements, roadmap and sensitivity; with ``replicas > 0`` every figure
     derived from the model carries a bootstrap interval (``replicas=0``: best values only)."""
-    report = fit_stats(stats)
+    report = fit_stats(stats, goal_basis=target.goal.basis)
     if not report.tasks:
         raise InputError("no samples with shots to fit")
     if not any(lf.suppression is not None for lf in report.lambdas):

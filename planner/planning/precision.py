@@ -16,7 +16,9 @@ random under a correct model and constant under a wrong one, so more shots canno
 It is kept as ``fit_relative_half_width`` and reported in a note.)
 
 The delta method: per task, Var(ln P) = (1 - P) / (n P) for the shot error rate P from n shots;
-the per-cycle rate and the mean over bases carry it to ``y = ln eps`` at each (point, distance);
+the decay fit over the round counts of each basis and the bases' combination (the same functions
+as the fits, :func:`planner.fits.distance_rate`, differentiated by central differences) carry it
+to ``y = ln eps`` at each (point, distance), so round counts are tasks like distances are;
 the Jacobian of each answer with respect to every ``y`` is taken by central differences through
 the same weighted line fits and the same response-model fit (weights held at today's values,
 which makes the projection conservative). So ``V_a = sum_t S[a, t] / n_t`` with ``S`` returned
@@ -36,7 +38,7 @@ import sinter
 
 from planner.config import COMPONENTS, Target
 from planner.errors import InputError
-from planner.fits import Z_SCORE, FitReport, LambdaFit, fit_stats, per_cycle_rate, suppression_line
+from planner.fits import Z_SCORE, FitReport, LambdaFit, distance_rate, fit_stats, shot_errors, suppression_line
 from planner.planning.ask import choose_distance, solve_lever
 from planner.planning.model import ModelData, ResponseModel, fit_response
 
@@ -122,18 +124,38 @@ def check_focus(focus: Sequence[str]) -> tuple[str, ...]:
     return tuple(dict.fromkeys(focus))
 
 
-def _ln_rate_cost(stat: sinter.TaskStats) -> tuple[float, float]:
-    """(eps per cycle, c) with Var(ln eps) ~ c / shots for one task.
-
-    Var(ln P) = (1 - P) / (n P) (binomial); d ln eps / d ln P = P (1 - 2P)^(1/r - 1) / (r eps).
-    """
-    r = int(stat.json_metadata["rounds"])
+def _ln_rate_variance(stat: sinter.TaskStats) -> float:
+    """c with Var(ln P) ~ c / shots for one task's shot error rate P (binomial:
+    Var(ln P) = (1 - P) / (n P)), per shot run (discarded shots cost too)."""
     kept = stat.shots - stat.discards
     p = max(stat.errors, 1) / kept  # zero errors: the rate is below ~1/n; use that as the scale
     p = min(p, 0.49)
-    eps = per_cycle_rate(p, rounds=r)
-    g = p * (1 - 2 * p) ** (1 / r - 1) / (r * eps)
-    return eps, g * g * (1 - p) / p * (stat.shots / max(kept, 1))
+    return (1 - p) / p * (stat.shots / max(kept, 1))
+
+
+def _row_gradient(stats: Sequence[sinter.TaskStats], members: Sequence[int], combine: str) -> np.ndarray:
+    """d ln eps_row / d ln P_t for the row's tasks, by central differences through the same
+    decay fit and basis combination as the fits (:func:`planner.fits.distance_rate`)."""
+    kept = np.array([stats[t].shots - stats[t].discards for t in members], float)
+    errors = np.array([stats[t].errors for t in members], float)
+    rounds = np.array([int(stats[t].json_metadata["rounds"]) for t in members], float)
+    basis = [str(stats[t].json_metadata.get("basis", "z")) for t in members]
+    by_basis = [np.array([i for i, b in enumerate(basis) if b == name]) for name in sorted(set(basis))]
+    ln_p0 = np.log(shot_errors(shots=kept, errors=errors))
+
+    def y(ln_p: np.ndarray) -> float:
+        p = np.exp(ln_p)
+        parts = [dict(rounds=rounds[ix], shot_error=p[ix], shots=kept[ix], zero_errors=errors[ix] == 0)
+                 for ix in by_basis]
+        return math.log(max(distance_rate(parts, combine), 1e-300))
+
+    grad = np.zeros(len(members))
+    for i in range(len(members)):
+        up, down = ln_p0.copy(), ln_p0.copy()
+        up[i] += FD_STEP
+        down[i] -= FD_STEP
+        grad[i] = (y(up) - y(down)) / (2 * FD_STEP)
+    return grad
 
 
 def _joint_factor(model: ResponseModel, *, distance: int, eps_target: float) -> float | None:
@@ -169,12 +191,11 @@ def _rows(stats: Sequence[sinter.TaskStats], report: FitReport) -> _Rows:
     keys = [(lf.axis, lf.factor, d) for lf in lambdas for d in lf.distances]
     coef = np.zeros(len(stats))
     row_of_task = np.full(len(stats), -1)
-    for j, k in enumerate(keys):  # eps-weighted mean over the bases of a row
+    for j, k in enumerate(keys):  # the decay over round counts, the bases combined, per row
         members = group_tasks[k]
-        parts = [_ln_rate_cost(stats[t]) for t in members]
-        total = sum(e for e, _ in parts)
-        for t, (e, c) in zip(members, parts):
-            coef[t] = (e / total) ** 2 * c
+        grad = _row_gradient(stats, members, report.goal_basis)
+        for t, gt in zip(members, grad):
+            coef[t] = gt * gt * _ln_rate_variance(stats[t])
             row_of_task[t] = j
     starts = np.cumsum([0] + [len(lf.distances) for lf in lambdas])
     return _Rows(lambdas=lambdas, keys=keys, slices=[slice(a, b) for a, b in zip(starts, starts[1:])],
@@ -285,7 +306,7 @@ def assess(stats: Sequence[sinter.TaskStats], target: Target, *, precision: floa
     focus = check_focus(focus)
     stats = [s for s in stats if s.shots - s.discards > 0]
     ids = tuple(s.strong_id for s in stats)
-    report = fit_stats(stats)
+    report = fit_stats(stats, goal_basis=target.goal.basis)
     rows = _rows(stats, report)
     notes = [f"{lf.axis}@{lf.factor:g}: {lf.note}" for lf in report.lambdas if lf.suppression is None]
     if not rows.lambdas:

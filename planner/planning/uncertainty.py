@@ -31,10 +31,11 @@ from planner.fits import (
     CONFIDENCE,
     FitReport,
     Interval,
+    basis_groups,
+    distance_rates,
     fit_tasks,
-    per_cycle_rate,
+    shot_errors,
     suppression_line,
-    zero_error_upper,
 )
 from planner.planning.ask import (
     TINY,
@@ -89,27 +90,27 @@ class Uncertainty:
 
 def replica_models(stats: Sequence[sinter.TaskStats], report: FitReport, model: ResponseModel, *,
                    replicas: int = DEFAULT_REPLICAS, seed: int = 0) -> list[ResponseModel]:
-    """Response models refitted on ``replicas`` parametric resamples of the counts."""
+    """Response models refitted on ``replicas`` parametric resamples of the counts: per replica,
+    each (point, distance)'s rate by :func:`~planner.fits.distance_rates` (the decay fit over the
+    round counts of each basis, the bases combined as the fit combined them), then the Lambda
+    lines and the response model as in the fit."""
     rng = np.random.default_rng(seed)
     tasks = fit_tasks(stats)
     shots = np.array([t.shots for t in tasks])
     errors = np.array([t.errors for t in tasks])
     rounds = np.array([t.rounds for t in tasks], float)
-    group_of: dict[tuple[str, float, int], list[int]] = defaultdict(list)
-    for i, t in enumerate(tasks):
-        group_of[(t.axis, t.factor, t.distance)].append(i)
+    groups = basis_groups(tasks)
     sig = {(p.axis, p.factor, p.distance): p.log_sigma for p in report.distances}
     points = [lf for lf in report.lambdas if lf.suppression is not None]
     base = ModelData.from_fits(report)
-    upper0 = np.array([zero_error_upper(int(n)) for n in shots])
     out = []
     for _ in range(replicas):
         p = rng.beta(errors + 0.5, shots - errors + 0.5)
         hits = rng.binomial(shots, p)
-        cyc = np.minimum(per_cycle_rate(np.where(hits > 0, hits / shots, upper0), rounds=rounds), 0.5)
+        eps = distance_rates(groups, rounds=rounds, shot_error=shot_errors(shots=shots, errors=hits), shots=shots,
+                             zero_errors=hits == 0, how=report.goal_basis)
         lines = [suppression_line(lf.distances,
-                                  [math.log(max(float(cyc[group_of[(lf.axis, lf.factor, d)]].mean()), 1e-300))
-                                   for d in lf.distances],
+                                  [math.log(min(max(eps[(lf.axis, lf.factor, d)], 1e-300), 0.5)) for d in lf.distances],
                                   [sig[(lf.axis, lf.factor, d)] for d in lf.distances]) for lf in points]
         data = dataclasses.replace(base, inv_lambda=np.exp([line.slope for line in lines]),
                                    ln_a=np.array([line.intercept for line in lines]))

@@ -17,6 +17,7 @@ from planner.reports.formats import POINT_VALUE, halvings
 from planner.reports.table import INTEGER_COLUMNS, Table
 
 if TYPE_CHECKING:
+    from planner.fits import FitReport
     from planner.planning import FactorAnswer, MixAnswer, Requirements, Roadmap, Sensitivity
     from planner.planning.verify import Verification
 
@@ -36,6 +37,27 @@ VERIFY_COLUMNS = ("point", "quantity", "distance", "predicted", "predicted_low",
                   "sampled", "sampled_low", "sampled_high", "zero_errors", "holds")
 
 Row = tuple[Any, ...]
+#: per-distance fit columns before the per-basis ones (``eps_<basis>``, ``offset_<basis>`` with
+#: ``_low``/``_high``, ``method_<basis>``)
+DISTANCE_COLUMNS = ("axis", "factor", "distance", "rounds", "goal_basis", "method", "eps", "eps_low",
+                    "eps_high", "eps_single_round", "eps_single_round_low", "eps_single_round_high", "zero_errors")
+
+
+def fits_distance_csv(report: FitReport) -> Table:
+    """Per (point, distance): eps per cycle as the goal combines the bases, the single-round
+    estimate, and per basis its decay estimate, boundary offset C and method (raw values)."""
+    bases = sorted({b for p in report.distances for b in p.bases})
+    headers = (*DISTANCE_COLUMNS, *(f"{k}_{b}{end}" for b in bases for k in ("eps", "offset")
+                                    for end in ("", "_low", "_high")), *(f"method_{b}" for b in bases))
+    rows = []
+    for p in report.distances:
+        fits = [p.basis_fit(b) for b in bases]
+        rows.append((p.axis, p.factor, p.distance, " ".join(map(str, p.rounds)), report.goal_basis, p.method,
+                     *ends(p.per_cycle), *ends(p.per_cycle_single_round), p.zero_errors,
+                     *(x for f in fits for x in (*ends(f.per_cycle if f else None),
+                                                 *ends(f.offset if f else None))),
+                     *(f.method if f else "" for f in fits)))
+    return Table(title="Logical error per cycle per distance", headers=headers, rows=rows, key="fits_distances")
 
 
 def ends(iv: Interval | None, best: float | None = None) -> tuple[float | None, float | None, float | None]:

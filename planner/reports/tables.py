@@ -66,6 +66,63 @@ def _task_table(report: FitReport) -> Table:
                           "errors", "eps/cycle"))
 
 
+#: marks a basis rate that is a single round count's estimate, not the decay fit's
+SINGLE_ROUND_MARK = "‡"
+
+
+def _basis_words(report: FitReport) -> str:
+    return ("the worse of the bases (goal.basis = \"worse\")" if report.goal_basis == "worse"
+            else "the mean of the bases (goal.basis = \"mean\")")
+
+
+def _distance_rows(p: object, *, single: bool) -> list[list[str]]:
+    """One row per basis, then the bases combined as the goal says (``"mean"`` or ``"worse"``)."""
+    def cells(iv: object, zero: bool, single_iv: object, method: str) -> list[str]:
+        mark = (ZERO_ERRORS if zero else "") + ("" if method == "decay" else SINGLE_ROUND_MARK)
+        return [interval(iv) + mark, *([interval(single_iv)] if single else [])]
+
+    rows = [[f.basis, *cells(f.per_cycle, f.zero_errors, f.single_round, f.method)] for f in p.per_basis]
+    rows.append([p.combine, *cells(p.per_cycle, p.zero_errors, p.per_cycle_single_round, p.method)])
+    return rows
+
+
+def _single_header(dists: list) -> str:
+    smallest = min((min(p.rounds) // p.distance for p in dists if p.rounds), default=1)
+    return "r=d only" if smallest == 1 else "fewest rounds"
+
+
+def _distance_notes(report: FitReport, dists: list, *, single: str | None) -> list[str]:
+    notes = [f"eps/cycle from the fidelity decay 1 - 2 P_L(r) = C (1 - 2 eps)^r over the round counts, per "
+             f"basis; the '{report.goal_basis}' row is what the goal and Lambda use: {_basis_words(report)}"]
+    if single is not None:
+        notes.append(f"{single}: the same from the smallest round count alone, as a sweep at one round count "
+                     "measures it (boundary effects included)")
+    if any(f.method != "decay" for p in dists for f in p.per_basis):
+        notes.append(f"{SINGLE_ROUND_MARK} a single round count's estimate: fewer than two usable round counts "
+                     "(zero errors, a rate near 1/2, or no decay seen; fits.json per_basis notes say which)")
+    if any(p.zero_errors for p in dists):
+        notes.append(f"{ZERO_ERRORS} no errors seen: the best value is the interval's upper end")
+    return notes
+
+
+def _distance_table(report: FitReport, *, today_only: bool) -> Table:
+    """eps per cycle per (point, distance) and basis, from the decay over the round counts, with
+    the bases combined as the goal says; ``today_only`` (the compact view): joint x1 only, with
+    the single-round (r = d) estimate beside it."""
+    dists = [p for p in report.distances if not today_only or (p.axis == "joint" and p.factor == 1.0)]
+    rows = []
+    for p in dists:
+        lead = [str(p.distance), ",".join(map(str, p.rounds))] if today_only else [p.axis, num(p.factor), str(p.distance)]
+        rows += [[*lead, *r] for r in _distance_rows(p, single=today_only)]
+    single = _single_header(dists)
+    notes = _distance_notes(report, dists, single=single if today_only else None)
+    if today_only:
+        return Table(title=f"Logical error per cycle today (joint x1) per basis ({CL})", rows=rows, notes=tuple(notes),
+                     headers=("d", "rounds", "basis", "eps/cycle", single), left=(1, 2))
+    return Table(title=f"Logical error per cycle per distance and basis ({CL})", rows=rows, notes=tuple(notes),
+                 headers=("axis", "factor", "d", "basis", "eps/cycle"), left=(0, 3))
+
+
 def _lambda_table(report: FitReport, *, tasks: bool) -> Table:
     any_note = any(lf.note for lf in report.lambdas)
     headers = ("axis", "factor", "distances", "Lambda", *(["ln A"] if tasks else []), *(["note"] if any_note else []))
@@ -80,11 +137,14 @@ def _lambda_table(report: FitReport, *, tasks: bool) -> Table:
 
 def render_fits(report: FitReport, console: Console, model: ResponseModel | None = None, *,
                 tasks: bool = True) -> None:
-    """The fits. ``tasks=True`` (``planner fit``): every task's eps per cycle, then Lambda per scale
-    point with ln A; ``tasks=False`` (``planner run``): Lambda per scale point only. Both end with
+    """The fits. ``tasks=True`` (``planner fit``): every task's eps per cycle, every (point,
+    distance)'s rate per basis, then Lambda per scale point with ln A; ``tasks=False``
+    (``planner run``): the joint axis's rates per basis and Lambda per scale point. Both end with
     the threshold and the model's fit quality."""
     if tasks:
         print_table(console, _task_table(report))
+    if report.distances:
+        print_table(console, _distance_table(report, today_only=not tasks))
     print_table(console, _lambda_table(report, tasks=tasks))
     th = report.threshold
     say(console, "Threshold", "(joint factor where Lambda = 1):", interval(th.factor) + (";" if th.note else ""),

@@ -139,8 +139,13 @@ def test_the_largest_realistic_grid_is_accepted() -> None:
     # d = 51 with a few hundred rounds is what a hardware team may ask for: within the limits
     t = parse_target(edited("distances = [3, 5]", "distances = [3, 51]\nrounds = 300"))
     assert t.sweep.distances == (3, 51) and t.sweep.rounds == 300
-    t = parse_target(edited("distances = [3, 5]", f"distances = [3, {MAX_DISTANCE}]"))
-    assert max(t.sweep.distances) == MAX_DISTANCE  # rounds default to the distance: still allowed
+    # round counts default to d and 3d: the 3d circuits bound the distance (d = 69 fits)
+    t = parse_target(edited("distances = [3, 5]", "distances = [3, 69]"))
+    assert t.sweep.round_counts(69) == (69, 207)
+    with pytest.raises(InputError, match=r"sweep\.distances: d=101 with 303 rounds .*round_multiples = \[1\]"):
+        parse_target(edited("distances = [3, 5]", f"distances = [3, {MAX_DISTANCE}]"))
+    t = parse_target(edited("distances = [3, 5]", f"distances = [3, {MAX_DISTANCE}]\nround_multiples = [1]"))
+    assert max(t.sweep.distances) == MAX_DISTANCE  # r = d only: still allowed
 
 
 @pytest.mark.parametrize(("code", "distance", "rounds", "basis"),

@@ -64,7 +64,8 @@ def one_json(res) -> dict:
 
 def test_fit_json(out_dir):
     doc = one_json(runner.invoke(app, ["fit", str(out_dir), "--json"]))
-    assert doc["confidence"] == 0.95 and len(doc["tasks"]) == 8
+    assert doc["confidence"] == 0.95 and len(doc["tasks"]) == 16  # round counts d and 3d
+    assert {t["rounds"] // t["d"] for t in doc["tasks"]} == {1, 3} and doc["goal_basis"] == "mean"
     today = next(x for x in doc["lambda"] if x["axis"] == "joint" and x["factor"] == 1.0)
     lam = today["suppression_factor"]
     assert lam["low"] < lam["best"] < lam["high"]

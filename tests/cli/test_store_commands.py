@@ -52,7 +52,7 @@ def test_sweep_writes_manifest_target_copy_and_status_matches_sinter(swept) -> N
     assert set(manifest["versions"]) == {"stim", "sinter", "pymatching"}
     assert manifest["budget"]["name"] == "quick"
     doc = _status(out)
-    assert doc["totals"]["tasks"] == 4 == doc["totals"]["done"]
+    assert doc["totals"]["tasks"] == 8 == doc["totals"]["done"]  # 2 d x 2 points x round counts d, 3d
     shards = sorted((out / "samples").glob("*.csv"))
     theirs = {s.strong_id: (s.shots, s.errors) for s in sinter.read_stats_from_csv_files(*shards)}
     ours = {t["strong_id"]: (t["shots"], t["errors"]) for t in doc["tasks"]}
@@ -77,7 +77,7 @@ def test_rerun_samples_nothing_and_says_so(swept) -> None:
 def test_status_table(swept) -> None:
     _, out = swept
     res = runner.invoke(app, ["status", str(out)])
-    assert res.exit_code == 0 and "4/4 tasks done" in res.stdout and "budget 'quick'" in res.stdout
+    assert res.exit_code == 0 and "8/8 tasks done" in res.stdout and "budget 'quick'" in res.stdout
 
 
 def test_changed_target_is_refused_and_samples_untouched(swept, tmp_path: Path) -> None:
@@ -100,14 +100,14 @@ def test_shards_then_merge_twice(tmp_path: Path) -> None:
         assert [p.name for p in (out / "samples").glob("*.csv")] == [f"shard-{k}-of-2.csv"]
     sa, sb = _status(a), _status(b)
     sampled = lambda doc: {t["strong_id"]: t["shots"] for t in doc["tasks"] if t["shots"]}  # noqa: E731
-    assert not set(sampled(sa)) & set(sampled(sb)) and len(sampled(sa) | sampled(sb)) == 4
+    assert not set(sampled(sa)) & set(sampled(sb)) and len(sampled(sa) | sampled(sb)) == 8
     for _ in range(2):  # merging twice must not double count
         res = runner.invoke(app, ["merge", str(a), str(b), "--out", str(c)])
         assert res.exit_code == 0, res.stderr
     assert "0 new chunks" in res.stderr
     sc = _status(c)
     assert sampled(sc) == sampled(sa) | sampled(sb)
-    assert sc["totals"]["done"] == 4
+    assert sc["totals"]["done"] == 8
     other = _target(tmp_path, p=0.04, name="other.toml")
     d = tmp_path / "d"
     assert runner.invoke(app, ["sweep", str(other), "--out", str(d), "--quiet"]).exit_code == 0

@@ -195,7 +195,9 @@ def test_detailed_fits_list_every_task(answers):
     check_layout(text, 80)
     assert "per task" in text and "ln A" in text
     n_rows = sum(1 for line in text.splitlines() if re.match(r"^(joint|gate_|readout|reset|idle)", line))
-    assert n_rows == len(answers.fits.tasks) + len(answers.fits.lambdas)
+    # per task, per (point, distance) one row per basis and one for the bases combined, per Lambda
+    per_distance = sum(len(p.per_basis) + 1 for p in answers.fits.distances)
+    assert n_rows == len(answers.fits.tasks) + per_distance + len(answers.fits.lambdas)
 
 
 def test_extrapolated_roadmap_rows_are_marked():
