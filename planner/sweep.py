@@ -331,5 +331,6 @@ def tasks_at_rounds(target: Target, scales: Mapping[str, float], *, distance: in
             circuit = build_memory_circuit(model, code=target.sweep.code, distance=distance, rounds=r, basis=basis)
             meta = task_metadata(code=target.sweep.code, distance=distance, basis=basis, rounds=r,
                                  axis=label, factor=factor, scales=scales)
-            tasks.append(sinter.Task(circuit=circuit, decoder=target.sweep.decoder, json_metadata=meta))
+            tasks.append(sinter.Task(circuit=circuit, json_metadata=meta,
+                                     **_leakage_task(target, meta, scales.get("leakage", 1.0))))
     return tasks

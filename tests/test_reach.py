@@ -45,7 +45,8 @@ def test_reach_tasks_are_on_every_joint_point_with_the_grid_labels():
     assert {m["d"] for m in metas} == {7, 9}
     assert {m["axis"] for m in metas} == {"joint"}
     assert sorted({m["factor"] for m in metas}) == [0.5, 1.0]  # today's device and the other joint point
-    assert len(tasks) == 2 * 2  # 2 distances x 2 joint points x 1 basis (repetition: z only)
+    # 2 distances x 2 joint points x 2 round counts (r = d, 3d) x 1 basis (repetition: z only)
+    assert len(tasks) == 2 * 2 * 2
     assert set(metas[0]) == {"code", "d", "basis", "rounds", "axis", "factor", "scales"}
     assert reach_tasks(t, goal_distance=7) == []
 
@@ -57,7 +58,7 @@ def test_plan_with_reach_adds_tasks_only_when_the_goal_distance_is_far():
     assert plan_with_reach(near).tasks == plan_sweep(near).tasks
     grid, with_reach = plan_sweep(far).tasks, plan_with_reach(far).tasks
     extra = [t.json_metadata for t in with_reach if t.json_metadata["d"] not in (3, 5)]
-    assert len(with_reach) == len(grid) + 4 and {m["d"] for m in extra} == {7, 9}
+    assert len(with_reach) == len(grid) + 8 and {m["d"] for m in extra} == {7, 9}
     # largest circuits first
     sizes = [t.json_metadata["d"] * t.json_metadata["rounds"] for t in with_reach]
     assert sizes == sorted(sizes, reverse=True)

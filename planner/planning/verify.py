@@ -298,14 +298,16 @@ def _same_scales(a: dict[str, float], b: dict[str, float]) -> bool:
                for c in COMPONENTS if c in a)
 
 
-def _sampled_at(stats: Sequence[sinter.TaskStats], points: Sequence[OperatingPoint]) -> FitReport | None:
-    """Fits of the samples taken at ``points`` (a task of another point or label is left out)."""
+def _sampled_at(stats: Sequence[sinter.TaskStats], points: Sequence[OperatingPoint], *,
+                goal_basis: str = "mean") -> FitReport | None:
+    """Fits of the samples taken at ``points`` (a task of another point or label is left out),
+    the bases combined as the goal says (``goal_basis``), as the answers' own fits were."""
     def at_a_point(meta: Any) -> bool:
         return isinstance(meta, dict) and any(
             meta.get("axis") == p.label and _same_scales(meta.get("scales", {}), p.scales) for p in points)
 
     keep = [s for s in stats if at_a_point(s.json_metadata)]
-    return fit_stats(keep) if keep else None
+    return fit_stats(keep, goal_basis=goal_basis) if keep else None
 
 
 def _eps_row(answers: Any, point: OperatingPoint, d: int, report: FitReport | None) -> VerifyRow:
@@ -344,7 +346,7 @@ def compare(answers: Any, points: Sequence[OperatingPoint], distances: Sequence[
     distance; a distance of ``cpu`` that was not sampled is left out (its estimate says why)."""
     skipped = {c.distance for c in cpu if not c.sampled}
     distances = tuple(d for d in distances if d not in skipped)
-    report = _sampled_at(stats, points)
+    report = _sampled_at(stats, points, goal_basis=getattr(answers.fits, "goal_basis", "mean"))
     rows = [row for p in points for row in _rows_at(answers, p, distances, report)]
     notes = [] if points else ["no reachable operating point to verify"]
     if len(distances) < 2:

@@ -276,7 +276,9 @@ def device_difference(old: Mapping[str, Any], new: Mapping[str, Any]) -> str | N
     'device.errors.gate_2q 0.004 vs 0.005'
     """
     a, b = _flat(old), _flat(new)
-    keys = [k for k in dict.fromkeys([*a, *b]) if a.get(k, "absent") != b.get(k, "absent")]
+    # a key one side lacks and the other holds as null is the same device (a section added to
+    # the target format later, at its default)
+    keys = [k for k in dict.fromkeys([*a, *b]) if a.get(k) != b.get(k)]
     if not keys:
         return None
     shown = [f"{k} {a.get(k, 'absent')} vs {b.get(k, 'absent')}" for k in keys[:4]]

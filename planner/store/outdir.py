@@ -6,6 +6,7 @@ tasks).
 from __future__ import annotations
 
 import contextlib
+import dataclasses
 import hashlib
 import os
 from collections.abc import Callable, Iterator, Sequence
@@ -111,6 +112,8 @@ def prepare_out_dir(out_dir: Path, *, target_bytes: bytes, manifest: Manifest,
     """
     out_dir = writable_dir(Path(out_dir))
     old = read_manifest(out_dir)
+    if old is not None and old.device is None and manifest.device is not None:
+        old = dataclasses.replace(old, device=_device_of_copy(out_dir))
     if old is not None:
         diff = identity_difference(old, manifest)
         if diff is None and old.device is None and old.strong_ids != manifest.strong_ids:
@@ -134,6 +137,17 @@ def prepare_out_dir(out_dir: Path, *, target_bytes: bytes, manifest: Manifest,
     write_target_copy(out_dir, target_bytes, replace=old is not None)
     write_manifest(out_dir, manifest)
     return manifest
+
+
+def _device_of_copy(out_dir: Path) -> dict | None:
+    """The device identity of an older out directory (its manifest predates the record) from its
+    target copy, so that its sweep can grow too; None when the copy cannot be read."""
+    from planner.config import load_target
+
+    try:
+        return device_identity(load_target(Path(out_dir) / TARGET_COPY))
+    except (InputError, OSError):
+        return None
 
 
 def write_target_copy(out_dir: Path, target_bytes: bytes, *, replace: bool = False) -> None:
