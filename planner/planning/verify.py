@@ -310,11 +310,26 @@ def _sampled_at(stats: Sequence[sinter.TaskStats], points: Sequence[OperatingPoi
     return fit_stats(keep, goal_basis=goal_basis) if keep else None
 
 
+def _prediction(answers: Any, key: str, quantity: Any) -> Interval:
+    """``quantity(model)`` on the answers' model, with the interval every answer carries: the
+    bootstrap's (sampling) combined with the model-form part (the window models' spread and the
+    misfit; :func:`planner.planning.modelerror.combine_parts`) when the answers have it."""
+    from planner.planning.modelerror import combine_parts
+
+    unc = answers.uncertainty
+    models = unc.models if unc else ()
+    best = quantity(answers.model)
+    pred = _predicted(models, best, [quantity(m) for m in models])
+    me = getattr(unc, "model_error", None)
+    if me is None:
+        return pred
+    combined, _, _ = combine_parts(key, best, pred, [quantity(w) for w in me.window_models.values()], me.inflation)
+    return combined
+
+
 def _eps_row(answers: Any, point: OperatingPoint, d: int, report: FitReport | None) -> VerifyRow:
     """Predicted vs sampled eps per cycle at one point and distance."""
-    models = answers.uncertainty.models if answers.uncertainty else ()
-    best = answers.model.logical_error_per_cycle(point.scales, d)
-    pred = _predicted(models, best, [m.logical_error_per_cycle(point.scales, d) for m in models])
+    pred = _prediction(answers, "today_eps", lambda m: m.logical_error_per_cycle(point.scales, d))
     got = next((x for x in (report.distances if report else ()) if x.axis == point.label and x.distance == d),
                None)
     return VerifyRow(label=point.label, quantity="logical_error_per_cycle", distance=d, predicted=pred,
@@ -323,9 +338,7 @@ def _eps_row(answers: Any, point: OperatingPoint, d: int, report: FitReport | No
 
 def _lambda_row(answers: Any, point: OperatingPoint, report: FitReport | None) -> VerifyRow:
     """Predicted vs sampled Lambda at one point."""
-    models = answers.uncertainty.models if answers.uncertainty else ()
-    best = answers.model.suppression(point.scales)
-    pred = _predicted(models, best, [m.suppression(point.scales) for m in models])
+    pred = _prediction(answers, "lambda_today", lambda m: m.suppression(point.scales))
     lf = next((x for x in (report.lambdas if report else ()) if x.axis == point.label), None)
     return VerifyRow(label=point.label, quantity="suppression_factor", distance=None, predicted=pred,
                      sampled=lf.suppression if lf else None, zero_errors=bool(lf and lf.uses_zero_error_points))

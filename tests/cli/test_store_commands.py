@@ -85,7 +85,7 @@ def test_changed_target_is_refused_and_samples_untouched(swept, tmp_path: Path) 
     before = _status(out)["totals"]
     changed = _target(tmp_path, p=0.021, name=target.name)
     line = _one_line_error(runner.invoke(app, ["sweep", str(changed), "--out", str(out)]))
-    assert "target file hash" in line and "use another --out or delete" in line
+    assert "the device changed: device.preset.p 0.02 vs 0.021" in line and "use another --out or delete" in line
     assert _status(out)["totals"] == before
 
 
