@@ -1,4 +1,6 @@
-# make demo : set up .venv (if needed) and run the main job on the shipped demo target
+# make demo : set up .venv (if needed) and run the main job on the shipped demo target, then the
+#             calibration loop on the invented hidden device (measured data -> calibrated model
+#             -> planning answers)
 # make test : set up .venv (if needed) and run the test suite (all of it: what CI runs)
 # make test-fast : the everyday loop: every test that does not sample with sinter (-m "not slow")
 # make cluster-check : (root, Debian) a real single-node Slurm, the README's dask-jobqueue recipe
@@ -27,6 +29,7 @@ install: $(STAMP)
 
 demo: $(STAMP)
 	$(BIN)/planner run targets/demo.toml --budget quick
+	bash scripts/demo_loop.sh $(BIN)/planner
 
 test: $(STAMP)
 	$(BIN)/python -m pytest -q
