@@ -173,10 +173,13 @@ def logical_pace(eps: float, cycle_ns: float) -> LogicalPace:
     >>> p = logical_pace(1e-6, 1000.0)
     >>> round(p.per_second, 3), round(p.mean_seconds_between, 3)
     (1.0, 1.0)
+    >>> logical_pace(0.6, 1000.0).mean_seconds_between > 0  # beyond 1/2: finite, never an error
+    True
     """
     if not (cycle_ns > 0 and math.isfinite(cycle_ns)):
         raise ValueError(f"cycle duration must be positive and finite, got {cycle_ns}")
-    rate = -math.log1p(-2 * min(eps, 0.5 - 1e-300)) / 2 / (cycle_ns * 1e-9)
+    # at eps -> 1/2 every cycle randomises the logical qubit: the rate is capped there (finite)
+    rate = -math.log1p(-2 * min(eps, 0.5 * (1 - 1e-12))) / 2 / (cycle_ns * 1e-9)
     return LogicalPace(cycle_ns=cycle_ns, per_cycle=eps, per_second=rate,
                        mean_seconds_between=1 / rate if rate > 0 else math.inf)
 

@@ -33,7 +33,7 @@ def test_rows_say_whether_a_difference_goes_beyond_the_intervals() -> None:
 
 def test_compare_two_out_directories(sample_once, tmp_path: Path) -> None:
     old = sample_once(TINY_REPETITION.format(p=0.03))
-    new = sample_once(TINY_REPETITION.format(p=0.02))
+    new = sample_once(TINY_REPETITION.format(p=0.01))
     res = runner.invoke(app, ["compare", str(old.out), str(new.out), "--json", "--out", str(tmp_path / "cmp")])
     assert res.exit_code == 0, res.stderr
     doc = json.loads(res.stdout)
