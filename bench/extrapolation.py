@@ -8,9 +8,8 @@ at d = 9, 11, 13 (and the goal distance with ``--full``), each at r = d and 3d r
 bases, and compare the per-cycle rate planner's fits give for those samples with the model's
 prediction and its interval (95% both). Everything goes through the public API (``planner.__all__``).
 
-The per-cycle rates come from ``planner.fit_stats`` on the two round counts (boundary-free once
-the fits take the rate from the decay between them; until then the rates of the round counts
-are averaged, and the output says which).
+The per-cycle rates come from ``planner.fit_stats`` on the two round counts (boundary-free: the
+fidelity decay between them, :mod:`planner.fits.decay`).
 
 Run:  .venv/bin/python bench/extrapolation.py [--workers 2] [--full] [--errors 200]
 Last line: ``max_abs_log_ratio=X coverage=K/N`` (X = max |ln(sampled / predicted)| over the

@@ -8,9 +8,8 @@ ln(eps_d / eps_(d+2)) against ln p over the grid (weights from the rates' interv
 the line's scatter where chi2/dof > 1); its interval is where the line's 95% band crosses 0.
 
 Three estimates are printed: the per-cycle rate ``planner.fit_stats`` gives from both round counts
-(boundary-free once the fits take the rate from the decay between them; until then they
-average the round counts' own rates, which the output says), and the rates at r = d and at
-r = 3d alone (each a single-round-count estimate, time boundaries included).
+(boundary-free: the fidelity decay between them, :mod:`planner.fits.decay`), and the rates at
+r = d and at r = 3d alone (each a single-round-count estimate, time boundaries included).
 
 Published (circuit-level depolarizing, CX circuits, matching decoders): 0.5% - 0.7%, Gidney,
 Newman, Fowler, Broughton, "A fault-tolerant honeycomb memory", Quantum 5, 605 (2021), abstract;
@@ -132,8 +131,8 @@ def main() -> None:
         planner.run_sweep(tasks, store=store, rule=planner.StoppingRule(max_errors=a.errors, max_shots=a.max_shots),
                           workers=a.workers, console=console)
         stats = store.stats()
-    both = report("per-cycle rate from planner.fit_stats over r = d and 3d (boundary-free once the fits "
-                  "use the decay; until then the mean of the two round counts' rates)", rates(stats, lambda m: True))
+    both = report("per-cycle rate from planner.fit_stats over r = d and 3d (boundary-free: the fidelity decay "
+                  "between the two round counts)", rates(stats, lambda m: True))
     report("per-cycle rate at r = d only (single round count)", rates(stats, lambda m: m["rounds"] == m["d"]))
     report("per-cycle rate at r = 3d only (single round count)", rates(stats, lambda m: m["rounds"] == 3 * m["d"]))
     print("published: 0.5% - 0.7% (Gidney, Newman, Fowler, Broughton, Quantum 5, 605 (2021), abstract); "
