@@ -116,16 +116,16 @@ def task_metadata(*, code: str, distance: int, basis: str, rounds: int, axis: st
 
 
 def tasks_for_scales(target: Target, scales: Mapping[str, float], *, distances: Sequence[int],
-                     label: str, factor: float = 1.0) -> list[sinter.Task]:
-    """Tasks at one scale vector (all bases and round counts, the given distances). ``label``
-    becomes the axis."""
+                     label: str, factor: float = 1.0, rounds: Sequence[int] | None = None) -> list[sinter.Task]:
+    """Tasks at one scale vector (all bases, the given distances, each at the target's round
+    counts or at ``rounds``). ``label`` becomes the axis."""
     try:
         model = NoiseModel.from_target(target).with_scales(scales)
     except ValueError as exc:
         raise InputError(f"{target.source}: scales {dict(scales)} give an invalid noise model: {exc}") from None
     tasks = []
     for d in distances:
-        for r in round_counts_for(target, d):
+        for r in (round_counts_for(target, d) if rounds is None else rounds):
             for basis in bases_for(target):
                 circuit = build_memory_circuit(model, code=target.sweep.code, distance=d, rounds=r, basis=basis)
                 meta = task_metadata(code=target.sweep.code, distance=d, basis=basis, rounds=r,
@@ -321,16 +321,4 @@ def tasks_at_rounds(target: Target, scales: Mapping[str, float], *, distance: in
                     label: str, factor: float = 1.0) -> list[sinter.Task]:
     """Tasks at one scale vector and distance, at each of ``rounds`` (every basis): the samples a
     per-cycle rate free of the time boundaries is fitted from (``planner verify`` takes r = d, 3d)."""
-    try:
-        model = NoiseModel.from_target(target).with_scales(scales)
-    except ValueError as exc:
-        raise InputError(f"{target.source}: scales {dict(scales)} give an invalid noise model: {exc}") from None
-    tasks = []
-    for r in rounds:
-        for basis in bases_for(target):
-            circuit = build_memory_circuit(model, code=target.sweep.code, distance=distance, rounds=r, basis=basis)
-            meta = task_metadata(code=target.sweep.code, distance=distance, basis=basis, rounds=r,
-                                 axis=label, factor=factor, scales=scales)
-            tasks.append(sinter.Task(circuit=circuit, json_metadata=meta,
-                                     **_leakage_task(target, meta, scales.get("leakage", 1.0))))
-    return tasks
+    return tasks_for_scales(target, scales, distances=(distance,), label=label, factor=factor, rounds=rounds)
