@@ -20,12 +20,13 @@ Absent section: no leakage, and nothing about circuits, tasks or strong ids chan
 
 from __future__ import annotations
 
-from typing import Annotated, Literal
+from typing import Literal
 
-from pydantic import BaseModel, ConfigDict, Field, Strict, model_validator
+from pydantic import model_validator
 
-_Number = Annotated[float, Strict(), Field(allow_inf_nan=False)]
-_Probability = Annotated[_Number, Field(ge=0.0, le=1.0)]
+from planner.config.types import Frozen, Probability
+
+_Probability = Probability
 
 #: the fields the component scale ``leakage`` multiplies (the injection rates)
 SCALED_FIELDS: tuple[str, ...] = ("gate_2q", "heating_per_us")
@@ -33,10 +34,8 @@ SCALED_FIELDS: tuple[str, ...] = ("gate_2q", "heating_per_us")
 REMOVAL_FIELDS: tuple[str, ...] = ("reset_removal", "data_removal")
 
 
-class Leakage(BaseModel):
+class Leakage(Frozen):
     """Leakage of the device (see the module doc). Probabilities in [0, 1]; efficiencies in [0, 1]."""
-
-    model_config = ConfigDict(frozen=True, extra="forbid", strict=False)
 
     #: probability that a two-qubit gate leaks each participating qubit
     gate_2q: _Probability = 0.0

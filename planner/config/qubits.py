@@ -36,9 +36,10 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import TYPE_CHECKING, Annotated, Any
 
-from pydantic import BaseModel, ConfigDict, Field, Strict
+from pydantic import BaseModel, Field, Strict
 
 from planner.config.limits import ERROR_LIMITS, coherence_problem
+from planner.config.types import Frozen, Number
 from planner.errors import InputError
 
 if TYPE_CHECKING:
@@ -56,11 +57,8 @@ LAYOUT_COLUMNS: tuple[str, ...] = ("index", "role", "neighbours")
 MAX_TABLE_ROWS = 100_000
 MAX_TABLE_BYTES = 16 * 2**20
 
-_Number = Annotated[float, Strict(), Field(allow_inf_nan=False)]
-
-
-class _Frozen(BaseModel):
-    model_config = ConfigDict(frozen=True, extra="forbid")
+_Number = Number
+_Frozen = Frozen
 
 
 class QubitValues(_Frozen):

@@ -11,17 +11,15 @@ from pathlib import Path
 from typing import Annotated, Literal
 
 from pydantic import (
-    BaseModel,
-    ConfigDict,
     Field,
     SerializerFunctionWrapHandler,
-    Strict,
     field_validator,
     model_serializer,
     model_validator,
 )
 
 from planner.config.leakage import Leakage
+from planner.config.types import Frozen, Integer, Number, Positive, Probability
 from planner.config.limits import (
     COMPONENTS,
     MAX_DISTANCES,
@@ -50,15 +48,8 @@ def _plain_text(value: str) -> str:
     return value
 
 
-class _Frozen(BaseModel):
-    model_config = ConfigDict(frozen=True, extra="forbid", strict=False)
-
-
 # numbers are TOML numbers: a quoted "4.5e-3" or a boolean is refused, never converted
-Number = Annotated[float, Strict(), Field(allow_inf_nan=False)]
-Integer = Annotated[int, Strict()]
-Probability = Annotated[Number, Field(ge=0.0, le=1.0)]
-Positive = Annotated[Number, Field(gt=0.0)]
+_Frozen = Frozen
 
 
 #: Round counts per distance when the target gives neither ``rounds`` nor ``round_multiples``:
