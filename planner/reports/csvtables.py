@@ -19,7 +19,6 @@ from planner.reports.table import INTEGER_COLUMNS, Table
 if TYPE_CHECKING:
     from planner.fits import FitReport
     from planner.planning import FactorAnswer, MixAnswer, Requirements, Roadmap, Sensitivity
-    from planner.planning.verify import Verification
 
 REQUIREMENTS_COLUMNS = ("quantity", "lever", "unit", "best", "low", "high", "reachable",
                         "extrapolated", "note")
@@ -33,8 +32,6 @@ SENSITIVITY_FIGURES = (("share_of_inverse_lambda", "share"), ("elasticity", "ela
 SENSITIVITY_COLUMNS = ("component", *(f"{name}{end}" for name, _ in SENSITIVITY_FIGURES
                                       for end in ("", "_low", "_high")), "lumped", "note", "sampled")
 DATES_COLUMNS = ("event", "date", "low", "high", "fraction_of_scenarios_reached")
-VERIFY_COLUMNS = ("point", "quantity", "distance", "predicted", "predicted_low", "predicted_high",
-                  "sampled", "sampled_low", "sampled_high", "zero_errors", "holds")
 
 Row = tuple[Any, ...]
 #: per-distance fit columns before the per-basis ones (``eps_<basis>``, ``offset_<basis>`` with
@@ -157,7 +154,7 @@ def requirements_csv(req: Requirements, *, lambda_today_model: Interval | None =
 
 
 # ---------------------------------------------------------------------------------------------
-# roadmap, sensitivity, verify
+# roadmap, sensitivity
 
 
 def roadmap_columns(rm: Roadmap) -> tuple[str, ...]:
@@ -206,16 +203,6 @@ def sensitivity_rows(sens: Sensitivity, *, lumped: Sequence[str] = ()) -> list[R
 def sensitivity_csv(sens: Sensitivity, *, lumped: Sequence[str] = ()) -> Table:
     return Table(key="sensitivity_csv", title="sensitivity", headers=SENSITIVITY_COLUMNS,
                  rows=sensitivity_rows(sens, lumped=lumped))
-
-
-def verify_rows(v: Verification) -> list[Row]:
-    """One row per (operating point, quantity, distance); ``distance`` empty for Lambda."""
-    return [(r.label, r.quantity, r.distance, *ends(r.predicted), *ends(r.sampled), r.zero_errors, r.holds)
-            for r in v.rows]
-
-
-def verify_csv(v: Verification) -> Table:
-    return Table(key="verify_csv", title="verify", headers=VERIFY_COLUMNS, rows=verify_rows(v))
 
 
 def csv_files(result: Requirements | Roadmap | Sensitivity, *, lambda_today_model: Interval | None = None,

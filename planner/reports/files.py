@@ -29,7 +29,6 @@ from planner.reports.csvtables import (  # noqa: F401  (re-exported: the CSV col
     REQUIREMENTS_COLUMNS,
     SENSITIVITY_COLUMNS,
     SENSITIVITY_FIGURES,
-    VERIFY_COLUMNS,
     csv_files,
     requirements_csv,
     requirements_rows,
@@ -39,9 +38,8 @@ from planner.reports.csvtables import (  # noqa: F401  (re-exported: the CSV col
     roadmap_rows,
     sensitivity_csv,
     sensitivity_rows,
-    verify_csv,
-    verify_rows,
 )
+from planner.reports.verifyreport import VERIFY_COLUMNS  # noqa: F401  (the CSV columns users read)
 from planner.reports.jsondoc import json_file_text, json_safe
 from planner.reports.text import lambda_today_model, lumped_components  # noqa: F401  (cli ask uses files.lambda_today_model)
 from planner.reports.table import INTEGER_COLUMNS, Table, csv_text, to_csv, to_markdown  # noqa: F401

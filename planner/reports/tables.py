@@ -30,7 +30,7 @@ from planner.reports.jsondoc import json_text
 from planner.reports.physical import render_physical
 from planner.reports.table import Table
 from planner.reports.terminal import footnotes, print_table, say, words
-from planner.reports.text import verify_tables
+from planner.reports.verifyreport import verify_tables
 
 if TYPE_CHECKING:
     from rich.console import Console
@@ -372,6 +372,6 @@ def _render_goal_eps(sens: Sensitivity, console: Console, cl: str) -> None:
 
 
 def render_verify(v: Verification, console: Console) -> None:
-    """The verification table of the report (:func:`planner.reports.text.verify_tables`)."""
+    """The verification tables of the report (:func:`planner.reports.verifyreport.verify_tables`)."""
     for t in verify_tables(v):
         print_table(console, t)

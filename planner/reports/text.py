@@ -59,13 +59,12 @@ from planner.reports.table import Table, TextTable, to_markdown
 
 if TYPE_CHECKING:
     from planner.planning import Answers, Requirements, Roadmap, Sensitivity, Uncertainty
-    from planner.planning.verify import Verification
 
 __all__ = ["BEYOND", "lambda_today_model", "lumped_components", "event_rows", "CAVEAT", "EXTRAPOLATED", "EXTRAPOLATED_NOTE", "INTERVAL_NOTE", "OVERFLOW_NOTES",
            "POINT_VALUE", "TINY", "UNDERFLOW", "VERIFY_STALE", "Table", "TextTable", "estimate", "fits_tables",
            "goal_distance", "halvings", "interval", "json_safe", "lever_note", "moving_components", "num",
            "overflow_notes", "rate", "requirements_tables", "roadmap_tables", "sensitivity_tables", "span",
-           "to_markdown", "verify_tables"]
+           "to_markdown"]
 
 
 #: the Markdown file and heading of each stage's tables
@@ -303,29 +302,5 @@ def fits_tables(report: FitReport) -> list[Table]:
 #: the report's section when verify.json was made against an earlier fit
 VERIFY_STALE = ("verify.json was made against an earlier fit (more samples, or other operating "
                 "points since): its numbers no longer match these answers; run `planner verify DIR` again.")
-
-
-def verify_tables(v: Verification) -> list[Table]:
-    """Predicted (response model, bootstrap) vs sampled (fits of the verify samples) at the
-    proposed operating points (``v``: :class:`planner.planning.verify.Verification`)."""
-    rows = []
-    for r in v.rows:
-        is_eps = r.quantity == "logical_error_per_cycle"
-        pred = rate(r.predicted.best, r.predicted) if is_eps else interval(r.predicted)
-        sampled = interval(r.sampled) + (" *" if r.zero_errors else "")
-        rows.append((r.label, "eps per cycle" if is_eps else "Lambda (ratio)",
-                     "—" if r.distance is None else str(r.distance), pred, sampled,
-                     {True: "holds", False: "DIFFERS", None: "not sampled"}[r.holds]))
-    points = "; ".join(f"{p.label}: {scales_text(p.scales)}" for p in v.points)
-    lead = (f"Operating points sampled on the simulator (scale on today's error): {points or 'none'}.",
-            f"Distances: {', '.join(map(str, v.distances))}. Overall: "
-            + ("every prediction holds." if v.holds else "some predictions DIFFER from the samples."))
-    notes = ["holds: the predicted and sampled intervals overlap; DIFFERS: they do not.",
-             *(["* no errors sampled: the sampled interval is a bound."] if any(r.zero_errors for r in v.rows)
-               else []), *([v.note] if v.note else [])]
-    return [Table(key="verify", title="Verification: predicted vs sampled at the proposed operating points",
-                  headers=("point", "quantity", "distance", "predicted (model, bootstrap)",
-                           "sampled (fit of the samples)", "holds"),
-                  rows=rows, lead=lead, notes=notes, left=(0, 1, 5), fold_key=3)]
 
 
