@@ -90,7 +90,8 @@ OPTION_OF_FIELD: dict[str, str] = {
     "qubits": "--qubits", "eps_target": "--target", "suppression": "--lambda", "eps": "--eps",
     "rounds": "--rounds", "basis": "--basis", "scales": "--scale", "max_cpu": "--max-cpu",
     "max_cpu_seconds": "--max-cpu", "save": "--save",
-    "instances": "--instances", "draw": "--draw",
+    "instances": "--instances", "draw": "--draw", "shots": "--shots", "inject": "--inject",
+    "fit": "--fit", "threshold": "--threshold", "format": "--format",
     "max_cpu_seconds": "--max-cpu", "save": "--save", "suppression_sigma": "--lambda-sigma",
     "eps_sigma": "--eps-sigma",
 }

@@ -101,10 +101,30 @@ def sample_events(target: Target, *, distance: int, rounds: int, basis: str, sho
     out = Path(out)
     if out.parent and not out.parent.exists():
         raise InputError(f"{out.parent}: no such directory", field="out")
+    _check_events_size(circuit.num_detectors + circuit.num_observables, shots, fmt, out)
     sampler = circuit.compile_detector_sampler(seed=seed)
     obs = obs_path_for(out)
     sampler.sample_write(shots, filepath=str(out), format=fmt, obs_out_filepath=str(obs), obs_out_format=fmt)
     return [out, obs]
+
+
+#: the largest event file `planner events` writes (a measured experiment is far smaller)
+MAX_EVENT_BYTES = 64 * 2**30
+
+
+def _check_events_size(bits_per_shot: int, shots: int, fmt: str, out: Path) -> None:
+    """Refuse, before sampling, an event file larger than :data:`MAX_EVENT_BYTES` or than the free
+    space where it goes (its size estimated from the format: one character per bit for ``01``,
+    bit-packed otherwise; sparse formats are usually smaller)."""
+    import shutil
+
+    per_shot = bits_per_shot + 1 if fmt == "01" else (bits_per_shot + 7) // 8
+    size = shots * max(per_shot, 1)
+    free = shutil.disk_usage(out.parent if str(out.parent) else Path(".")).free
+    if size > min(MAX_EVENT_BYTES, free):
+        limit = "the free space there" if free < MAX_EVENT_BYTES else f"{MAX_EVENT_BYTES / 2**30:.0f} GiB"
+        raise InputError(f"{shots:,} shots would write about {size / 2**30:,.1f} GiB to {out}; at most {limit}",
+                         field="shots")
 
 
 @dataclasses.dataclass(frozen=True)

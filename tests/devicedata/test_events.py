@@ -99,3 +99,17 @@ def test_a_bad_format_name_is_one_line(tmp_path: Path) -> None:
                                  "--out", str(tmp_path / "x"), "--format", "csv"])
     assert result.exit_code == 2 and len(result.stderr.strip().splitlines()) == 1
     assert "b8" in result.stderr  # names what is allowed
+
+
+def test_an_absurd_number_of_shots_is_refused_before_sampling(tmp_path) -> None:
+    """10^12 shots of a d = 3 experiment would be terabytes: one line naming --shots, nothing written."""
+    from typer.testing import CliRunner
+
+    from planner.cli import app
+
+    out = tmp_path / "e.b8"
+    res = CliRunner().invoke(app, ["events", "targets/demo.toml", "--distance", "3", "--rounds", "3", "--basis", "z",
+                                   "--shots", "1000000000000", "--out", str(out)])
+    assert res.exit_code == 2 and res.stderr.count("\n") == 1
+    assert res.stderr.startswith("planner: error: --shots:") and "GiB" in res.stderr
+    assert not out.exists()
